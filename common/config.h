@@ -1,0 +1,116 @@
+// The run configuration as plain structs, one per YAML section, with in-class defaults.
+// Each field says meaning, unit, valid range and default. The only code that reads YAML is
+// coordinator/config_loader.cc; everything else sees these structs, already validated.
+// Thread safety: plain values.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+namespace chorus {
+
+enum class Task { kClassification, kRegression };
+enum class Activation { kRelu, kTanh, kGelu };
+enum class ScheduleKind { kConstant, kCosine, kStep };
+enum class Weighting { kUniform };
+
+struct RunConfig {
+  std::string name = "run";       // run directory prefix: [A-Za-z0-9._-]+, required
+  uint64_t seed = 0;              // root of every seed in the run; member i gets Derive(seed, i)
+  std::string out_dir = "runs";   // parent of run directories; relative to the working directory
+};
+
+// A pair of IDX files (images or feature tensor, and labels/targets), MNIST-family format.
+struct IdxFiles {
+  std::string images;
+  std::string labels;
+};
+
+struct DataConfig {
+  // --- changes the trained model ---
+  std::string format = "csv";     // csv | idx
+  std::string train;              // csv: path of the training file (required for csv)
+  std::string test;               // csv: path of the test file (required for csv)
+  IdxFiles train_idx;             // idx: training images and labels (required for idx)
+  IdxFiles test_idx;              // idx: test images and labels (required for idx)
+  double validation_fraction = 0.1;  // share of train held out, in (0, 0.5]; ignored with a file
+  std::string validation_file;    // csv: explicit validation file instead of a fraction
+  IdxFiles validation_idx;        // idx: explicit validation files instead of a fraction
+  std::string target;             // csv: name of the target column (required for csv)
+  Task task = Task::kClassification;
+  std::vector<std::string> categorical;  // csv: columns one-hot encoded with the train vocabulary
+  int64_t max_train_rows = 0;     // use only the first N training rows (before the split); 0 = all
+  int64_t max_test_rows = 0;      // use only the first N test rows; 0 = all
+  // --- report only ---
+  std::string true_probabilities;  // optional csv of the test set's true class probabilities
+                                   // (header = class names, one row per test row); lets the
+                                   // report show the Bayes-optimal test NLL (invented data only)
+};
+
+struct ModelConfig {
+  std::vector<int> hidden = {64, 64};  // widths of hidden layers, each in [1, 65536]; may be empty
+  Activation activation = Activation::kRelu;
+};
+
+struct ScheduleConfig {
+  ScheduleKind kind = ScheduleKind::kCosine;  // multiplies optimizer.lr, per step
+  int step_every_epochs = 10;   // step: epochs between decays, >= 1
+  double step_factor = 0.1;     // step: multiplier at each decay, in (0, 1]
+};
+
+struct OptimizerConfig {
+  double lr = 0.05;             // base learning rate, > 0
+  double momentum = 0.9;        // heavy-ball coefficient, in [0, 1)
+  bool nesterov = false;        // Nesterov form of momentum
+  double weight_decay = 5e-4;   // L2 coefficient added to the gradient (lambda * w), >= 0
+  double clip_norm = 0.0;       // rescale the gradient to this global L2 norm if larger; 0 = off
+};
+
+struct TrainConfig {
+  int epochs = 20;              // passes over the training split, >= 1
+  int batch_size = 128;         // minibatch rows, >= 1; the last short batch of an epoch is used
+  OptimizerConfig optimizer;
+  ScheduleConfig schedule;
+};
+
+struct EnsembleConfig {
+  int members = 5;              // independently seeded trainings, >= 1
+  int min_members = 1;          // fewest finished members for assembly to go ahead, in [1, members]
+  Weighting weighting = Weighting::kUniform;
+  bool tune_temperature = true; // "tune": minimise validation NLL over log T
+  double temperature = 1.0;     // used when tune_temperature is false; > 0
+};
+
+struct ReportConfig {
+  int ece_bins = 15;            // equal-width confidence bins for ECE, in [1, 1000]
+  int size_curve_subsets = 10;  // random member subsets per ensemble size, >= 1
+};
+
+struct ComputeConfig {
+  // --- changes speed only ---
+  int threads = 0;              // members trained at once (oneTBB arena size); 0 = all cores
+};
+
+struct Config {
+  RunConfig run;
+  DataConfig data;
+  ModelConfig model;
+  TrainConfig train;
+  EnsembleConfig ensemble;
+  ReportConfig report;
+  ComputeConfig compute;
+};
+
+// Names used in YAML and messages, and their inverses (nullopt for an unknown name).
+const char* TaskName(Task t);
+const char* ActivationName(Activation a);
+const char* ScheduleName(ScheduleKind s);
+const char* WeightingName(Weighting w);
+std::optional<Task> ParseTask(const std::string& s);
+std::optional<Activation> ParseActivation(const std::string& s);
+std::optional<ScheduleKind> ParseSchedule(const std::string& s);
+std::optional<Weighting> ParseWeighting(const std::string& s);
+
+}  // namespace chorus

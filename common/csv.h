@@ -1,0 +1,32 @@
+// Reading CSV text (RFC 4180: header row, comma separator, double-quoted fields with "" escapes,
+// CRLF or LF line ends, quoted fields may span lines) into rows of strings.
+// Thread safety: free functions, reentrant.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "common/status.h"
+
+namespace chorus {
+
+// A parsed CSV file. Every row has header.size() fields (ragged rows are an error at parse time).
+struct CsvTable {
+  std::string path;                           // for messages
+  std::vector<std::string> header;            // column names, unique, non-empty
+  std::vector<std::vector<std::string>> rows;  // data rows, header excluded
+  std::vector<int64_t> lines;                 // 1-based line where each row starts
+};
+
+// Parses `text`; `path` is only used in messages ("PATH:LINE:COLUMN: what was expected").
+// Errors (kInvalidInput): empty input, no data rows, duplicate or empty column name, ragged row,
+// unterminated quote, characters after a closing quote. A trailing newline is allowed; blank
+// lines are skipped.
+StatusOr<CsvTable> ParseCsv(std::string_view text, const std::string& path);
+
+// Reads and parses a file; a missing/unreadable file is kInvalidInput naming the path.
+StatusOr<CsvTable> ReadCsv(const std::string& path);
+
+}  // namespace chorus

@@ -1,0 +1,68 @@
+// Loading, validating, splitting and preprocessing the data a run trains and evaluates on.
+// Thread safety: free functions, reentrant; PreparedData is immutable once built and may be
+// shared read-only between threads.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "common/config.h"
+#include "common/matrix.h"
+#include "common/status.h"
+
+namespace chorus {
+
+// One split after preprocessing. x is rows x features (row-major). Classification fills labels
+// (class index in [0, class_names.size())); regression fills targets (standardised with the
+// train mean/std in PreparedData). origin[i] says where row i came from ("file:line" or
+// "file[index]"), for messages and prediction output.
+struct Split {
+  Matrix x;
+  std::vector<int32_t> labels;
+  std::vector<float> targets;
+  std::vector<std::string> origin;
+  int64_t rows() const { return x.rows(); }
+};
+
+// Per-feature standardisation fitted on the training split only: x' = (x - mean) / scale, where
+// scale is the population standard deviation, or 1 where that is 0.
+struct Standardizer {
+  std::vector<float> mean;
+  std::vector<float> scale;
+};
+
+// A categorical CSV column and its one-hot vocabulary from the training split (sorted). A value
+// not in the vocabulary encodes as all zeros.
+struct CategoricalColumn {
+  std::string name;
+  std::vector<std::string> vocabulary;
+};
+
+struct PreparedData {
+  Task task = Task::kClassification;
+  std::vector<std::string> feature_names;   // after one-hot expansion ("site=north")
+  std::vector<std::string> class_names;     // classification: sorted labels seen in train
+  std::vector<CategoricalColumn> categorical;
+  Standardizer standardizer;
+  float target_mean = 0.0f;                 // regression: y' = (y - target_mean) / target_scale
+  float target_scale = 1.0f;
+  Split train, validation, test;
+  std::string hash;                         // SHA-256 (hex) of everything above except origin
+  int64_t features() const { return train.x.cols(); }
+  int64_t classes() const { return static_cast<int64_t>(class_names.size()); }
+};
+
+// Loads the files named in `config`, validates them, splits off validation (a seeded fraction of
+// train, shuffled with a generator derived from `run_seed`, or the given file), fits the
+// standardizer and vocabularies on the remaining train rows, and applies them to every split.
+// Errors (kInvalidInput, message "FILE:LINE:COLUMN: ..."): empty file, ragged row, non-numeric
+// value in a numeric column, NaN/inf, missing target or categorical column, a validation or test
+// label never seen in train, IDX header/size mismatch, images/labels count mismatch.
+StatusOr<PreparedData> LoadPreparedData(const DataConfig& config, uint64_t run_seed);
+
+// Reads data.true_probabilities: rows x classes matrix whose header must equal class_names (in
+// any order; columns are reordered to class_names) and whose row count must equal test rows.
+StatusOr<Matrix> LoadTrueProbabilities(const std::string& path, const PreparedData& data);
+
+}  // namespace chorus

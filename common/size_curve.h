@@ -1,0 +1,38 @@
+// Size curves: how test quality grows with the number of members, with the spread over random
+// member subsets, so a user can see what another member buys. Thread safety: free functions.
+#pragma once
+
+#include <cstdint>
+#include <vector>
+
+#include "common/assembly.h"
+#include "common/matrix.h"
+
+namespace chorus {
+
+struct Spread {
+  double mean = 0, min = 0, max = 0;
+};
+
+// One point: k members, s samples per member (1 until basin fits exist). Classification fills
+// nll, accuracy, ece; regression fills nll, rmse, coverage_90.
+struct SizeCurvePoint {
+  int members = 0;
+  int samples = 1;
+  Spread nll, accuracy, ece, rmse, coverage_90;
+};
+
+// For k = 1..M: `subsets` subsets of k distinct members drawn with Philox(seed) (for k = M, or
+// when fewer distinct subsets exist, every subset once at most `subsets` times), each assembled
+// with uniform weights and a temperature tuned on validation, then scored on test.
+std::vector<SizeCurvePoint> ClassificationSizeCurve(
+    const std::vector<const Matrix*>& validation_logits, const std::vector<int32_t>& validation_labels,
+    const std::vector<const Matrix*>& test_logits, const std::vector<int32_t>& test_labels,
+    int subsets, int ece_bins, uint64_t seed);
+
+std::vector<SizeCurvePoint> RegressionSizeCurve(
+    const std::vector<const MemberGaussian*>& validation, const std::vector<double>& validation_targets,
+    const std::vector<const MemberGaussian*>& test, const std::vector<double>& test_targets,
+    int subsets, uint64_t seed);
+
+}  // namespace chorus
