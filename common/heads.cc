@@ -1,0 +1,49 @@
+#include "common/heads.h"
+
+#include <cmath>
+
+namespace chorus {
+
+double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, MatrixRef grad) {
+  const int64_t rows = logits.rows();
+  const float inv_b = 1.0f / static_cast<float>(rows);
+  double loss = 0.0;
+  for (int64_t i = 0; i < rows; ++i) {
+    const float m = logits.row(i).maxCoeff();
+    auto g = grad.row(i);
+    g = (logits.row(i).array() - m).exp().matrix();
+    const float sum = g.sum();
+    loss += std::log(static_cast<double>(sum)) + m - logits(i, labels[i]);
+    g *= inv_b / sum;
+    g(labels[i]) -= inv_b;
+  }
+  return loss / static_cast<double>(rows);
+}
+
+double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRef grad) {
+  constexpr double kLog2Pi = 1.8378770664093453;
+  const int64_t rows = outputs.rows();
+  const float inv_b = 1.0f / static_cast<float>(rows);
+  double loss = 0.0;
+  for (int64_t i = 0; i < rows; ++i) {
+    const float mu = outputs(i, 0), s = outputs(i, 1);
+    const float r = targets[i] - mu;
+    const float precision = std::exp(-s);
+    loss += 0.5 * (static_cast<double>(s) + static_cast<double>(r) * r * precision + kLog2Pi);
+    grad(i, 0) = -r * precision * inv_b;
+    grad(i, 1) = 0.5f * (1.0f - r * r * precision) * inv_b;
+  }
+  return loss / static_cast<double>(rows);
+}
+
+MatrixD Softmax(const ConstMatrixRef& logits, double temperature) {
+  MatrixD p = logits.cast<double>() / temperature;
+  for (Eigen::Index i = 0; i < p.rows(); ++i) {
+    p.row(i).array() -= p.row(i).maxCoeff();
+    p.row(i) = p.row(i).array().exp().matrix();
+    p.row(i) /= p.row(i).sum();
+  }
+  return p;
+}
+
+}  // namespace chorus

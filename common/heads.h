@@ -1,0 +1,25 @@
+// Output heads: the loss on the network's last layer and its gradient, averaged over the batch.
+// Thread safety: free functions, reentrant.
+#pragma once
+
+#include <cstdint>
+#include <vector>
+
+#include "common/matrix.h"
+
+namespace chorus {
+
+// Softmax classification. logits: rows x K; labels: rows entries in [0, K).
+// loss = (1/B) sum_i [logsumexp(z_i) - z_{i,y_i}];  dL/dz_i = (softmax(z_i) - onehot(y_i)) / B.
+// Writes the gradient into grad (rows x K) and returns the loss (double accumulation).
+double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, MatrixRef grad);
+
+// Gaussian regression. outputs: rows x 2, column 0 the mean mu, column 1 the log-variance s.
+// loss = (1/B) sum_i 0.5 [s_i + (y_i - mu_i)^2 e^{-s_i} + ln 2pi];
+// dL/dmu = -(y - mu) e^{-s} / B;  dL/ds = 0.5 (1 - (y - mu)^2 e^{-s}) / B.
+double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRef grad);
+
+// Row-wise softmax in double, for predictions: probs(i, k) = exp(z_ik - max) / sum.
+MatrixD Softmax(const ConstMatrixRef& logits, double temperature = 1.0);
+
+}  // namespace chorus

@@ -1,0 +1,57 @@
+// Training one ensemble member from scratch: seeded initialisation, shuffled minibatch SGD, then
+// the member's outputs on validation and test. A pure function of (spec, data): the same inputs
+// give bit-identical results on the same instruction set, whatever thread runs it.
+// Thread safety: reentrant; uses only the calling thread. `data` is read-only and may be shared.
+#pragma once
+
+#include <cstdint>
+#include <functional>
+#include <vector>
+
+#include "common/config.h"
+#include "common/dataset.h"
+#include "common/matrix.h"
+#include "common/mlp.h"
+#include "common/status.h"
+
+namespace chorus {
+
+struct MemberSpec {
+  int index = 0;       // position in the ensemble, 0-based
+  uint64_t seed = 0;   // Derive(run.seed, index); initialisation and shuffling derive from it
+  ModelConfig model;
+  TrainConfig train;
+};
+
+struct EpochProgress {
+  int member = 0;
+  int epoch = 0;       // 1-based, the epoch just finished
+  int epochs = 0;
+  double mean_loss = 0;  // mean training loss over the epoch's minibatches
+};
+using ProgressFn = std::function<void(const EpochProgress&)>;
+
+struct MemberResult {
+  int index = 0;
+  uint64_t seed = 0;
+  std::vector<float> parameters;   // Mlp layout (common/mlp.h)
+  std::vector<double> epoch_loss;  // mean training loss per epoch
+  Matrix validation_outputs;       // rows x outputs: logits, or (mean, log-variance) standardised
+  Matrix test_outputs;
+};
+
+// The network a config describes for this data: inputs = features, outputs = classes
+// (classification) or 2 (regression: mean and log-variance of the standardised target).
+Mlp NetworkFor(const ModelConfig& model, const PreparedData& data);
+
+// Trains member `spec.index`. Fails with kDiverged ("epoch E, step S: training loss is nan") if a
+// minibatch loss or a final output is not finite. `progress` (may be empty) is called after each
+// epoch from the calling thread.
+StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
+                                   const ProgressFn& progress);
+
+// Network outputs for every row of x, computed in batches of `batch_rows` to bound memory.
+Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef& x,
+                      int64_t batch_rows = 1024);
+
+}  // namespace chorus

@@ -1,0 +1,124 @@
+#include "common/mlp.h"
+
+#include <cassert>
+#include <cmath>
+
+#include "common/gemm.h"
+#include "common/rng.h"
+
+namespace chorus {
+namespace {
+
+constexpr float kInvSqrt2 = 0.70710678118654752f;
+constexpr float kInvSqrt2Pi = 0.39894228040143268f;
+
+// Phi(z) = 0.5 (1 + erf(z / sqrt 2)), the standard normal CDF.
+inline float NormalCdf(float z) { return 0.5f * (1.0f + std::erf(z * kInvSqrt2)); }
+
+}  // namespace
+
+Mlp::Mlp(std::vector<int> widths, Activation activation)
+    : widths_(std::move(widths)), activation_(activation) {
+  assert(widths_.size() >= 2);
+  for (size_t l = 0; l + 1 < widths_.size(); ++l) {
+    offsets_.push_back(parameter_count_);
+    parameter_count_ += int64_t{widths_[l]} * widths_[l + 1] + widths_[l + 1];
+  }
+}
+
+Mlp::Workspace Mlp::MakeWorkspace(int64_t max_rows) const {
+  Workspace ws;
+  for (int l = 0; l < layers(); ++l) {
+    ws.pre.emplace_back(max_rows, widths_[l + 1]);
+    ws.grad.emplace_back(max_rows, widths_[l + 1]);
+    if (l + 1 < layers()) ws.post.emplace_back(max_rows, widths_[l + 1]);
+  }
+  return ws;
+}
+
+void Mlp::Initialize(uint64_t seed, float* params) const {
+  Philox rng(seed);
+  for (int l = 0; l < layers(); ++l) {
+    const bool hidden = l + 1 < layers();
+    const double gain2 = hidden && activation_ != Activation::kTanh ? 2.0 : 1.0;
+    const double sd = std::sqrt(gain2 / widths_[l]);
+    const int64_t n_w = int64_t{widths_[l]} * widths_[l + 1];
+    float* w = params + WeightOffset(l);
+    for (int64_t i = 0; i < n_w; ++i) w[i] = static_cast<float>(sd * rng.NextNormal());
+    std::fill(params + BiasOffset(l), params + BiasOffset(l) + widths_[l + 1], 0.0f);
+  }
+}
+
+MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& ws) const {
+  const int64_t rows = x.rows();
+  for (int l = 0; l < layers(); ++l) {
+    Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
+    Eigen::Map<const Eigen::RowVectorXf> b(params + BiasOffset(l), widths_[l + 1]);
+    auto z = ws.pre[l].topRows(rows);
+    // Z_l = 1 b^T + H_{l-1} W_l
+    z.rowwise() = b;
+    if (l == 0) {
+      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, x, w, 1.0f, z);
+    } else {
+      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, ws.post[l - 1].topRows(rows), w, 1.0f, z);
+    }
+    if (l + 1 < layers()) ApplyActivation(activation_, z, ws.post[l].topRows(rows));
+  }
+  return ws.pre.back().topRows(rows);
+}
+
+void Mlp::Backward(const float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
+                   Workspace& ws, float* grad) const {
+  const int64_t rows = x.rows();
+  ws.grad.back().topRows(rows) = grad_output;
+  for (int l = layers() - 1; l >= 0; --l) {
+    auto dz = ws.grad[l].topRows(rows);
+    Eigen::Map<Matrix> dw(grad + WeightOffset(l), widths_[l], widths_[l + 1]);
+    Eigen::Map<Eigen::RowVectorXf> db(grad + BiasOffset(l), widths_[l + 1]);
+    // dW_l = H_{l-1}^T dZ_l ; db_l = 1^T dZ_l
+    if (l == 0) {
+      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, x, dz, 0.0f, dw);
+    } else {
+      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, ws.post[l - 1].topRows(rows), dz, 0.0f, dw);
+    }
+    db = dz.colwise().sum();
+    if (l == 0) break;
+    // dZ_{l-1} = (dZ_l W_l^T) * act'(Z_{l-1})
+    Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
+    auto dprev = ws.grad[l - 1].topRows(rows);
+    Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev);
+    MultiplyActivationDerivative(activation_, ws.pre[l - 1].topRows(rows), dprev);
+  }
+}
+
+void ApplyActivation(Activation a, const Eigen::Ref<const Matrix>& z, Eigen::Ref<Matrix> h) {
+  switch (a) {
+    case Activation::kRelu: h = z.cwiseMax(0.0f); break;
+    case Activation::kTanh: h = z.array().tanh().matrix(); break;
+    case Activation::kGelu:
+      h = z.unaryExpr([](float v) { return v * NormalCdf(v); });
+      break;
+  }
+}
+
+void MultiplyActivationDerivative(Activation a, const Eigen::Ref<const Matrix>& z,
+                                  Eigen::Ref<Matrix> dh) {
+  switch (a) {
+    case Activation::kRelu:  // relu'(z) = [z > 0]
+      dh = dh.binaryExpr(z, [](float g, float v) { return v > 0.0f ? g : 0.0f; });
+      break;
+    case Activation::kTanh:  // tanh'(z) = 1 - tanh(z)^2
+      dh = dh.binaryExpr(z, [](float g, float v) {
+        const float t = std::tanh(v);
+        return g * (1.0f - t * t);
+      });
+      break;
+    case Activation::kGelu:  // gelu'(z) = Phi(z) + z phi(z)
+      dh = dh.binaryExpr(z, [](float g, float v) {
+        return g * (NormalCdf(v) + v * kInvSqrt2Pi * std::exp(-0.5f * v * v));
+      });
+      break;
+  }
+}
+
+}  // namespace chorus

@@ -1,0 +1,65 @@
+// A multi-layer perceptron over a flat parameter vector, with forward and backward passes.
+// Layer l maps width[l] -> width[l+1]: Z_l = H_{l-1} W_l + 1 b_l^T, H_l = act(Z_l) for hidden
+// layers; the last layer is linear (its Z is the network output: logits, or mean/log-variance).
+// Parameter layout (float32): for each layer in order, W_l (width[l] x width[l+1], row-major)
+// then b_l (width[l+1]). Thread safety: an Mlp is immutable and shareable; a Workspace belongs to
+// one thread.
+#pragma once
+
+#include <cstdint>
+#include <vector>
+
+#include "common/config.h"
+#include "common/matrix.h"
+
+namespace chorus {
+
+class Mlp {
+ public:
+  // widths = {inputs, hidden..., outputs}, each >= 1, at least two entries.
+  Mlp(std::vector<int> widths, Activation activation);
+
+  int64_t ParameterCount() const { return parameter_count_; }
+  int layers() const { return static_cast<int>(widths_.size()) - 1; }
+  const std::vector<int>& widths() const { return widths_; }
+  Activation activation() const { return activation_; }
+  int64_t WeightOffset(int layer) const { return offsets_[layer]; }
+  int64_t BiasOffset(int layer) const { return offsets_[layer] + int64_t{widths_[layer]} * widths_[layer + 1]; }
+
+  // Activations kept for backward, sized for up to max_rows inputs. Allocated once; Forward and
+  // Backward on at most max_rows rows allocate nothing.
+  struct Workspace {
+    std::vector<Matrix> pre;   // Z_l, max_rows x width[l+1], one per layer
+    std::vector<Matrix> post;  // H_l = act(Z_l), one per hidden layer
+    std::vector<Matrix> grad;  // dL/dZ_l scratch, one per layer
+  };
+  Workspace MakeWorkspace(int64_t max_rows) const;
+
+  // Writes N(0, gain^2 / fan_in) weights (gain^2 = 2 for relu/gelu hidden layers, 1 for tanh and
+  // for the output layer; He et al., ICCV 2015) and zero biases, drawn from Philox(seed).
+  void Initialize(uint64_t seed, float* params) const;
+
+  // Runs x (rows x inputs, rows <= max_rows) forward; returns a view of the output Z_L
+  // (rows x outputs) inside `ws`, valid until the next call with the same workspace.
+  MatrixRef Forward(const float* params, const ConstMatrixRef& x, Workspace& ws) const;
+
+  // Given dL/dZ_L (rows x outputs, same rows as the last Forward on `ws`), writes dL/dparams into
+  // grad (ParameterCount() floats, overwritten).
+  void Backward(const float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
+                Workspace& ws, float* grad) const;
+
+ private:
+  std::vector<int> widths_;
+  Activation activation_;
+  std::vector<int64_t> offsets_;
+  int64_t parameter_count_ = 0;
+};
+
+// Element-wise activation kernels, exposed for tests.
+// relu(z) = max(z, 0); tanh; gelu(z) = z * Phi(z) = 0.5 z (1 + erf(z / sqrt 2)) (Hendrycks &
+// Gimpel 2016, the exact form PyTorch uses by default).
+void ApplyActivation(Activation a, const Eigen::Ref<const Matrix>& z, Eigen::Ref<Matrix> h);
+// dh <- dh * act'(z), in place.
+void MultiplyActivationDerivative(Activation a, const Eigen::Ref<const Matrix>& z, Eigen::Ref<Matrix> dh);
+
+}  // namespace chorus

@@ -1,0 +1,46 @@
+#include "common/sgd.h"
+
+#include <cmath>
+
+namespace chorus {
+
+void SgdStep(const OptimizerConfig& opt, float lr, int64_t n, const float* g, float* w,
+             float* velocity) {
+  const float wd = static_cast<float>(opt.weight_decay), mu = static_cast<float>(opt.momentum);
+  for (int64_t i = 0; i < n; ++i) {
+    const float d = g[i] + wd * w[i];
+    const float v = mu * velocity[i] + d;
+    velocity[i] = v;
+    w[i] -= lr * (opt.nesterov ? d + mu * v : v);
+  }
+}
+
+double ClipGradientNorm(float* g, int64_t n, double max_norm) {
+  double sq = 0.0;
+  for (int64_t i = 0; i < n; ++i) sq += static_cast<double>(g[i]) * g[i];
+  const double norm = std::sqrt(sq);
+  if (max_norm > 0.0 && norm > max_norm) {
+    const float scale = static_cast<float>(max_norm / norm);
+    for (int64_t i = 0; i < n; ++i) g[i] *= scale;
+  }
+  return norm;
+}
+
+double ScheduledLearningRate(const TrainConfig& train, int64_t step, int64_t steps_per_epoch) {
+  const double lr = train.optimizer.lr;
+  switch (train.schedule.kind) {
+    case ScheduleKind::kConstant:
+      return lr;
+    case ScheduleKind::kCosine: {
+      const double total = static_cast<double>(steps_per_epoch) * train.epochs;
+      return lr * 0.5 * (1.0 + std::cos(M_PI * static_cast<double>(step) / total));
+    }
+    case ScheduleKind::kStep: {
+      const int64_t epoch = step / steps_per_epoch;
+      return lr * std::pow(train.schedule.step_factor, epoch / train.schedule.step_every_epochs);
+    }
+  }
+  return lr;
+}
+
+}  // namespace chorus

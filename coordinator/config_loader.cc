@@ -1,0 +1,401 @@
+#include "coordinator/config_loader.h"
+
+#include <yaml-cpp/yaml.h>
+
+#include <filesystem>
+#include <functional>
+#include <limits>
+#include <set>
+
+#include "common/file_util.h"
+#include "common/sha256.h"
+
+namespace chorus {
+namespace {
+
+// Reads one YAML mapping, checking that every key is known and every value has the right type.
+class Section {
+ public:
+  Section(const YAML::Node& node, std::string name, const std::string& file)
+      : node_(node), name_(std::move(name)), file_(file) {}
+
+  // Fails unless the node is a mapping whose keys are all in `allowed`.
+  Status Check(const std::set<std::string>& allowed) const {
+    if (!node_.IsMap()) return Error(node_, name_, "expected a mapping");
+    for (const auto& kv : node_) {
+      const std::string key = kv.first.Scalar();
+      if (!allowed.count(key)) {
+        std::string known;
+        for (const auto& a : allowed) known += (known.empty() ? "" : ", ") + a;
+        return Error(kv.first, Path(key), "unknown key (known keys: " + known + ")");
+      }
+    }
+    return Status::Ok();
+  }
+
+  bool Has(const std::string& key) const { return node_[key].IsDefined() && !node_[key].IsNull(); }
+  YAML::Node Node(const std::string& key) const { return node_[key]; }
+  std::string Path(const std::string& key) const { return name_.empty() ? key : name_ + "." + key; }
+  Section Child(const std::string& key) const { return Section(node_[key], Path(key), file_); }
+
+  template <typename T>
+  Status Get(const std::string& key, T* out, const char* expected, T lo, T hi) const {
+    if (!Has(key)) return Status::Ok();
+    const YAML::Node n = node_[key];
+    T v{};
+    if (!n.IsScalar() || !YAML::convert<T>::decode(n, v)) {
+      return Error(n, Path(key), std::string("expected ") + expected + ", found " + Show(n));
+    }
+    if (!(v >= lo && v <= hi)) {
+      return Error(n, Path(key), std::string("expected ") + expected + " in [" + Num(lo) + ", " +
+                                     Num(hi) + "], found " + n.Scalar());
+    }
+    *out = v;
+    return Status::Ok();
+  }
+
+  Status GetString(const std::string& key, std::string* out) const {
+    if (!Has(key)) return Status::Ok();
+    const YAML::Node n = node_[key];
+    if (!n.IsScalar()) return Error(n, Path(key), "expected a string, found " + Show(n));
+    *out = n.Scalar();
+    return Status::Ok();
+  }
+
+  Status GetBool(const std::string& key, bool* out) const {
+    if (!Has(key)) return Status::Ok();
+    const YAML::Node n = node_[key];
+    if (!n.IsScalar() || !YAML::convert<bool>::decode(n, *out)) {
+      return Error(n, Path(key), "expected true or false, found " + Show(n));
+    }
+    return Status::Ok();
+  }
+
+  // A string restricted to names that `parse` accepts.
+  template <typename E>
+  Status GetEnum(const std::string& key, E* out, const std::function<std::optional<E>(const std::string&)>& parse,
+                 const char* choices) const {
+    std::string s;
+    if (!Has(key)) return Status::Ok();
+    CHORUS_RETURN_IF_ERROR(GetString(key, &s));
+    const std::optional<E> v = parse(s);
+    if (!v) return Error(node_[key], Path(key), std::string("expected one of ") + choices + ", found \"" + s + "\"");
+    *out = *v;
+    return Status::Ok();
+  }
+
+  Status Error(const YAML::Node& at, const std::string& key, const std::string& what) const {
+    const YAML::Mark m = at.Mark();
+    const std::string where = m.is_null() ? file_ : file_ + ":" + std::to_string(m.line + 1) + ":" +
+                                                        std::to_string(m.column + 1);
+    return Status::InvalidInput(where + ": " + key + ": " + what);
+  }
+
+ private:
+  static std::string Show(const YAML::Node& n) {
+    if (n.IsScalar()) return "\"" + n.Scalar() + "\"";
+    return n.IsSequence() ? "a list" : "a mapping";
+  }
+  template <typename T>
+  static std::string Num(T v) {
+    std::ostringstream s;
+    s << v;
+    return s.str();
+  }
+
+  YAML::Node node_;
+  std::string name_;
+  const std::string& file_;
+};
+
+constexpr int kMaxInt = std::numeric_limits<int>::max();
+
+std::string Resolve(const std::string& base_dir, const std::string& p) {
+  if (p.empty() || std::filesystem::path(p).is_absolute()) return p;
+  return (std::filesystem::path(base_dir) / p).lexically_normal().string();
+}
+
+Status LoadRun(const Section& s, RunConfig* run) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"name", "seed", "out_dir"}));
+  CHORUS_RETURN_IF_ERROR(s.GetString("name", &run->name));
+  const bool name_ok = !run->name.empty() && run->name.find_first_not_of(
+      "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789._-") == std::string::npos;
+  if (!name_ok || run->name[0] == '.') {
+    return s.Error(s.Node("name"), s.Path("name"), "expected letters, digits, '.', '_' or '-' (not starting with '.')");
+  }
+  CHORUS_RETURN_IF_ERROR(s.Get<uint64_t>("seed", &run->seed, "a non-negative integer", 0, UINT64_MAX));
+  return s.GetString("out_dir", &run->out_dir);
+}
+
+// train / test: a path (csv) or {images, labels} (idx).
+Status LoadSource(const Section& data, const std::string& key, bool idx, std::string* csv, IdxFiles* files) {
+  if (!data.Has(key)) return data.Error(data.Node(key), data.Path(key), "required");
+  if (idx) {
+    Section f = data.Child(key);
+    CHORUS_RETURN_IF_ERROR(f.Check({"images", "labels"}));
+    CHORUS_RETURN_IF_ERROR(f.GetString("images", &files->images));
+    CHORUS_RETURN_IF_ERROR(f.GetString("labels", &files->labels));
+    if (files->images.empty() || files->labels.empty()) {
+      return data.Error(data.Node(key), data.Path(key), "expected {images: FILE, labels: FILE}");
+    }
+    return Status::Ok();
+  }
+  return data.GetString(key, csv);
+}
+
+Status LoadValidation(const Section& data, DataConfig* d) {
+  if (!data.Has("validation")) return Status::Ok();
+  Section v = data.Child("validation");
+  CHORUS_RETURN_IF_ERROR(v.Check({"fraction", "file", "images", "labels"}));
+  CHORUS_RETURN_IF_ERROR(v.Get<double>("fraction", &d->validation_fraction, "a fraction", 1e-9, 0.5));
+  if (d->format == "idx") {
+    CHORUS_RETURN_IF_ERROR(v.GetString("images", &d->validation_idx.images));
+    CHORUS_RETURN_IF_ERROR(v.GetString("labels", &d->validation_idx.labels));
+    if (d->validation_idx.images.empty() != d->validation_idx.labels.empty()) {
+      return v.Error(data.Node("validation"), v.Path("images"), "give both images and labels");
+    }
+  } else {
+    CHORUS_RETURN_IF_ERROR(v.GetString("file", &d->validation_file));
+  }
+  return Status::Ok();
+}
+
+Status LoadData(const Section& s, const std::string& base, DataConfig* d) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"format", "train", "test", "validation", "target", "task",
+                                  "categorical", "max_train_rows", "max_test_rows",
+                                  "true_probabilities"}));
+  CHORUS_RETURN_IF_ERROR(s.GetString("format", &d->format));
+  if (d->format != "csv" && d->format != "idx") {
+    return s.Error(s.Node("format"), s.Path("format"), "expected one of csv, idx, found \"" + d->format + "\"");
+  }
+  const bool idx = d->format == "idx";
+  CHORUS_RETURN_IF_ERROR(LoadSource(s, "train", idx, &d->train, &d->train_idx));
+  CHORUS_RETURN_IF_ERROR(LoadSource(s, "test", idx, &d->test, &d->test_idx));
+  CHORUS_RETURN_IF_ERROR(LoadValidation(s, d));
+  CHORUS_RETURN_IF_ERROR(s.GetString("target", &d->target));
+  if (!idx && d->target.empty()) return s.Error(s.Node("target"), s.Path("target"), "required for csv data");
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<Task>("task", &d->task, ParseTask, "classification, regression"));
+  if (s.Has("categorical")) {
+    const YAML::Node c = s.Node("categorical");
+    if (!c.IsSequence()) return s.Error(c, s.Path("categorical"), "expected a list of column names");
+    d->categorical.clear();
+    for (const auto& item : c) {
+      if (!item.IsScalar()) return s.Error(item, s.Path("categorical"), "expected a column name");
+      d->categorical.push_back(item.Scalar());
+    }
+  }
+  CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("max_train_rows", &d->max_train_rows, "a row count", 0, INT64_MAX));
+  CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("max_test_rows", &d->max_test_rows, "a row count", 0, INT64_MAX));
+  CHORUS_RETURN_IF_ERROR(s.GetString("true_probabilities", &d->true_probabilities));
+  for (std::string* p : {&d->train, &d->test, &d->validation_file, &d->true_probabilities,
+                         &d->train_idx.images, &d->train_idx.labels, &d->test_idx.images,
+                         &d->test_idx.labels, &d->validation_idx.images, &d->validation_idx.labels}) {
+    *p = Resolve(base, *p);
+  }
+  return Status::Ok();
+}
+
+Status LoadModel(const Section& s, ModelConfig* m) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"hidden", "activation"}));
+  if (s.Has("hidden")) {
+    const YAML::Node h = s.Node("hidden");
+    if (!h.IsSequence()) return s.Error(h, s.Path("hidden"), "expected a list of layer widths");
+    m->hidden.clear();
+    for (const auto& item : h) {
+      int w = 0;
+      if (!item.IsScalar() || !YAML::convert<int>::decode(item, w) || w < 1 || w > 65536) {
+        return s.Error(item, s.Path("hidden"), "expected a width in [1, 65536]");
+      }
+      m->hidden.push_back(w);
+    }
+  }
+  return s.GetEnum<Activation>("activation", &m->activation, ParseActivation, "relu, tanh, gelu");
+}
+
+Status LoadSchedule(const Section& t, ScheduleConfig* sc) {
+  if (!t.Has("schedule")) return Status::Ok();
+  if (t.Node("schedule").IsScalar()) {
+    return t.GetEnum<ScheduleKind>("schedule", &sc->kind, ParseSchedule, "constant, cosine, step");
+  }
+  Section s = t.Child("schedule");
+  CHORUS_RETURN_IF_ERROR(s.Check({"kind", "every_epochs", "factor"}));
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<ScheduleKind>("kind", &sc->kind, ParseSchedule, "constant, cosine, step"));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("every_epochs", &sc->step_every_epochs, "an epoch count", 1, kMaxInt));
+  return s.Get<double>("factor", &sc->step_factor, "a factor", 1e-12, 1.0);
+}
+
+Status LoadTrain(const Section& s, TrainConfig* t) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "optimizer", "schedule"}));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &t->epochs, "an epoch count", 1, 1000000));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("batch_size", &t->batch_size, "a batch size", 1, 1 << 20));
+  CHORUS_RETURN_IF_ERROR(LoadSchedule(s, &t->schedule));
+  if (!s.Has("optimizer")) return Status::Ok();
+  Section o = s.Child("optimizer");
+  OptimizerConfig* op = &t->optimizer;
+  CHORUS_RETURN_IF_ERROR(o.Check({"kind", "lr", "momentum", "nesterov", "weight_decay", "clip_norm"}));
+  std::string kind = "sgd";
+  CHORUS_RETURN_IF_ERROR(o.GetString("kind", &kind));
+  if (kind != "sgd") return o.Error(o.Node("kind"), o.Path("kind"), "expected sgd, found \"" + kind + "\"");
+  CHORUS_RETURN_IF_ERROR(o.Get<double>("lr", &op->lr, "a learning rate", 1e-12, 1e6));
+  CHORUS_RETURN_IF_ERROR(o.Get<double>("momentum", &op->momentum, "a momentum", 0.0, 0.999999));
+  CHORUS_RETURN_IF_ERROR(o.GetBool("nesterov", &op->nesterov));
+  CHORUS_RETURN_IF_ERROR(o.Get<double>("weight_decay", &op->weight_decay, "a decay", 0.0, 1e6));
+  return o.Get<double>("clip_norm", &op->clip_norm, "a gradient norm", 0.0, 1e12);
+}
+
+Status LoadEnsemble(const Section& s, EnsembleConfig* e) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"members", "min_members", "weighting", "temperature"}));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("members", &e->members, "a member count", 1, 100000));
+  e->min_members = e->members;
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("min_members", &e->min_members, "a member count", 1, e->members));
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<Weighting>("weighting", &e->weighting, ParseWeighting, "uniform"));
+  if (!s.Has("temperature")) return Status::Ok();
+  if (s.Node("temperature").IsScalar() && s.Node("temperature").Scalar() == "tune") {
+    e->tune_temperature = true;
+    return Status::Ok();
+  }
+  e->tune_temperature = false;
+  return s.Get<double>("temperature", &e->temperature, "tune or a temperature", 1e-6, 1e6);
+}
+
+Status LoadReport(const Section& s, ReportConfig* r) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"ece_bins", "size_curve_subsets"}));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("ece_bins", &r->ece_bins, "a bin count", 1, 1000));
+  return s.Get<int>("size_curve_subsets", &r->size_curve_subsets, "a subset count", 1, 10000);
+}
+
+Status LoadCompute(const Section& s, ComputeConfig* c) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"threads"}));
+  return s.Get<int>("threads", &c->threads, "a thread count (0 = all cores)", 0, 4096);
+}
+
+Status LoadAll(const YAML::Node& root, const std::string& path, Config* c) {
+  const std::string base = std::filesystem::path(path).parent_path().string();
+  Section top(root, "", path);
+  CHORUS_RETURN_IF_ERROR(top.Check({"run", "data", "model", "train", "ensemble", "report", "compute"}));
+  if (!top.Has("data")) return Status::InvalidInput(path + ": data: required section is missing");
+  if (top.Has("run")) CHORUS_RETURN_IF_ERROR(LoadRun(top.Child("run"), &c->run));
+  CHORUS_RETURN_IF_ERROR(LoadData(top.Child("data"), base.empty() ? "." : base, &c->data));
+  if (top.Has("model")) CHORUS_RETURN_IF_ERROR(LoadModel(top.Child("model"), &c->model));
+  if (top.Has("train")) CHORUS_RETURN_IF_ERROR(LoadTrain(top.Child("train"), &c->train));
+  if (top.Has("ensemble")) CHORUS_RETURN_IF_ERROR(LoadEnsemble(top.Child("ensemble"), &c->ensemble));
+  else c->ensemble.min_members = c->ensemble.members;
+  if (top.Has("report")) CHORUS_RETURN_IF_ERROR(LoadReport(top.Child("report"), &c->report));
+  if (top.Has("compute")) CHORUS_RETURN_IF_ERROR(LoadCompute(top.Child("compute"), &c->compute));
+  return Status::Ok();
+}
+
+void EmitIdx(YAML::Emitter& out, const char* key, const IdxFiles& f) {
+  out << YAML::Key << key << YAML::Value << YAML::Flow << YAML::BeginMap << YAML::Key << "images"
+      << YAML::Value << f.images << YAML::Key << "labels" << YAML::Value << f.labels << YAML::EndMap;
+}
+
+void EmitData(YAML::Emitter& out, const DataConfig& d) {
+  out << YAML::Key << "data" << YAML::Value << YAML::BeginMap;
+  out << YAML::Key << "format" << YAML::Value << d.format;
+  const bool idx = d.format == "idx";
+  if (idx) {
+    EmitIdx(out, "train", d.train_idx);
+    EmitIdx(out, "test", d.test_idx);
+  } else {
+    out << YAML::Key << "train" << YAML::Value << d.train << YAML::Key << "test" << YAML::Value << d.test;
+  }
+  out << YAML::Key << "validation" << YAML::Value << YAML::Flow << YAML::BeginMap;
+  if (!d.validation_file.empty()) out << YAML::Key << "file" << YAML::Value << d.validation_file;
+  else if (!d.validation_idx.images.empty()) {
+    out << YAML::Key << "images" << YAML::Value << d.validation_idx.images << YAML::Key << "labels"
+        << YAML::Value << d.validation_idx.labels;
+  } else out << YAML::Key << "fraction" << YAML::Value << d.validation_fraction;
+  out << YAML::EndMap;
+  if (!idx) out << YAML::Key << "target" << YAML::Value << d.target;
+  out << YAML::Key << "task" << YAML::Value << TaskName(d.task);
+  if (!idx) out << YAML::Key << "categorical" << YAML::Value << YAML::Flow << d.categorical;
+  out << YAML::Key << "max_train_rows" << YAML::Value << d.max_train_rows;
+  out << YAML::Key << "max_test_rows" << YAML::Value << d.max_test_rows;
+  if (!d.true_probabilities.empty()) {
+    out << YAML::Key << "true_probabilities" << YAML::Value << d.true_probabilities;
+  }
+  out << YAML::EndMap;
+}
+
+void EmitTrain(YAML::Emitter& out, const TrainConfig& t) {
+  const OptimizerConfig& o = t.optimizer;
+  out << YAML::Key << "train" << YAML::Value << YAML::BeginMap;
+  out << YAML::Key << "epochs" << YAML::Value << t.epochs;
+  out << YAML::Key << "batch_size" << YAML::Value << t.batch_size;
+  out << YAML::Key << "optimizer" << YAML::Value << YAML::Flow << YAML::BeginMap
+      << YAML::Key << "kind" << YAML::Value << "sgd" << YAML::Key << "lr" << YAML::Value << o.lr
+      << YAML::Key << "momentum" << YAML::Value << o.momentum << YAML::Key << "nesterov"
+      << YAML::Value << o.nesterov << YAML::Key << "weight_decay" << YAML::Value << o.weight_decay
+      << YAML::Key << "clip_norm" << YAML::Value << o.clip_norm << YAML::EndMap;
+  out << YAML::Key << "schedule" << YAML::Value << YAML::Flow << YAML::BeginMap << YAML::Key
+      << "kind" << YAML::Value << ScheduleName(t.schedule.kind);
+  if (t.schedule.kind == ScheduleKind::kStep) {
+    out << YAML::Key << "every_epochs" << YAML::Value << t.schedule.step_every_epochs << YAML::Key
+        << "factor" << YAML::Value << t.schedule.step_factor;
+  }
+  out << YAML::EndMap << YAML::EndMap;
+}
+
+// The model-relevant sections; with `everything`, also names, paths and speed-only settings.
+std::string Emit(const Config& c, bool everything) {
+  YAML::Emitter out;
+  out.SetDoublePrecision(17);
+  out << YAML::BeginMap;
+  out << YAML::Key << "run" << YAML::Value << YAML::BeginMap;
+  if (everything) out << YAML::Key << "name" << YAML::Value << c.run.name;
+  out << YAML::Key << "seed" << YAML::Value << c.run.seed;
+  if (everything) out << YAML::Key << "out_dir" << YAML::Value << c.run.out_dir;
+  out << YAML::EndMap;
+  EmitData(out, c.data);
+  out << YAML::Key << "model" << YAML::Value << YAML::BeginMap << YAML::Key << "hidden"
+      << YAML::Value << YAML::Flow << c.model.hidden << YAML::Key << "activation" << YAML::Value
+      << ActivationName(c.model.activation) << YAML::EndMap;
+  EmitTrain(out, c.train);
+  out << YAML::Key << "ensemble" << YAML::Value << YAML::BeginMap
+      << YAML::Key << "members" << YAML::Value << c.ensemble.members
+      << YAML::Key << "min_members" << YAML::Value << c.ensemble.min_members
+      << YAML::Key << "weighting" << YAML::Value << WeightingName(c.ensemble.weighting)
+      << YAML::Key << "temperature" << YAML::Value;
+  if (c.ensemble.tune_temperature) out << "tune";
+  else out << c.ensemble.temperature;
+  out << YAML::EndMap;
+  out << YAML::Key << "report" << YAML::Value << YAML::BeginMap << YAML::Key << "ece_bins"
+      << YAML::Value << c.report.ece_bins << YAML::Key << "size_curve_subsets" << YAML::Value
+      << c.report.size_curve_subsets << YAML::EndMap;
+  if (everything) {
+    out << YAML::Key << "compute" << YAML::Value << YAML::BeginMap << YAML::Key << "threads"
+        << YAML::Value << c.compute.threads << YAML::EndMap;
+  }
+  out << YAML::EndMap;
+  return std::string(out.c_str()) + "\n";
+}
+
+}  // namespace
+
+std::string ConfigToYaml(const Config& config) { return Emit(config, true); }
+
+std::string ConfigHash(const Config& config) {
+  const std::string text = Emit(config, false);
+  return Sha256Hex(text.data(), text.size());
+}
+
+StatusOr<Config> ParseConfig(const std::string& yaml_text, const std::string& path) {
+  Config config;
+  try {
+    const YAML::Node root = YAML::Load(yaml_text);
+    if (!root.IsMap()) return Status::InvalidInput(path + ": expected a YAML mapping at the top level");
+    CHORUS_RETURN_IF_ERROR(LoadAll(root, path, &config));
+  } catch (const YAML::Exception& e) {
+    return Status::InvalidInput(path + ":" + std::to_string(e.mark.line + 1) + ":" +
+                                std::to_string(e.mark.column + 1) + ": " + e.msg);
+  }
+  return config;
+}
+
+StatusOr<Config> LoadConfigFile(const std::string& path) {
+  CHORUS_ASSIGN_OR_RETURN(std::string text, ReadFileToString(path, 1 << 20));
+  return ParseConfig(text, path);
+}
+
+}  // namespace chorus

@@ -1,0 +1,21 @@
+// `chorus run CONFIG`: load and validate, train every member, assemble, report, all in process.
+// Thread safety: call from one thread.
+#pragma once
+
+#include <string>
+
+namespace chorus {
+
+struct RunOptions {
+  std::string config_path;
+  std::string out_dir;   // overrides run.out_dir when non-empty
+  int threads = -1;      // overrides compute.threads when >= 0
+};
+
+// Returns the process exit code (DESIGN.md): 0 success, 1 internal failure, 2 bad input,
+// 3 too few members finished. Progress goes to stderr, the summary table to stdout, errors to
+// stderr. On failure after the run directory exists, manifest.json says "failed" and why and no
+// report.json is written.
+int RunCommand(const RunOptions& options);
+
+}  // namespace chorus

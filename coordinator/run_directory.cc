@@ -1,0 +1,54 @@
+#include "coordinator/run_directory.h"
+
+#include <sys/stat.h>
+
+#include <cerrno>
+#include <cstring>
+#include <ctime>
+
+#include "common/file_util.h"
+
+namespace chorus {
+namespace {
+
+std::string FormatUtc(const char* format) {
+  const std::time_t now = std::time(nullptr);
+  std::tm tm{};
+  gmtime_r(&now, &tm);
+  char buf[64];
+  std::strftime(buf, sizeof buf, format, &tm);
+  return buf;
+}
+
+}  // namespace
+
+std::string UtcTimestamp() { return FormatUtc("%Y-%m-%dT%H:%M:%SZ"); }
+
+StatusOr<RunDirectory> RunDirectory::Create(const std::string& out_dir, const std::string& name) {
+  CHORUS_RETURN_IF_ERROR(MakeDirectories(out_dir));
+  const std::string stem = out_dir + "/" + name + "-" + FormatUtc("%Y%m%d-%H%M%S");
+  for (int attempt = 1; attempt < 1000; ++attempt) {
+    const std::string path = attempt == 1 ? stem : stem + "-" + std::to_string(attempt);
+    if (::mkdir(path.c_str(), 0755) == 0) {
+      CHORUS_RETURN_IF_ERROR(MakeDirectories(path + "/jobs"));
+      return RunDirectory(path);
+    }
+    if (errno != EEXIST) return Status::Io(path + ": cannot create run directory: " + std::strerror(errno));
+  }
+  return Status::Io(stem + ": too many run directories with this name and time");
+}
+
+StatusOr<std::string> RunDirectory::JobDir(int index) const {
+  const std::string dir = path_ + "/jobs/" + std::to_string(index);
+  CHORUS_RETURN_IF_ERROR(MakeDirectories(dir));
+  return dir;
+}
+
+Status RunDirectory::LogEvent(const std::string& kind, nlohmann::json fields) {
+  nlohmann::json line = {{"time", UtcTimestamp()}, {"event", kind}};
+  line.update(fields);
+  std::lock_guard<std::mutex> lock(events_mutex_);
+  return AppendLine(File("events.jsonl"), line.dump());
+}
+
+}  // namespace chorus

@@ -1,0 +1,39 @@
+// A run directory: where one execution of a config leaves everything it produced
+// (DESIGN.md, "Run directory"). Thread safety: LogEvent may be called from several threads;
+// everything else from one.
+#pragma once
+
+#include <mutex>
+#include <string>
+
+#include <nlohmann/json.hpp>
+
+#include "common/status.h"
+
+namespace chorus {
+
+class RunDirectory {
+ public:
+  // Creates OUT_DIR/NAME-YYYYMMDD-HHMMSS (UTC; "-2", "-3"... appended if taken) with jobs/ inside.
+  static StatusOr<RunDirectory> Create(const std::string& out_dir, const std::string& name);
+
+  const std::string& path() const { return path_; }
+  std::string File(const std::string& name) const { return path_ + "/" + name; }
+  // jobs/<index>/, created on first use.
+  StatusOr<std::string> JobDir(int index) const;
+
+  // Appends {"time": ISO-8601 UTC, "event": kind, ...fields} to events.jsonl.
+  Status LogEvent(const std::string& kind, nlohmann::json fields = nlohmann::json::object());
+
+  RunDirectory(RunDirectory&& other) noexcept : path_(std::move(other.path_)) {}
+
+ private:
+  explicit RunDirectory(std::string path) : path_(std::move(path)) {}
+  std::string path_;
+  std::mutex events_mutex_;
+};
+
+// Now as "2026-12-01T23:45:12Z".
+std::string UtcTimestamp();
+
+}  // namespace chorus

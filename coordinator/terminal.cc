@@ -1,0 +1,86 @@
+#include "coordinator/terminal.h"
+
+#include <unistd.h>
+
+#include <sstream>
+#include <iomanip>
+
+namespace chorus {
+
+ProgressPrinter::ProgressPrinter(FILE* out, int members, int epochs)
+    : out_(out), live_(isatty(fileno(out)) != 0), members_(members), epochs_(epochs),
+      start_(std::chrono::steady_clock::now()) {}
+
+void ProgressPrinter::OnEpoch(const EpochProgress& p) {
+  ++epochs_seen_;
+  const double elapsed = std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
+  const double total = static_cast<double>(members_) * epochs_;
+  const double eta = elapsed / static_cast<double>(epochs_seen_) * (total - epochs_seen_);
+  if (live_) {
+    std::fprintf(out_, "\r\033[K[%d/%d members done] member %d epoch %d/%d loss %.4f  eta %.0fs",
+                 done_, members_, p.member, p.epoch, p.epochs, p.mean_loss, eta);
+  } else {
+    std::fprintf(out_, "member %d epoch %d/%d loss %.6f (%.0f%% of all epochs, eta %.0fs)\n",
+                 p.member, p.epoch, p.epochs, p.mean_loss, 100.0 * epochs_seen_ / total, eta);
+  }
+  std::fflush(out_);
+}
+
+void ProgressPrinter::OnMemberDone(int member, const Status& status) {
+  ++done_;
+  if (!status.ok()) ++failed_;
+  if (live_) std::fputs("\r\033[K", out_);
+  if (status.ok()) {
+    std::fprintf(out_, "member %d finished (%d/%d)\n", member, done_, members_);
+  } else {
+    std::fprintf(out_, "member %d FAILED: %s\n", member, status.ToString().c_str());
+  }
+  std::fflush(out_);
+}
+
+void ProgressPrinter::Finish() {
+  const double elapsed = std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
+  std::fprintf(out_, "trained %d of %d members in %.1fs (%d failed)\n", done_ - failed_, members_,
+               elapsed, failed_);
+}
+
+namespace {
+
+void Row(std::ostringstream& s, const std::string& label, Task task, const Scores& sc) {
+  s << std::left << std::setw(34) << label << std::right << std::fixed << std::setprecision(4);
+  if (task == Task::kClassification) {
+    const ClassificationMetrics& c = sc.classification;
+    s << std::setw(10) << c.accuracy << std::setw(10) << c.nll << std::setw(10) << c.brier
+      << std::setw(10) << c.ece << "\n";
+  } else {
+    const RegressionMetrics& r = sc.regression;
+    s << std::setw(10) << r.rmse << std::setw(10) << r.nll << std::setw(12) << r.coverage_90 << "\n";
+  }
+}
+
+}  // namespace
+
+std::string SummaryTable(const EnsembleEvaluation& ev) {
+  std::ostringstream s;
+  s << std::left << std::setw(34) << "test set" << std::right;
+  if (ev.task == Task::kClassification) {
+    s << std::setw(10) << "accuracy" << std::setw(10) << "nll" << std::setw(10) << "brier"
+      << std::setw(10) << "ece" << "\n";
+  } else {
+    s << std::setw(10) << "rmse" << std::setw(10) << "nll" << std::setw(12) << "coverage_90" << "\n";
+  }
+  const MemberScores& best = ev.members[ev.best_member];
+  Row(s, "mean member (of " + std::to_string(ev.members.size()) + ")", ev.task, ev.mean_member);
+  Row(s, "best member (" + std::to_string(best.index) + ", by validation nll)", ev.task, best.test);
+  Row(s, "ensemble, T = 1", ev.task, ev.test_uncalibrated);
+  std::ostringstream t;
+  t << std::setprecision(3) << std::fixed << ev.temperature;
+  Row(s, "ensemble, tuned T = " + t.str(), ev.task, ev.test);
+  if (ev.bayes_optimal_test_nll) {
+    s << std::fixed << std::setprecision(4) << "Bayes-optimal test nll (true probabilities known): "
+      << *ev.bayes_optimal_test_nll << "\n";
+  }
+  return s.str();
+}
+
+}  // namespace chorus

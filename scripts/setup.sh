@@ -1,0 +1,43 @@
+#!/usr/bin/env bash
+# One-command set-up for a fresh Debian 12 machine, run as root from anywhere:
+#   scripts/setup.sh demo   install what is missing, build, write the invented demo data, run it
+#   scripts/setup.sh test   the same, then the whole test suite (CTest)
+# Idempotent: installed packages are skipped, the build is incremental.
+set -euo pipefail
+mode="${1:-demo}"
+case "$mode" in demo|test) ;; *) echo "usage: $0 demo|test" >&2; exit 2 ;; esac
+cd "$(dirname "$0")/.."
+
+build_packages=(cmake make g++ pkg-config libtbb-dev libeigen3-dev libprotobuf-dev protobuf-compiler
+  libgrpc++-dev protobuf-compiler-grpc libyaml-cpp-dev libcli11-dev nlohmann-json3-dev libssl-dev
+  zlib1g-dev libgtest-dev)
+# Reference libraries and open data the tests check against (scikit-learn, SciPy, PyTorch,
+# Fashion-MNIST).
+test_packages=(python3 python3-numpy python3-scipy python3-sklearn python3-torch dataset-fashion-mnist)
+wanted=("${build_packages[@]}")
+[ "$mode" = test ] && wanted+=("${test_packages[@]}")
+
+missing=()
+for p in "${wanted[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
+done
+if [ ${#missing[@]} -gt 0 ]; then
+  if [ "$(id -u)" != 0 ]; then
+    echo "missing Debian packages: ${missing[*]}; run this script as root to install them" >&2
+    exit 2
+  fi
+  echo "installing: ${missing[*]}"
+  apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq "${missing[@]}"
+fi
+
+jobs="$(nproc)"
+cmake -S . -B build -DCMAKE_BUILD_TYPE=Release
+cmake --build build -j "$jobs"
+
+build/chorus-demo-data data/demo
+build/chorus run configs/demo.yaml --out runs
+
+if [ "$mode" = test ]; then
+  ctest --test-dir build --output-on-failure -j "$jobs" --timeout 900
+fi
