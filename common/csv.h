@@ -15,6 +15,7 @@ namespace chorus {
 // A parsed CSV file. Every row has header.size() fields (ragged rows are an error at parse time).
 struct CsvTable {
   std::string path;                           // for messages
+  int64_t header_line = 1;                    // 1-based line of the header row
   std::vector<std::string> header;            // column names, unique, non-empty
   std::vector<std::vector<std::string>> rows;  // data rows, header excluded
   std::vector<int64_t> lines;                 // 1-based line where each row starts
@@ -23,7 +24,7 @@ struct CsvTable {
 // Parses `text`; `path` is only used in messages ("PATH:LINE:COLUMN: what was expected").
 // Errors (kInvalidInput): empty input, no data rows, duplicate or empty column name, ragged row,
 // unterminated quote, characters after a closing quote. A trailing newline is allowed; blank
-// lines are skipped.
+// lines are skipped; a '"' inside an unquoted field is kept as a literal character.
 StatusOr<CsvTable> ParseCsv(std::string_view text, const std::string& path);
 
 // Reads and parses a file; a missing/unreadable file is kInvalidInput naming the path.

@@ -26,7 +26,8 @@ struct Split {
 };
 
 // Per-feature standardisation fitted on the training split only: x' = (x - mean) / scale, where
-// scale is the population standard deviation, or 1 where that is 0.
+// scale is the population standard deviation, or 1 where that is below 1e-12. One-hot features
+// are standardised like every other feature.
 struct Standardizer {
   std::vector<float> mean;
   std::vector<float> scale;
@@ -56,13 +57,23 @@ struct PreparedData {
 // Loads the files named in `config`, validates them, splits off validation (a seeded fraction of
 // train, shuffled with a generator derived from `run_seed`, or the given file), fits the
 // standardizer and vocabularies on the remaining train rows, and applies them to every split.
-// Errors (kInvalidInput, message "FILE:LINE:COLUMN: ..."): empty file, ragged row, non-numeric
-// value in a numeric column, NaN/inf, missing target or categorical column, a validation or test
-// label never seen in train, IDX header/size mismatch, images/labels count mismatch.
+// Held-out validation: Fisher-Yates over the train row indices with
+// Philox(Derive(run_seed, "validation")); the first max(1, round(fraction * n)) indices become
+// validation. Both validation and the remaining train rows keep their original file order.
+// max_train_rows / max_test_rows keep the first N rows of a file, before the split.
+// CSV features are the train header's columns except the target, in header order; validation and
+// test files are matched by column name (extra columns are ignored). IDX features are each row's
+// elements flattened row-major, named x0, x1, ...
+// Errors (kInvalidInput, message "FILE:LINE:COLUMN: ..." for CSV, "FILE[ROW]: ..." or
+// "FILE: byte B: ..." for IDX): empty file, ragged row, non-numeric value in a numeric column,
+// NaN/inf, empty class label, missing target or categorical column, fewer than 2 classes in
+// train, a validation or test label never seen in train, IDX header/size mismatch, images/labels
+// count mismatch, a bad format or validation fraction in `config`.
 StatusOr<PreparedData> LoadPreparedData(const DataConfig& config, uint64_t run_seed);
 
 // Reads data.true_probabilities: rows x classes matrix whose header must equal class_names (in
 // any order; columns are reordered to class_names) and whose row count must equal test rows.
+// Every value must be a number in [0, 1]; errors name FILE:LINE:COLUMN (kInvalidInput).
 StatusOr<Matrix> LoadTrueProbabilities(const std::string& path, const PreparedData& data);
 
 }  // namespace chorus

@@ -41,6 +41,9 @@ struct RegressionMetrics {
 
 RegressionMetrics ScoreRegression(const GaussianMixture& mixture, const std::vector<double>& targets);
 
+// The `nll` of ScoreRegression alone (no quantile search): cheap enough to call while tuning.
+double MixtureNll(const GaussianMixture& mixture, const std::vector<double>& targets);
+
 // The q-quantile (0 < q < 1) of input i's mixture, by bisection on the mixture CDF to 1e-10 of
 // the interval width.
 double MixtureQuantile(const GaussianMixture& mixture, int64_t i, double q);

@@ -85,7 +85,8 @@ class Section {
   }
 
   Status Error(const YAML::Node& at, const std::string& key, const std::string& what) const {
-    const YAML::Mark m = at.Mark();
+    // A missing key has no position of its own: point at the section that should hold it.
+    const YAML::Mark m = at.IsDefined() ? at.Mark() : node_.IsDefined() ? node_.Mark() : YAML::Mark::null_mark();
     const std::string where = m.is_null() ? file_ : file_ + ":" + std::to_string(m.line + 1) + ":" +
                                                         std::to_string(m.column + 1);
     return Status::InvalidInput(where + ": " + key + ": " + what);

@@ -1,0 +1,137 @@
+#include "common/size_curve.h"
+
+#include <algorithm>
+#include <cassert>
+#include <functional>
+#include <numeric>
+
+#include "common/rng.h"
+
+namespace chorus {
+namespace {
+
+using Subset = std::vector<int>;  // member indices, ascending
+
+// One subset's scores, one entry per metric that the task fills.
+struct SubsetScores {
+  std::vector<double> nll, accuracy, ece, rmse, coverage_90;
+};
+
+// C(n, k) by C(n - k + j, j) = C(n - k + j - 1, j - 1) (n - k + j) / j, or cap + 1 once above cap.
+uint64_t CappedBinomial(int n, int k, uint64_t cap) {
+  uint64_t c = 1;
+  for (int j = 1; j <= k; ++j) {
+    c = c * static_cast<uint64_t>(n - k + j) / static_cast<uint64_t>(j);
+    if (c > cap) return cap + 1;
+  }
+  return c;
+}
+
+// Every k-subset of {0, ..., n-1}, in lexicographic order.
+std::vector<Subset> AllSubsets(int n, int k) {
+  std::vector<Subset> out;
+  Subset s(k);
+  std::iota(s.begin(), s.end(), 0);
+  while (true) {
+    out.push_back(s);
+    int j = k - 1;
+    while (j >= 0 && s[j] == n - k + j) --j;
+    if (j < 0) return out;
+    ++s[j];
+    for (int t = j + 1; t < k; ++t) s[t] = s[t - 1] + 1;
+  }
+}
+
+// Partial Fisher-Yates: for j < k swap slot j with a uniform slot in [j, n); keep slots [0, k).
+Subset RandomSubset(int n, int k, Philox* rng) {
+  Subset perm(n);
+  std::iota(perm.begin(), perm.end(), 0);
+  for (int j = 0; j < k; ++j) {
+    std::swap(perm[j], perm[j + static_cast<int>(rng->NextBelow(static_cast<uint64_t>(n - j)))]);
+  }
+  perm.resize(k);
+  std::sort(perm.begin(), perm.end());
+  return perm;
+}
+
+// Every distinct subset once if there are at most `subsets` of them, else `subsets` random ones.
+std::vector<Subset> ChooseSubsets(int n, int k, int subsets, Philox* rng) {
+  if (CappedBinomial(n, k, subsets) <= static_cast<uint64_t>(subsets)) return AllSubsets(n, k);
+  std::vector<Subset> out;
+  for (int s = 0; s < subsets; ++s) out.push_back(RandomSubset(n, k, rng));
+  return out;
+}
+
+// mean = sum v / n, min, max; all zero for no values.
+Spread Summarise(const std::vector<double>& v) {
+  if (v.empty()) return Spread{};
+  const auto [min, max] = std::minmax_element(v.begin(), v.end());
+  return Spread{std::accumulate(v.begin(), v.end(), 0.0) / v.size(), *min, *max};
+}
+
+template <typename T>
+std::vector<const T*> Pick(const std::vector<const T*>& all, const Subset& subset) {
+  std::vector<const T*> out;
+  for (int m : subset) out.push_back(all[m]);
+  return out;
+}
+
+// For k = 1..members: scores every chosen subset with `score` and summarises each metric.
+std::vector<SizeCurvePoint> SizeCurve(
+    int members, int subsets, uint64_t seed,
+    const std::function<void(const Subset&, SubsetScores*)>& score) {
+  assert(subsets >= 1);
+  Philox rng(seed);
+  std::vector<SizeCurvePoint> curve;
+  for (int k = 1; k <= members; ++k) {
+    SubsetScores scores;
+    for (const Subset& subset : ChooseSubsets(members, k, subsets, &rng)) score(subset, &scores);
+    SizeCurvePoint point;
+    point.members = k;
+    point.nll = Summarise(scores.nll);
+    point.accuracy = Summarise(scores.accuracy);
+    point.ece = Summarise(scores.ece);
+    point.rmse = Summarise(scores.rmse);
+    point.coverage_90 = Summarise(scores.coverage_90);
+    curve.push_back(point);
+  }
+  return curve;
+}
+
+}  // namespace
+
+std::vector<SizeCurvePoint> ClassificationSizeCurve(
+    const std::vector<const Matrix*>& validation_logits,
+    const std::vector<int32_t>& validation_labels, const std::vector<const Matrix*>& test_logits,
+    const std::vector<int32_t>& test_labels, int subsets, int ece_bins, uint64_t seed) {
+  assert(validation_logits.size() == test_logits.size());
+  const auto score = [&](const Subset& subset, SubsetScores* scores) {
+    const std::vector<double> weights(subset.size(), 1.0 / subset.size());
+    const double t = TuneTemperature(Pick(validation_logits, subset), weights, validation_labels);
+    const ClassificationMetrics metrics = ScoreClassification(
+        MixtureProbabilities(Pick(test_logits, subset), weights, t), test_labels, ece_bins);
+    scores->nll.push_back(metrics.nll);
+    scores->accuracy.push_back(metrics.accuracy);
+    scores->ece.push_back(metrics.ece);
+  };
+  return SizeCurve(static_cast<int>(test_logits.size()), subsets, seed, score);
+}
+
+std::vector<SizeCurvePoint> RegressionSizeCurve(
+    const std::vector<const MemberGaussian*>& validation,
+    const std::vector<double>& validation_targets, const std::vector<const MemberGaussian*>& test,
+    const std::vector<double>& test_targets, int subsets, uint64_t seed) {
+  assert(validation.size() == test.size());
+  const auto score = [&](const Subset& subset, SubsetScores* scores) {
+    const std::vector<double> weights(subset.size(), 1.0 / subset.size());
+    const double s = TuneStddevScale(Pick(validation, subset), weights, validation_targets);
+    const RegressionMetrics metrics =
+        ScoreRegression(MixtureGaussians(Pick(test, subset), weights, s), test_targets);
+    scores->nll.push_back(metrics.nll);
+    scores->rmse.push_back(metrics.rmse);
+    scores->coverage_90.push_back(metrics.coverage_90);
+  };
+  return SizeCurve(static_cast<int>(test.size()), subsets, seed, score);
+}
+
+}  // namespace chorus

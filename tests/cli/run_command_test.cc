@@ -1,0 +1,171 @@
+// End-to-end tests of `chorus run`: the real executable on the invented demo data, small sizes.
+#include <gtest/gtest.h>
+
+#include <filesystem>
+#include <map>
+
+#include <nlohmann/json.hpp>
+
+#include "tests/testing/process.h"
+#include "tests/testing/reference.h"
+
+namespace chorus {
+namespace {
+
+namespace fs = std::filesystem;
+using testing::RunShell;
+
+// A temp dir with small demo data (1200 train / 400 test rows) and a config writer.
+class RunCommandTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = testing::MakeTempDir("chorus-run");
+    const auto r = RunShell(testing::BinaryPath("chorus-demo-data") + " " + dir_ +
+                          "/data --train-rows 1200 --test-rows 400");
+    ASSERT_EQ(r.exit_code, 0) << r.output;
+  }
+  void TearDown() override {
+    if (!HasFailure()) fs::remove_all(dir_);
+  }
+
+  // Writes a classification config with `extra` appended (YAML), returns its path.
+  std::string WriteConfig(const std::string& name, const std::string& extra,
+                          const std::string& train = "data/alarms_train.csv") {
+    const std::string path = dir_ + "/" + name + ".yaml";
+    testing::WriteTextFile(path, "run: {name: " + name + ", seed: 3}\n"
+        "data: {train: " + train + ", test: data/alarms_test.csv, target: cause,\n"
+        "       categorical: [station], true_probabilities: data/alarms_test_probabilities.csv}\n"
+        "model: {hidden: [16]}\n" + extra);
+    return path;
+  }
+
+  testing::CommandResult Chorus(const std::string& args) {
+    return RunShell(testing::BinaryPath("chorus") + " " + args, 300);
+  }
+
+  // The only run directory under `out`, or "" if there is not exactly one.
+  static std::string OnlyRunDir(const std::string& out) {
+    std::vector<fs::path> dirs;
+    if (fs::exists(out)) {
+      for (const auto& e : fs::directory_iterator(out)) dirs.push_back(e.path());
+    }
+    return dirs.size() == 1 ? dirs[0].string() : "";
+  }
+
+  static std::map<std::string, std::string> JobResults(const std::string& run_dir) {
+    std::map<std::string, std::string> bytes;
+    for (const auto& e : fs::recursive_directory_iterator(run_dir + "/jobs")) {
+      if (e.path().filename() == "result.pb") {
+        bytes[fs::relative(e.path(), run_dir).string()] = testing::ReadTextFile(e.path().string());
+      }
+    }
+    return bytes;
+  }
+
+  std::string dir_;
+};
+
+TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
+  const auto r = Chorus("run " + WriteConfig("core", "train: {epochs: 4, batch_size: 32}\n"
+                                           "ensemble: {members: 3}\n") + " --out " + dir_ + "/runs");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  EXPECT_NE(r.output.find("ensemble, tuned T"), std::string::npos) << r.output;
+  const std::string run = OnlyRunDir(dir_ + "/runs");
+  ASSERT_FALSE(run.empty());
+  for (const char* f : {"config.yaml", "manifest.json", "events.jsonl", "report.json", "report.html"}) {
+    EXPECT_TRUE(fs::exists(run + "/" + f)) << f;
+  }
+  EXPECT_EQ(JobResults(run).size(), 3u);
+  const auto report = nlohmann::json::parse(testing::ReadTextFile(run + "/report.json"));
+  for (const char* key : {"accuracy", "nll", "brier", "ece"}) {
+    EXPECT_TRUE(report["ensemble"]["test"].contains(key)) << key;
+    EXPECT_TRUE(report["ensemble"]["test_uncalibrated"].contains(key)) << key;
+    EXPECT_TRUE(report["members"][0]["test"].contains(key)) << key;
+  }
+  double weight_sum = 0;
+  for (double w : report["weights"]) weight_sum += w;
+  EXPECT_NEAR(weight_sum, 1.0, 1e-12);
+  EXPECT_EQ(report["size_curve"].size(), 3u);
+  EXPECT_EQ(report["data_hash"].get<std::string>().size(), 64u);
+  EXPECT_EQ(report["config_hash"].get<std::string>().size(), 64u);
+  // Jensen's inequality: -ln(mean_m p_m) <= mean_m(-ln p_m), so the uniform mixture at T = 1 can
+  // never have a higher NLL than the mean member.
+  EXPECT_LE(report["ensemble"]["test_uncalibrated"]["nll"].get<double>(),
+            report["mean_member"]["test"]["nll"].get<double>() + 1e-12);
+  // No model can beat the true probabilities in expectation; 400 rows leave sampling noise, so
+  // this only checks the order of magnitude: the ensemble is not implausibly good.
+  EXPECT_GT(report["ensemble"]["test"]["nll"].get<double>(),
+            report["bayes_optimal_test_nll"].get<double>() - 0.1);
+  const auto manifest = nlohmann::json::parse(testing::ReadTextFile(run + "/manifest.json"));
+  EXPECT_EQ(manifest["status"], "complete");
+}
+
+TEST_F(RunCommandTest, ResultBytesAreIdenticalAcrossRepeatsAndThreadCounts) {
+  const std::string cfg = WriteConfig("det", "train: {epochs: 3, batch_size: 50}\nensemble: {members: 3}\n");
+  std::vector<std::map<std::string, std::string>> runs;
+  for (const char* threads : {"1", "2", "2"}) {
+    const std::string out = dir_ + "/runs-" + std::to_string(runs.size());
+    const auto r = Chorus("run " + cfg + " --threads " + threads + " --out " + out);
+    ASSERT_EQ(r.exit_code, 0) << r.output;
+    runs.push_back(JobResults(OnlyRunDir(out)));
+  }
+  ASSERT_EQ(runs[0].size(), 3u);
+  EXPECT_TRUE(runs[0] == runs[1]) << "1 thread vs 2 threads";
+  EXPECT_TRUE(runs[1] == runs[2]) << "same config twice";
+}
+
+TEST_F(RunCommandTest, DivergingMembersFailWithTheirCauseAndTooFewMeansExitThree) {
+  const auto r = Chorus("run " + WriteConfig("nan", "train: {epochs: 2, optimizer: {lr: 1.0e+5}}\n"
+                                           "ensemble: {members: 2, min_members: 1}\n") +
+                      " --out " + dir_ + "/runs");
+  EXPECT_EQ(r.exit_code, 3) << r.output;
+  EXPECT_NE(r.output.find("diverged"), std::string::npos) << r.output;
+  const std::string run = OnlyRunDir(dir_ + "/runs");
+  ASSERT_FALSE(run.empty());
+  EXPECT_FALSE(fs::exists(run + "/report.json"));
+  const auto manifest = nlohmann::json::parse(testing::ReadTextFile(run + "/manifest.json"));
+  EXPECT_EQ(manifest["status"], "failed");
+}
+
+struct BadRun {
+  const char* name;
+  const char* train_csv;  // contents of the training file ("" = use the good demo file)
+  const char* extra;      // YAML appended to the config
+  const char* expected;   // substring of the message naming the place
+};
+
+#define CHORUS_DEMO_HEADER \
+  "station,vibration_mm_s,motor_temp_c,discharge_bar,flow_l_s,current_a,days_since_service,cause\n"
+
+// Table-driven: each bad input exits 2 with a message naming the place, and leaves no run
+// directory behind (so nothing can claim success).
+TEST_F(RunCommandTest, BadInputExitsTwoNamingThePlaceAndLeavesNoRunDirectory) {
+  const BadRun cases[] = {
+      BadRun{"EmptyFile", " ", "", "bad.csv"},
+      BadRun{"RaggedRow", CHORUS_DEMO_HEADER "fenside,1,2,3,4,5,6,x\nfenside,1,2\n", "", "bad.csv:3"},
+      BadRun{"NonNumeric", CHORUS_DEMO_HEADER "fenside,1,2,3,4,5,6,x\nfenside,1,abc,3,4,5,6,y\n", "",
+             "bad.csv:3:3"},
+      BadRun{"NaN", CHORUS_DEMO_HEADER "fenside,1,2,3,4,5,6,x\nfenside,1,2,3,4,nan,6,y\n", "",
+             "bad.csv:3:6"},
+      BadRun{"TestLabelNotInTrain", CHORUS_DEMO_HEADER "fenside,1,2,3,4,5,6,electrical\n"
+             "fenside,1,2,3,4,5,7,electrical\nfenside,1,2,3,4,5,6,cavitation\n", "",
+             "alarms_test.csv:"},
+      BadRun{"MissingTarget", "a,b,c\n1,2,3\n", "", "cause"},
+      BadRun{"UnknownConfigKey", "", "trian: {epochs: 1}\n", "bad.yaml:5:1: trian: unknown key"},
+      BadRun{"WrongConfigType", "", "train: {epochs: lots}\n", "bad.yaml:5:17: train.epochs"}};
+  for (const BadRun& c : cases) {
+    SCOPED_TRACE(c.name);
+    std::string train = "data/alarms_train.csv";
+    if (*c.train_csv) {
+      train = "bad.csv";
+      testing::WriteTextFile(dir_ + "/bad.csv", c.train_csv);
+    }
+    const auto r = Chorus("run " + WriteConfig("bad", c.extra, train) + " --out " + dir_ + "/runs");
+    EXPECT_EQ(r.exit_code, 2) << r.output;
+    EXPECT_NE(r.output.find(c.expected), std::string::npos) << r.output;
+    EXPECT_FALSE(fs::exists(dir_ + "/runs"));
+  }
+}
+
+}  // namespace
+}  // namespace chorus
