@@ -7,8 +7,8 @@
 namespace chorus {
 namespace {
 
-// Known-answer vectors for Philox4x32-10 from Random123's kat_vectors file (Salmon et al., SC 2011),
-// as remembered: counter = key = 0, and the "pi digits" vector.
+// Known-answer vectors for Philox4x32-10 from Random123's kat_vectors file (Salmon et al., SC
+// 2011), as remembered: counter = key = 0, and the "pi digits" vector.
 TEST(RngTest, Philox4x32x10MatchesPublishedKnownAnswers) {
   EXPECT_EQ(Philox4x32x10({0, 0, 0, 0}, {0, 0}),
             (std::array<uint32_t, 4>{0x6627e8d5u, 0xe169c58du, 0xbc57ac4cu, 0x9b00dbd8u}));
