@@ -53,9 +53,11 @@ Alarm Draw(chorus::Philox& rng) {
       1.5 * a.current + 0.8 * a.temp - 0.4 * a.vib,
       -1.3 * a.flow + 0.9 * a.pressure + 0.5 * a.current,
       0.2 + 1.1 * std::fabs(a.temp - a.current) - 0.3 * a.days * a.days};
+  // p = softmax(kSharpness * logit): larger sharpness, less label noise.
+  constexpr double kSharpness = 1.8;
   double max = logit[0], sum = 0;
   for (double l : logit) max = std::max(max, l);
-  for (size_t k = 0; k < logit.size(); ++k) sum += a.probs[k] = std::exp(logit[k] - max);
+  for (size_t k = 0; k < logit.size(); ++k) sum += a.probs[k] = std::exp(kSharpness * (logit[k] - max));
   for (double& p : a.probs) p /= sum;
   // Sample the cause from the true probabilities by inverting their cumulative sum.
   const double u = rng.NextUniform();
