@@ -10,11 +10,10 @@
 #include <cstdint>
 #include <vector>
 
+#include "common/config.h"
 #include "common/matrix.h"
 
 namespace chorus {
-
-enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank };
 
 class SnapshotMoments {
  public:

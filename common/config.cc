@@ -22,7 +22,23 @@ const char* ScheduleName(ScheduleKind s) {
   return "?";
 }
 
-const char* WeightingName(Weighting) { return "uniform"; }
+const char* WeightingName(Weighting w) {
+  switch (w) {
+    case Weighting::kUniform: return "uniform";
+    case Weighting::kStacking: return "stacking";
+    case Weighting::kGreedy: return "greedy";
+  }
+  return "?";
+}
+
+const char* BasinMethodName(BasinMethod m) {
+  switch (m) {
+    case BasinMethod::kNone: return "none";
+    case BasinMethod::kGaussianDiag: return "gaussian_diag";
+    case BasinMethod::kGaussianLowRank: return "gaussian_lowrank";
+  }
+  return "?";
+}
 
 std::optional<Task> ParseTask(const std::string& s) {
   if (s == "classification") return Task::kClassification;
@@ -46,6 +62,15 @@ std::optional<ScheduleKind> ParseSchedule(const std::string& s) {
 
 std::optional<Weighting> ParseWeighting(const std::string& s) {
   if (s == "uniform") return Weighting::kUniform;
+  if (s == "stacking") return Weighting::kStacking;
+  if (s == "greedy") return Weighting::kGreedy;
+  return std::nullopt;
+}
+
+std::optional<BasinMethod> ParseBasinMethod(const std::string& s) {
+  if (s == "none") return BasinMethod::kNone;
+  if (s == "gaussian_diag") return BasinMethod::kGaussianDiag;
+  if (s == "gaussian_lowrank") return BasinMethod::kGaussianLowRank;
   return std::nullopt;
 }
 

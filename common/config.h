@@ -14,7 +14,8 @@ namespace chorus {
 enum class Task { kClassification, kRegression };
 enum class Activation { kRelu, kTanh, kGelu };
 enum class ScheduleKind { kConstant, kCosine, kStep };
-enum class Weighting { kUniform };
+enum class Weighting { kUniform, kStacking, kGreedy };
+enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank };
 
 struct RunConfig {
   std::string name = "run";       // run directory prefix: [A-Za-z0-9._-]+, required
@@ -75,10 +76,27 @@ struct TrainConfig {
   ScheduleConfig schedule;
 };
 
+// Basin fits (ensemble.basin): after normal training, SGD continues at the constant rate `lr` for
+// `epochs`, taking `snapshots` evenly spaced snapshots of the weights, from which a Gaussian is fitted
+// (common/basin_fit.h) and `samples` weight vectors are drawn, from seeds derived from the member's.
+struct BasinConfig {
+  BasinMethod method = BasinMethod::kNone;  // none | gaussian_diag | gaussian_lowrank
+  int epochs = 5;               // extra epochs at the constant rate, >= 1
+  double lr = 0.01;             // the constant rate, > 0
+  int snapshots = 20;           // snapshots over those epochs, >= 2
+  int rank = 10;                // gaussian_lowrank: deviation vectors kept, in [2, snapshots]
+  int samples = 10;             // weight samples per member, >= 1
+  double scale = 1.0;           // multiplies the fitted covariance, > 0
+};
+
 struct EnsembleConfig {
   int members = 5;              // independently seeded trainings, >= 1
   int min_members = 1;          // fewest finished members for assembly to go ahead, in [1, members]
+  BasinConfig basin;
+  // uniform | stacking (Yao et al. 2018) | greedy (Caruana et al. 2004); learned on validation at
+  // temperature 1, before the temperature is tuned on the weighted mixture.
   Weighting weighting = Weighting::kUniform;
+  int greedy_rounds = 20;       // greedy: members added (with replacement), >= 1
   bool tune_temperature = true; // "tune": minimise validation NLL over log T
   double temperature = 1.0;     // used when tune_temperature is false; > 0
 };
@@ -108,9 +126,11 @@ const char* TaskName(Task t);
 const char* ActivationName(Activation a);
 const char* ScheduleName(ScheduleKind s);
 const char* WeightingName(Weighting w);
+const char* BasinMethodName(BasinMethod m);
 std::optional<Task> ParseTask(const std::string& s);
 std::optional<Activation> ParseActivation(const std::string& s);
 std::optional<ScheduleKind> ParseSchedule(const std::string& s);
 std::optional<Weighting> ParseWeighting(const std::string& s);
+std::optional<BasinMethod> ParseBasinMethod(const std::string& s);
 
 }  // namespace chorus

@@ -1,5 +1,12 @@
 // Assembling finished members into the ensemble and scoring everything on test: each member, the
-// mean and best member, the ensemble before and after temperature, and the size curve.
+// mean and best member, the ensemble before and after temperature, its uncertainty split, and the
+// size grid (members x samples).
+//
+// Order of assembly, and why: member weights are learned first, on validation at temperature 1
+// (uniform, stacking or greedy: common/weighting.h); then one temperature is tuned on validation
+// for the weighted mixture. Weights decide which members to trust; the temperature then fixes the
+// mixture's overall sharpness, a 1-D correction that cannot undo a bad weighting but does correct
+// the over- or under-confidence the weighting leaves. Each member's samples share its weight equally.
 // Thread safety: free functions, reentrant.
 #pragma once
 
@@ -25,19 +32,36 @@ struct Scores {
 struct MemberScores {
   int index = 0;
   uint64_t seed = 0;
-  Scores test;             // the member alone, temperature 1
+  int samples = 1;
+  Scores test;             // the member alone (average over its samples), temperature 1
+  Scores test_point;       // the trained point alone, before any basin phase, temperature 1
   double validation_nll = 0;
+};
+
+// Test averages of the per-input uncertainty split (nats for classification, squared target
+// units for regression), and for classification how well each part flags wrong predictions.
+struct UncertaintySummary {
+  double total = 0, aleatoric = 0, epistemic = 0;
+  double auroc_total = 0, auroc_aleatoric = 0, auroc_epistemic = 0;  // classification only
+  std::vector<double> coverages;            // 0.50, 0.55, ..., 1.00
+  std::vector<double> selective_accuracy;   // accuracy on the most confident c of inputs
 };
 
 struct EnsembleEvaluation {
   Task task = Task::kClassification;
-  std::vector<double> weights;   // one per member, summing to 1 (uniform for now)
+  Weighting weighting = Weighting::kUniform;
+  std::vector<double> weights;   // one per member, summing to 1
+  double validation_nll_weighted = 0;  // validation NLL of the weighted mixture at T = 1
   double temperature = 1.0;      // classification: logits / T; regression: stddev * T
   Scores test;                   // ensemble, calibrated
   Scores test_uncalibrated;      // ensemble, T = 1
+  // With basin fits: the same members' trained points alone, assembled the same way (own weights
+  // and temperature), so the gain from sampling is visible at equal seeds.
+  std::optional<Scores> test_without_basin;
   std::vector<MemberScores> members;
   Scores mean_member;            // metric-wise mean over members
   int best_member = 0;           // position in `members` with the lowest validation NLL
+  UncertaintySummary uncertainty;
   std::vector<SizeCurvePoint> size_curve;
   std::optional<double> bayes_optimal_test_nll;  // when true class probabilities are known
 };
@@ -46,8 +70,9 @@ struct EnsembleEvaluation {
 // the standardised target: mean = mu * scale + shift, stddev = exp(s / 2) * scale.
 MemberGaussian ToGaussian(const Matrix& outputs, const PreparedData& data);
 
-// Requires at least one member; every member's outputs match the data's validation/test rows.
-// true_probabilities: optional test rows x classes matrix of the data's true class probabilities.
+// Requires at least one member; every member's outputs match the data's validation/test rows and
+// every member has the same number of samples. true_probabilities: optional test rows x classes
+// matrix of the data's true class probabilities.
 EnsembleEvaluation EvaluateEnsemble(const PreparedData& data, const std::vector<MemberResult>& members,
                                     const EnsembleConfig& ensemble, const ReportConfig& report,
                                     uint64_t seed, const Matrix* true_probabilities);

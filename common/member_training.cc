@@ -34,25 +34,29 @@ class SgdRun {
     net_.Initialize(Derive(spec.seed, "init"), params_.data());
   }
 
-  // One epoch over the shuffled training rows; returns the mean minibatch loss.
-  StatusOr<double> Epoch(int epoch) {
+  // One epoch over the shuffled training rows at the learning rate lr_at(step) (step counts from
+  // the start of this epoch); calls after_step(step) after each update. Returns the mean loss.
+  template <typename LrFn, typename AfterStepFn>
+  StatusOr<double> Epoch(int epoch, const LrFn& lr_at, const AfterStepFn& after_step) {
     ShuffleForEpoch(spec_.seed, epoch, order_);
     const int64_t n = data_.train.rows();
-    const int64_t steps_per_epoch = (n + batch_ - 1) / batch_;
     double loss_sum = 0.0;
-    for (int64_t start = 0, s = 0; start < n; start += batch_, ++s) {
+    int64_t steps = 0;
+    for (int64_t start = 0; start < n; start += batch_, ++steps) {
       const int64_t rows = std::min(batch_, n - start);
       Gather(start, rows);
-      const double loss = Step(rows, spec_.train.optimizer, steps_per_epoch * epoch + s, steps_per_epoch);
+      const double loss = Step(rows, static_cast<float>(lr_at(steps)));
       if (!std::isfinite(loss)) {
         return Status::Diverged("epoch " + std::to_string(epoch + 1) + ", step " +
-                                std::to_string(s + 1) + ": training loss is " + std::to_string(loss));
+                                std::to_string(steps + 1) + ": training loss is " + std::to_string(loss));
       }
       loss_sum += loss;
+      after_step(steps);
     }
-    return loss_sum / static_cast<double>(steps_per_epoch);
+    return loss_sum / static_cast<double>(steps);
   }
 
+  int64_t StepsPerEpoch() const { return (data_.train.rows() + batch_ - 1) / batch_; }
   const Mlp& net() const { return net_; }
   std::vector<float>& params() { return params_; }
 
@@ -67,7 +71,7 @@ class SgdRun {
     }
   }
 
-  double Step(int64_t rows, const OptimizerConfig& opt, int64_t step, int64_t steps_per_epoch) {
+  double Step(int64_t rows, float lr) {
     auto x = xb_.topRows(rows);
     auto out = net_.Forward(params_.data(), x, ws_);
     auto g_out = grad_out_.topRows(rows);
@@ -77,9 +81,9 @@ class SgdRun {
     if (!std::isfinite(loss)) return loss;
     net_.Backward(params_.data(), x, g_out, ws_, grad_.data());
     const int64_t p = net_.ParameterCount();
+    const OptimizerConfig& opt = spec_.train.optimizer;
     ClipGradientNorm(grad_.data(), p, opt.clip_norm);
-    const double lr = ScheduledLearningRate(spec_.train, step, steps_per_epoch);
-    SgdStep(opt, static_cast<float>(lr), p, grad_.data(), params_.data(), velocity_.data());
+    SgdStep(opt, lr, p, grad_.data(), params_.data(), velocity_.data());
     return loss;
   }
 
@@ -115,6 +119,75 @@ Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef&
   return out;
 }
 
+std::vector<const Matrix*> MemberResult::ValidationSamples() const {
+  if (sample_validation_outputs.empty()) return {&validation_outputs};
+  std::vector<const Matrix*> out;
+  for (const Matrix& m : sample_validation_outputs) out.push_back(&m);
+  return out;
+}
+
+std::vector<const Matrix*> MemberResult::TestSamples() const {
+  if (sample_test_outputs.empty()) return {&test_outputs};
+  std::vector<const Matrix*> out;
+  for (const Matrix& m : sample_test_outputs) out.push_back(&m);
+  return out;
+}
+
+uint64_t BasinSampleSeed(uint64_t member_seed, int sample) {
+  return Derive(Derive(member_seed, "basin_sample"), static_cast<uint64_t>(sample));
+}
+
+namespace {
+
+// Continues SGD at the constant basin rate, adding snapshot j (j = 0..K-1) after global basin step
+// floor((j + 1) * T / K) - 1 of T steps, then fits the basin.
+Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& progress,
+                     MemberResult& result) {
+  const BasinConfig& b = spec.basin;
+  const int64_t per_epoch = run.StepsPerEpoch(), total = per_epoch * b.epochs;
+  SnapshotMoments moments(run.net().ParameterCount(), b.method == BasinMethod::kGaussianLowRank ? b.rank : 0);
+  int next_snapshot = 0;
+  auto snapshot_step = [&](int j) { return (int64_t{j} + 1) * total / b.snapshots - 1; };
+  for (int e = 0; e < b.epochs; ++e) {
+    const int64_t base = per_epoch * e;
+    auto after_step = [&](int64_t step) {
+      while (next_snapshot < b.snapshots && snapshot_step(next_snapshot) == base + step) {
+        moments.Add(run.params().data());
+        ++next_snapshot;
+      }
+    };
+    StatusOr<double> loss = run.Epoch(spec.train.epochs + e, [&](int64_t) { return b.lr; }, after_step);
+    if (!loss.ok()) return loss.status().WithContext("basin phase");
+    result.epoch_loss.push_back(loss.value());
+    const int epochs = spec.train.epochs + b.epochs;
+    if (progress) progress({spec.index, spec.train.epochs + e + 1, epochs, loss.value()});
+  }
+  result.basin = FitBasin(moments, b.method);
+  return Status::Ok();
+}
+
+// Every basin sample's outputs on validation and test.
+void PredictSamples(const MemberSpec& spec, const Mlp& net, const PreparedData& data,
+                    MemberResult& result) {
+  std::vector<float> w(net.ParameterCount());
+  for (int s = 0; s < spec.basin.samples; ++s) {
+    const uint64_t seed = BasinSampleSeed(spec.seed, s);
+    DrawBasinSample(result.basin, seed, spec.basin.scale, w.data());
+    result.sample_seeds.push_back(seed);
+    result.sample_validation_outputs.push_back(PredictOutputs(net, w.data(), data.validation.x));
+    result.sample_test_outputs.push_back(PredictOutputs(net, w.data(), data.test.x));
+  }
+}
+
+bool AllFinite(const MemberResult& r) {
+  if (!r.validation_outputs.allFinite() || !r.test_outputs.allFinite()) return false;
+  for (const Matrix& m : r.sample_validation_outputs) if (!m.allFinite()) return false;
+  for (const Matrix& m : r.sample_test_outputs) if (!m.allFinite()) return false;
+  return true;
+}
+
+}  // namespace
+
 StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
                                    const ProgressFn& progress) {
   const std::string where = "member " + std::to_string(spec.index);
@@ -123,18 +196,26 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   MemberResult result;
   result.index = spec.index;
   result.seed = spec.seed;
+  const bool basin = spec.basin.method != BasinMethod::kNone;
+  const int all_epochs = spec.train.epochs + (basin ? spec.basin.epochs : 0);
+  const int64_t per_epoch = run.StepsPerEpoch();
   for (int epoch = 0; epoch < spec.train.epochs; ++epoch) {
-    StatusOr<double> loss = run.Epoch(epoch);
+    auto lr_at = [&](int64_t step) {
+      return ScheduledLearningRate(spec.train, per_epoch * epoch + step, per_epoch);
+    };
+    StatusOr<double> loss = run.Epoch(epoch, lr_at, [](int64_t) {});
     if (!loss.ok()) return loss.status().WithContext(where);
     result.epoch_loss.push_back(loss.value());
-    if (progress) progress({spec.index, epoch + 1, spec.train.epochs, loss.value()});
+    if (progress) progress({spec.index, epoch + 1, all_epochs, loss.value()});
   }
   result.validation_outputs = PredictOutputs(run.net(), run.params().data(), data.validation.x);
   result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x);
-  if (!result.validation_outputs.allFinite() || !result.test_outputs.allFinite()) {
-    return Status::Diverged(where + ": a prediction is not finite");
+  result.parameters = run.params();
+  if (basin) {
+    CHORUS_RETURN_IF_ERROR(RunBasinPhase(spec, run, progress, result).WithContext(where));
+    PredictSamples(spec, run.net(), data, result);
   }
-  result.parameters = std::move(run.params());
+  if (!AllFinite(result)) return Status::Diverged(where + ": a prediction is not finite");
   return result;
 }
 

@@ -69,69 +69,111 @@ Spread Summarise(const std::vector<double>& v) {
   return Spread{std::accumulate(v.begin(), v.end(), 0.0) / v.size(), *min, *max};
 }
 
+// The first `samples` samples of each member in `subset`, as one flat component list.
 template <typename T>
-std::vector<const T*> Pick(const std::vector<const T*>& all, const Subset& subset) {
+std::vector<const T*> Pick(const std::vector<std::vector<const T*>>& all, const Subset& subset,
+                           int samples) {
   std::vector<const T*> out;
-  for (int m : subset) out.push_back(all[m]);
+  for (int m : subset) out.insert(out.end(), all[m].begin(), all[m].begin() + samples);
   return out;
 }
 
-// For k = 1..members: scores every chosen subset with `score` and summarises each metric.
-std::vector<SizeCurvePoint> SizeCurve(
-    int members, int subsets, uint64_t seed,
-    const std::function<void(const Subset&, SubsetScores*)>& score) {
+template <typename T>
+std::vector<std::vector<const T*>> OneSampleEach(const std::vector<const T*>& members) {
+  std::vector<std::vector<const T*>> out;
+  for (const T* m : members) out.push_back({m});
+  return out;
+}
+
+// For s in SampleGrid(samples), k = 1..members: scores every chosen subset with
+// score(subset, s) and summarises each metric. Subsets for each (k, s) come from one stream.
+std::vector<SizeCurvePoint> SizeGrid(
+    int members, int samples, int subsets, uint64_t seed,
+    const std::function<void(const Subset&, int, SubsetScores*)>& score) {
   assert(subsets >= 1);
   Philox rng(seed);
   std::vector<SizeCurvePoint> curve;
-  for (int k = 1; k <= members; ++k) {
-    SubsetScores scores;
-    for (const Subset& subset : ChooseSubsets(members, k, subsets, &rng)) score(subset, &scores);
-    SizeCurvePoint point;
-    point.members = k;
-    point.nll = Summarise(scores.nll);
-    point.accuracy = Summarise(scores.accuracy);
-    point.ece = Summarise(scores.ece);
-    point.rmse = Summarise(scores.rmse);
-    point.coverage_90 = Summarise(scores.coverage_90);
-    curve.push_back(point);
+  for (int s : SampleGrid(samples)) {
+    for (int k = 1; k <= members; ++k) {
+      SubsetScores scores;
+      for (const Subset& subset : ChooseSubsets(members, k, subsets, &rng)) score(subset, s, &scores);
+      SizeCurvePoint point;
+      point.members = k;
+      point.samples = s;
+      point.nll = Summarise(scores.nll);
+      point.accuracy = Summarise(scores.accuracy);
+      point.ece = Summarise(scores.ece);
+      point.rmse = Summarise(scores.rmse);
+      point.coverage_90 = Summarise(scores.coverage_90);
+      curve.push_back(point);
+    }
   }
   return curve;
 }
 
 }  // namespace
 
-std::vector<SizeCurvePoint> ClassificationSizeCurve(
-    const std::vector<const Matrix*>& validation_logits,
-    const std::vector<int32_t>& validation_labels, const std::vector<const Matrix*>& test_logits,
-    const std::vector<int32_t>& test_labels, int subsets, int ece_bins, uint64_t seed) {
-  assert(validation_logits.size() == test_logits.size());
-  const auto score = [&](const Subset& subset, SubsetScores* scores) {
-    const std::vector<double> weights(subset.size(), 1.0 / subset.size());
-    const double t = TuneTemperature(Pick(validation_logits, subset), weights, validation_labels);
+std::vector<int> SampleGrid(int samples) {
+  std::vector<int> grid;
+  for (int decade = 1; decade <= samples; decade *= 10) {
+    for (int step : {1, 2, 5}) {
+      if (step * decade < samples) grid.push_back(step * decade);
+    }
+  }
+  grid.push_back(samples);
+  return grid;
+}
+
+std::vector<SizeCurvePoint> ClassificationSizeGrid(
+    const MemberSamples& validation_logits, const std::vector<int32_t>& validation_labels,
+    const MemberSamples& test_logits, const std::vector<int32_t>& test_labels, int subsets,
+    int ece_bins, uint64_t seed) {
+  assert(validation_logits.size() == test_logits.size() && !test_logits.empty());
+  const auto score = [&](const Subset& subset, int samples, SubsetScores* scores) {
+    const std::vector<double> weights(subset.size() * samples, 1.0 / (subset.size() * samples));
+    const double t = TuneTemperature(Pick(validation_logits, subset, samples), weights, validation_labels);
     const ClassificationMetrics metrics = ScoreClassification(
-        MixtureProbabilities(Pick(test_logits, subset), weights, t), test_labels, ece_bins);
+        MixtureProbabilities(Pick(test_logits, subset, samples), weights, t), test_labels, ece_bins);
     scores->nll.push_back(metrics.nll);
     scores->accuracy.push_back(metrics.accuracy);
     scores->ece.push_back(metrics.ece);
   };
-  return SizeCurve(static_cast<int>(test_logits.size()), subsets, seed, score);
+  return SizeGrid(static_cast<int>(test_logits.size()), static_cast<int>(test_logits[0].size()),
+                  subsets, seed, score);
+}
+
+std::vector<SizeCurvePoint> RegressionSizeGrid(
+    const MemberSampleGaussians& validation, const std::vector<double>& validation_targets,
+    const MemberSampleGaussians& test, const std::vector<double>& test_targets, int subsets,
+    uint64_t seed) {
+  assert(validation.size() == test.size() && !test.empty());
+  const auto score = [&](const Subset& subset, int samples, SubsetScores* scores) {
+    const std::vector<double> weights(subset.size() * samples, 1.0 / (subset.size() * samples));
+    const double s = TuneStddevScale(Pick(validation, subset, samples), weights, validation_targets);
+    const RegressionMetrics metrics =
+        ScoreRegression(MixtureGaussians(Pick(test, subset, samples), weights, s), test_targets);
+    scores->nll.push_back(metrics.nll);
+    scores->rmse.push_back(metrics.rmse);
+    scores->coverage_90.push_back(metrics.coverage_90);
+  };
+  return SizeGrid(static_cast<int>(test.size()), static_cast<int>(test[0].size()), subsets, seed,
+                  score);
+}
+
+std::vector<SizeCurvePoint> ClassificationSizeCurve(
+    const std::vector<const Matrix*>& validation_logits,
+    const std::vector<int32_t>& validation_labels, const std::vector<const Matrix*>& test_logits,
+    const std::vector<int32_t>& test_labels, int subsets, int ece_bins, uint64_t seed) {
+  return ClassificationSizeGrid(OneSampleEach(validation_logits), validation_labels,
+                                OneSampleEach(test_logits), test_labels, subsets, ece_bins, seed);
 }
 
 std::vector<SizeCurvePoint> RegressionSizeCurve(
     const std::vector<const MemberGaussian*>& validation,
     const std::vector<double>& validation_targets, const std::vector<const MemberGaussian*>& test,
     const std::vector<double>& test_targets, int subsets, uint64_t seed) {
-  assert(validation.size() == test.size());
-  const auto score = [&](const Subset& subset, SubsetScores* scores) {
-    const std::vector<double> weights(subset.size(), 1.0 / subset.size());
-    const double s = TuneStddevScale(Pick(validation, subset), weights, validation_targets);
-    const RegressionMetrics metrics =
-        ScoreRegression(MixtureGaussians(Pick(test, subset), weights, s), test_targets);
-    scores->nll.push_back(metrics.nll);
-    scores->rmse.push_back(metrics.rmse);
-    scores->coverage_90.push_back(metrics.coverage_90);
-  };
-  return SizeCurve(static_cast<int>(test.size()), subsets, seed, score);
+  return RegressionSizeGrid(OneSampleEach(validation), validation_targets, OneSampleEach(test),
+                            test_targets, subsets, seed);
 }
 
 }  // namespace chorus

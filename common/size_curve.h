@@ -25,6 +25,27 @@ struct SizeCurvePoint {
 // For k = 1..M: `subsets` subsets of k distinct members drawn with Philox(seed) (for k = M, or
 // when fewer distinct subsets exist, every subset once at most `subsets` times), each assembled
 // with uniform weights and a temperature tuned on validation, then scored on test.
+// Members given as their samples' outputs: samples[m][s] is member m's sample s (all members must
+// have the same number S of samples). The grid is k = 1..M members times s in SampleGrid(S)
+// samples per member (the first s of each); each point's subsets are drawn as above and each
+// subset is the uniform mixture of its k * s components, temperature tuned on validation.
+using MemberSamples = std::vector<std::vector<const Matrix*>>;
+using MemberSampleGaussians = std::vector<std::vector<const MemberGaussian*>>;
+
+// {1, 2, 5, 10, 20, 50, ...} up to S, plus S itself; ascending.
+std::vector<int> SampleGrid(int samples);
+
+std::vector<SizeCurvePoint> ClassificationSizeGrid(
+    const MemberSamples& validation_logits, const std::vector<int32_t>& validation_labels,
+    const MemberSamples& test_logits, const std::vector<int32_t>& test_labels, int subsets,
+    int ece_bins, uint64_t seed);
+
+std::vector<SizeCurvePoint> RegressionSizeGrid(
+    const MemberSampleGaussians& validation, const std::vector<double>& validation_targets,
+    const MemberSampleGaussians& test, const std::vector<double>& test_targets, int subsets,
+    uint64_t seed);
+
+// One sample per member: the grid's s = 1 row.
 std::vector<SizeCurvePoint> ClassificationSizeCurve(
     const std::vector<const Matrix*>& validation_logits, const std::vector<int32_t>& validation_labels,
     const std::vector<const Matrix*>& test_logits, const std::vector<int32_t>& test_labels,

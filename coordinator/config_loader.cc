@@ -244,12 +244,28 @@ Status LoadTrain(const Section& s, TrainConfig* t) {
   return o.Get<double>("clip_norm", &op->clip_norm, "a gradient norm", 0.0, 1e12);
 }
 
+Status LoadBasin(const Section& s, BasinConfig* b) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"method", "epochs", "lr", "snapshots", "rank", "samples", "scale"}));
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<BasinMethod>("method", &b->method, ParseBasinMethod,
+                                                "none, gaussian_diag, gaussian_lowrank"));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &b->epochs, "an epoch count", 1, 1000000));
+  CHORUS_RETURN_IF_ERROR(s.Get<double>("lr", &b->lr, "a learning rate", 1e-12, 1e6));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("snapshots", &b->snapshots, "a snapshot count", 2, 100000));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("rank", &b->rank, "a rank (at most snapshots)", 2, b->snapshots));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("samples", &b->samples, "a sample count", 1, 10000));
+  return s.Get<double>("scale", &b->scale, "a covariance scale", 1e-12, 1e6);
+}
+
 Status LoadEnsemble(const Section& s, EnsembleConfig* e) {
-  CHORUS_RETURN_IF_ERROR(s.Check({"members", "min_members", "weighting", "temperature"}));
+  CHORUS_RETURN_IF_ERROR(s.Check({"members", "min_members", "basin", "weighting", "greedy_rounds",
+                                  "temperature"}));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("members", &e->members, "a member count", 1, 100000));
   e->min_members = e->members;
   CHORUS_RETURN_IF_ERROR(s.Get<int>("min_members", &e->min_members, "a member count", 1, e->members));
-  CHORUS_RETURN_IF_ERROR(s.GetEnum<Weighting>("weighting", &e->weighting, ParseWeighting, "uniform"));
+  if (s.Has("basin")) CHORUS_RETURN_IF_ERROR(LoadBasin(s.Child("basin"), &e->basin));
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<Weighting>("weighting", &e->weighting, ParseWeighting,
+                                              "uniform, stacking, greedy"));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("greedy_rounds", &e->greedy_rounds, "a round count", 1, 100000));
   if (!s.Has("temperature")) return Status::Ok();
   if (s.Node("temperature").IsScalar() && s.Node("temperature").Scalar() == "tune") {
     e->tune_temperature = true;
@@ -338,6 +354,15 @@ void EmitTrain(YAML::Emitter& out, const TrainConfig& t) {
   out << YAML::EndMap << YAML::EndMap;
 }
 
+void EmitBasin(YAML::Emitter& out, const BasinConfig& b) {
+  out << YAML::Key << "basin" << YAML::Value << YAML::Flow << YAML::BeginMap
+      << YAML::Key << "method" << YAML::Value << BasinMethodName(b.method)
+      << YAML::Key << "epochs" << YAML::Value << b.epochs << YAML::Key << "lr" << YAML::Value << b.lr
+      << YAML::Key << "snapshots" << YAML::Value << b.snapshots << YAML::Key << "rank"
+      << YAML::Value << b.rank << YAML::Key << "samples" << YAML::Value << b.samples
+      << YAML::Key << "scale" << YAML::Value << b.scale << YAML::EndMap;
+}
+
 // The model-relevant sections; with `everything`, also names, paths and speed-only settings.
 std::string Emit(const Config& c, bool everything) {
   YAML::Emitter out;
@@ -355,8 +380,10 @@ std::string Emit(const Config& c, bool everything) {
   EmitTrain(out, c.train);
   out << YAML::Key << "ensemble" << YAML::Value << YAML::BeginMap
       << YAML::Key << "members" << YAML::Value << c.ensemble.members
-      << YAML::Key << "min_members" << YAML::Value << c.ensemble.min_members
-      << YAML::Key << "weighting" << YAML::Value << WeightingName(c.ensemble.weighting)
+      << YAML::Key << "min_members" << YAML::Value << c.ensemble.min_members;
+  EmitBasin(out, c.ensemble.basin);
+  out << YAML::Key << "weighting" << YAML::Value << WeightingName(c.ensemble.weighting)
+      << YAML::Key << "greedy_rounds" << YAML::Value << c.ensemble.greedy_rounds
       << YAML::Key << "temperature" << YAML::Value;
   if (c.ensemble.tune_temperature) out << "tune";
   else out << c.ensemble.temperature;

@@ -47,7 +47,7 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
 std::vector<MemberSpec> PlanMembers(const Config& c) {
   std::vector<MemberSpec> specs;
   for (int i = 0; i < c.ensemble.members; ++i) {
-    specs.push_back({i, Derive(c.run.seed, static_cast<uint64_t>(i)), c.model, c.train});
+    specs.push_back({i, Derive(c.run.seed, static_cast<uint64_t>(i)), c.model, c.train, c.ensemble.basin});
   }
   return specs;
 }
@@ -75,7 +75,9 @@ json Manifest(const Inputs& in, const std::string& status, const std::string& ca
 std::vector<MemberResult> TrainAll(const Inputs& in, RunDirectory& dir, std::vector<std::string>& failures) {
   const std::vector<MemberSpec> specs = PlanMembers(in.config);
   const std::vector<int> widths = NetworkFor(in.config.model, in.data).widths();
-  ProgressPrinter printer(stderr, in.config.ensemble.members, in.config.train.epochs);
+  const BasinConfig& basin = in.config.ensemble.basin;
+  ProgressPrinter printer(stderr, in.config.ensemble.members,
+                          in.config.train.epochs + (basin.method == BasinMethod::kNone ? 0 : basin.epochs));
   auto done = [&](const MemberSpec& spec, const StatusOr<MemberResult>& r) {
     Status st = r.status();
     if (st.ok()) {

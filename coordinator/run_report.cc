@@ -1,5 +1,6 @@
 #include "coordinator/run_report.h"
 
+#include <cmath>
 #include <sstream>
 
 namespace chorus {
@@ -46,8 +47,21 @@ json SizeCurveJson(Task task, const std::vector<SizeCurvePoint>& curve) {
 json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const RunFacts& facts) {
   json members = json::array();
   for (const MemberScores& m : ev.members) {
-    members.push_back({{"index", m.index}, {"seed", std::to_string(m.seed)},
-                       {"validation_nll", m.validation_nll}, {"test", ScoresJson(ev.task, m.test)}});
+    members.push_back({{"index", m.index}, {"seed", std::to_string(m.seed)}, {"samples", m.samples},
+                       {"validation_nll", m.validation_nll}, {"test", ScoresJson(ev.task, m.test)},
+                       {"test_trained_point", ScoresJson(ev.task, m.test_point)}});
+  }
+  const UncertaintySummary& u = ev.uncertainty;
+  json uncertainty = {{"unit", ev.task == Task::kClassification ? "nats (entropy)" : "target units squared (variance)"},
+                      {"test_mean", {{"total", u.total}, {"aleatoric", u.aleatoric}, {"epistemic", u.epistemic}}}};
+  if (ev.task == Task::kClassification) {
+    uncertainty["auroc_misclassified"] = {{"total", u.auroc_total}, {"aleatoric", u.auroc_aleatoric},
+                                          {"epistemic", u.auroc_epistemic}};
+    json selective = json::array();
+    for (size_t i = 0; i < u.coverages.size(); ++i) {
+      selective.push_back({{"coverage", u.coverages[i]}, {"accuracy", u.selective_accuracy[i]}});
+    }
+    uncertainty["selective_accuracy"] = selective;
   }
   json report = {
       {"name", facts.name},
@@ -60,7 +74,10 @@ json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const Ru
                        {"test", ScoresJson(ev.task, ev.members[ev.best_member].test)}}},
       {"members", members},
       {"temperature", ev.temperature},
+      {"weighting", WeightingName(ev.weighting)},
       {"weights", ev.weights},
+      {"validation_nll_weighted", ev.validation_nll_weighted},
+      {"uncertainty", uncertainty},
       {"size_curve", SizeCurveJson(ev.task, ev.size_curve)},
       {"data_hash", facts.data_hash},
       {"config_hash", facts.config_hash},
@@ -73,6 +90,9 @@ json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const Ru
       {"caution", kCautionText},
   };
   if (ev.bayes_optimal_test_nll) report["bayes_optimal_test_nll"] = *ev.bayes_optimal_test_nll;
+  if (ev.test_without_basin) {
+    report["ensemble"]["test_without_basin"] = ScoresJson(ev.task, *ev.test_without_basin);
+  }
   return report;
 }
 
@@ -143,8 +163,16 @@ std::string ReportHtml(const json& r) {
       {"best member (by validation NLL)", r["best_member"]["test"]},
       {"ensemble, T = 1", r["ensemble"]["test_uncalibrated"]},
       {"ensemble, tuned T", r["ensemble"]["test"]}};
+  if (r["ensemble"].contains("test_without_basin")) {
+    summary.insert(summary.begin() + 2, {"ensemble of trained points (no basin samples), tuned T",
+                                         r["ensemble"]["test_without_basin"]});
+  }
   std::vector<std::pair<std::string, json>> members;
-  for (const json& m : r["members"]) members.push_back({"member " + m["index"].dump(), m["test"]});
+  for (size_t m = 0; m < r["members"].size(); ++m) {
+    json row = r["members"][m]["test"];
+    row["weight"] = r["weights"][m];
+    members.push_back({"member " + r["members"][m]["index"].dump(), row});
+  }
   std::ostringstream html;
   html << "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>chorus report: "
        << Escape(r["name"].get<std::string>()) << "</title><style>"
@@ -160,7 +188,20 @@ std::string ReportHtml(const json& r) {
     html << "<p>Bayes-optimal test NLL (true probabilities known for this invented data): "
          << r["bayes_optimal_test_nll"].dump() << "</p>";
   }
-  html << "<h2>Members</h2>" << MetricsTable(members);
+  html << "<h2>Uncertainty on test (" << Escape(r["uncertainty"]["unit"].get<std::string>()) << ")</h2>"
+       << MetricsTable({{"mean per input", r["uncertainty"]["test_mean"]}});
+  if (r["uncertainty"].contains("auroc_misclassified")) {
+    html << "<p>How well each part flags misclassified inputs (AUROC; 0.5 = no better than chance):</p>"
+         << MetricsTable({{"AUROC", r["uncertainty"]["auroc_misclassified"]}});
+    std::vector<std::pair<std::string, json>> selective;
+    for (const json& p : r["uncertainty"]["selective_accuracy"]) {
+      selective.push_back({"most confident " + std::to_string(static_cast<int>(std::lround(100 * p["coverage"].get<double>()))) + "%",
+                           {{"accuracy", p["accuracy"]}}});
+    }
+    html << "<h3>Selective prediction</h3>" << MetricsTable(selective);
+  }
+  html << "<h2>Members (weighting: " << Escape(r["weighting"].get<std::string>()) << ")</h2>"
+       << MetricsTable(members);
   html << "<h2>Size curve</h2>" << SizeCurveTable(r["size_curve"]);
   html << "<h2>Facts</h2><table>";
   for (const char* key : {"data_hash", "config_hash", "members_planned", "wall_seconds"}) {

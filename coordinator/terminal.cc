@@ -72,6 +72,7 @@ std::string SummaryTable(const EnsembleEvaluation& ev) {
   const MemberScores& best = ev.members[ev.best_member];
   Row(s, "mean member (of " + std::to_string(ev.members.size()) + ")", ev.task, ev.mean_member);
   Row(s, "best member (" + std::to_string(best.index) + ", by validation nll)", ev.task, best.test);
+  if (ev.test_without_basin) Row(s, "trained points only, tuned T", ev.task, *ev.test_without_basin);
   Row(s, "ensemble, T = 1", ev.task, ev.test_uncalibrated);
   std::ostringstream t;
   t << std::setprecision(3) << std::fixed << ev.temperature;

@@ -25,6 +25,44 @@ StatusOr<Matrix> FromWire(const wire::FloatMatrix& w, const std::string& what) {
   return m;
 }
 
+void BasinToWire(const MemberResult& r, wire::JobResult* msg) {
+  if (r.basin.method == BasinMethod::kNone) return;
+  wire::BasinFit* b = msg->mutable_basin();
+  b->set_method(BasinMethodName(r.basin.method));
+  b->mutable_mean()->Add(r.basin.mean.begin(), r.basin.mean.end());
+  b->mutable_variance()->Add(r.basin.variance.begin(), r.basin.variance.end());
+  ToWire(r.basin.deviations, b->mutable_deviations());
+  msg->mutable_sample_seeds()->Add(r.sample_seeds.begin(), r.sample_seeds.end());
+  for (const Matrix& m : r.sample_validation_outputs) ToWire(m, msg->add_sample_validation_outputs());
+  for (const Matrix& m : r.sample_test_outputs) ToWire(m, msg->add_sample_test_outputs());
+}
+
+Status BasinFromWire(const wire::JobResult& msg, const std::string& source, MemberResult& r) {
+  if (!msg.has_basin()) return Status::Ok();
+  const std::optional<BasinMethod> method = ParseBasinMethod(msg.basin().method());
+  if (!method || *method == BasinMethod::kNone) {
+    return Status::InvalidInput(source + ": unknown basin method \"" + msg.basin().method() + "\"");
+  }
+  r.basin.method = *method;
+  r.basin.mean.assign(msg.basin().mean().begin(), msg.basin().mean().end());
+  r.basin.variance.assign(msg.basin().variance().begin(), msg.basin().variance().end());
+  CHORUS_ASSIGN_OR_RETURN(r.basin.deviations, FromWire(msg.basin().deviations(), source));
+  r.sample_seeds.assign(msg.sample_seeds().begin(), msg.sample_seeds().end());
+  for (const auto& m : msg.sample_validation_outputs()) {
+    CHORUS_ASSIGN_OR_RETURN(Matrix v, FromWire(m, source));
+    r.sample_validation_outputs.push_back(std::move(v));
+  }
+  for (const auto& m : msg.sample_test_outputs()) {
+    CHORUS_ASSIGN_OR_RETURN(Matrix t, FromWire(m, source));
+    r.sample_test_outputs.push_back(std::move(t));
+  }
+  if (r.sample_validation_outputs.size() != r.sample_seeds.size() ||
+      r.sample_test_outputs.size() != r.sample_seeds.size()) {
+    return Status::InvalidInput(source + ": sample outputs do not match the sample seeds");
+  }
+  return Status::Ok();
+}
+
 }  // namespace
 
 std::string EncodeJobResult(const MemberResult& result, const std::vector<int>& widths,
@@ -40,6 +78,7 @@ std::string EncodeJobResult(const MemberResult& result, const std::vector<int>& 
   msg.mutable_epoch_loss()->Add(result.epoch_loss.begin(), result.epoch_loss.end());
   ToWire(result.validation_outputs, msg.mutable_validation_outputs());
   ToWire(result.test_outputs, msg.mutable_test_outputs());
+  BasinToWire(result, &msg);
   std::string bytes;
   google::protobuf::io::StringOutputStream stream(&bytes);
   google::protobuf::io::CodedOutputStream coded(&stream);
@@ -69,6 +108,7 @@ StatusOr<MemberResult> DecodeJobResult(const std::string& bytes, const std::stri
   r.epoch_loss.assign(msg.epoch_loss().begin(), msg.epoch_loss().end());
   CHORUS_ASSIGN_OR_RETURN(r.validation_outputs, FromWire(msg.validation_outputs(), source));
   CHORUS_ASSIGN_OR_RETURN(r.test_outputs, FromWire(msg.test_outputs(), source));
+  CHORUS_RETURN_IF_ERROR(BasinFromWire(msg, source, r));
   return r;
 }
 

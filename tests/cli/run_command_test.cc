@@ -101,7 +101,8 @@ TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
 }
 
 TEST_F(RunCommandTest, ResultBytesAreIdenticalAcrossRepeatsAndThreadCounts) {
-  const std::string cfg = WriteConfig("det", "train: {epochs: 3, batch_size: 50}\nensemble: {members: 3}\n");
+  const std::string cfg = WriteConfig("det", "train: {epochs: 3, batch_size: 50}\nensemble: {members: 3,\n"
+      "  basin: {method: gaussian_lowrank, epochs: 1, snapshots: 4, rank: 3, samples: 2}}\n");
   std::vector<std::map<std::string, std::string>> runs;
   for (const char* threads : {"1", "2", "2"}) {
     const std::string out = dir_ + "/runs-" + std::to_string(runs.size());

@@ -38,7 +38,9 @@ TEST(ConfigLoaderTest, DefaultsFillMissingKeysAndPathsResolveAgainstTheConfigFil
 TEST(ConfigLoaderTest, ResolvedYamlLoadsBackToTheSameConfig) {
   const std::string text = std::string(kMinimal) +
       "train: {schedule: {kind: step, every_epochs: 3, factor: 0.5}, optimizer: {lr: 0.125}}\n"
-      "ensemble: {members: 4, min_members: 2, temperature: 1.5}\nmodel: {hidden: [7, 5]}\n";
+      "ensemble: {members: 4, min_members: 2, temperature: 1.5, weighting: greedy,\n"
+      "  basin: {method: gaussian_diag, snapshots: 9, rank: 3, samples: 4, scale: 0.5}}\n"
+      "model: {hidden: [7, 5]}\n";
   StatusOr<Config> a = ParseConfig(text, "/x/a.yaml");
   ASSERT_TRUE(a.ok()) << a.status().ToString();
   StatusOr<Config> b = ParseConfig(ConfigToYaml(a.value()), "/elsewhere/b.yaml");
@@ -48,6 +50,10 @@ TEST(ConfigLoaderTest, ResolvedYamlLoadsBackToTheSameConfig) {
   EXPECT_EQ(b.value().train.schedule.step_every_epochs, 3);
   EXPECT_FALSE(b.value().ensemble.tune_temperature);
   EXPECT_DOUBLE_EQ(b.value().ensemble.temperature, 1.5);
+  EXPECT_EQ(b.value().ensemble.weighting, Weighting::kGreedy);
+  EXPECT_EQ(b.value().ensemble.basin.method, BasinMethod::kGaussianDiag);
+  EXPECT_EQ(b.value().ensemble.basin.samples, 4);
+  EXPECT_DOUBLE_EQ(b.value().ensemble.basin.scale, 0.5);
 }
 
 TEST(ConfigLoaderTest, HashIgnoresSpeedOnlySettingsButNotModelSettings) {
@@ -81,6 +87,9 @@ TEST(ConfigLoaderTest, BadConfigsAreRejectedWithTheirPlace) {
                   "model.activation: expected one of relu, tanh, gelu, found \"swish\""},
       BadConfig{"MinAboveMembers", "data: {train: a, test: b, target: y}\nensemble: {members: 2, min_members: 3}\n",
                   "ensemble.min_members"},
+      BadConfig{"RankAboveSnapshots",
+                "data: {train: a, test: b, target: y}\nensemble: {basin: {snapshots: 4, rank: 5}}\n",
+                "ensemble.basin.rank: expected a rank (at most snapshots) in [2, 4]"},
       BadConfig{"MissingTarget", "data: {train: a, test: b}\n", "data.target: required"},
       BadConfig{"MissingData", "run: {seed: 1}\n", "data: required"},
       BadConfig{"NotYaml", "data: [unclosed\n", "cfg.yaml:"},
