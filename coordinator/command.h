@@ -1,0 +1,18 @@
+// How each `chorus` subcommand plugs into the command line: a command file defines one
+// Register*Command function that adds its CLI11 subcommand and, when that subcommand is chosen,
+// sets the runner main() calls. One file per command keeps commands independent.
+// Thread safety: used from main's thread only.
+#pragma once
+
+#include <CLI/CLI.hpp>
+
+#include <functional>
+
+namespace chorus {
+
+// Returns the process exit code (0 ok, 1 internal, 2 bad input, 3 refused).
+using CommandRunner = std::function<int()>;
+
+void RegisterRunCommand(CLI::App& app, CommandRunner* runner);
+
+}  // namespace chorus
