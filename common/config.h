@@ -111,6 +111,21 @@ struct ComputeConfig {
   int threads = 0;              // members trained at once (oneTBB arena size); 0 = all cores
 };
 
+// Where member jobs run (DESIGN.md, "cluster"). With local_workers > 0 chorus run starts that many
+// chorus-worker processes on loopback; with listen set, remote workers may join too; with
+// local_workers 0 and no listen, members train in this process (compute.threads at once).
+struct ClusterConfig {
+  // --- changes speed only ---
+  int local_workers = -1;       // worker processes to start; -1 = one per core; >= 0
+  std::string listen;           // address for remote workers, e.g. "0.0.0.0:7070"; "" = loopback only
+  std::string token_file;       // shared token (first line); required when listen is not loopback
+  std::string tls_cert;         // PEM server certificate and key: TLS when both are set
+  std::string tls_key;
+  std::string tls_client_ca;    // PEM CA that client certificates must chain to (mutual TLS)
+  double lease_seconds = 30;    // a lease lasts this long after its last heartbeat, > 0
+  int max_attempts = 3;         // leases a job may use before it is recorded as failed, >= 1
+};
+
 struct Config {
   RunConfig run;
   DataConfig data;
@@ -119,6 +134,7 @@ struct Config {
   EnsembleConfig ensemble;
   ReportConfig report;
   ComputeConfig compute;
+  ClusterConfig cluster;
 };
 
 // Names used in YAML and messages, and their inverses (nullopt for an unknown name).

@@ -142,7 +142,7 @@ namespace {
 // Continues SGD at the constant basin rate, adding snapshot j (j = 0..K-1) after global basin step
 // floor((j + 1) * T / K) - 1 of T steps, then fits the basin.
 Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& progress,
-                     MemberResult& result) {
+                     const std::atomic<bool>* cancel, MemberResult& result) {
   const BasinConfig& b = spec.basin;
   const int64_t per_epoch = run.StepsPerEpoch(), total = per_epoch * b.epochs;
   SnapshotMoments moments(run.net().ParameterCount(), b.method == BasinMethod::kGaussianLowRank ? b.rank : 0);
@@ -161,6 +161,7 @@ Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& prog
     result.epoch_loss.push_back(loss.value());
     const int epochs = spec.train.epochs + b.epochs;
     if (progress) progress({spec.index, spec.train.epochs + e + 1, epochs, loss.value()});
+    if (cancel != nullptr && cancel->load()) return Status::Cancelled("stopped on request");
   }
   result.basin = FitBasin(moments, b.method);
   return Status::Ok();
@@ -189,7 +190,7 @@ bool AllFinite(const MemberResult& r) {
 }  // namespace
 
 StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
-                                   const ProgressFn& progress) {
+                                   const ProgressFn& progress, const std::atomic<bool>* cancel) {
   const std::string where = "member " + std::to_string(spec.index);
   if (data.train.rows() == 0) return Status::InvalidInput(where + ": no training rows");
   SgdRun run(spec, data);
@@ -207,12 +208,13 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
     if (!loss.ok()) return loss.status().WithContext(where);
     result.epoch_loss.push_back(loss.value());
     if (progress) progress({spec.index, epoch + 1, all_epochs, loss.value()});
+    if (cancel != nullptr && cancel->load()) return Status::Cancelled(where + ": stopped on request");
   }
   result.validation_outputs = PredictOutputs(run.net(), run.params().data(), data.validation.x);
   result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x);
   result.parameters = run.params();
   if (basin) {
-    CHORUS_RETURN_IF_ERROR(RunBasinPhase(spec, run, progress, result).WithContext(where));
+    CHORUS_RETURN_IF_ERROR(RunBasinPhase(spec, run, progress, cancel, result).WithContext(where));
     PredictSamples(spec, run.net(), data, result);
   }
   if (!AllFinite(result)) return Status::Diverged(where + ": a prediction is not finite");

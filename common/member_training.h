@@ -4,6 +4,7 @@
 // Thread safety: reentrant; uses only the calling thread. `data` is read-only and may be shared.
 #pragma once
 
+#include <atomic>
 #include <cstdint>
 #include <functional>
 #include <vector>
@@ -62,9 +63,11 @@ Mlp NetworkFor(const ModelConfig& model, const PreparedData& data);
 // Trains member `spec.index` (then, with spec.basin.method != none, continues SGD at basin.lr
 // collecting snapshots, fits the basin and predicts with every sample). Fails with kDiverged ("epoch E, step S: training loss is nan") if a
 // minibatch loss or a final output is not finite. `progress` (may be empty) is called after each
-// epoch from the calling thread.
+// epoch from the calling thread. If `cancel` (may be null) becomes true, training stops at the
+// next epoch boundary with kCancelled.
 StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
-                                   const ProgressFn& progress);
+                                   const ProgressFn& progress,
+                                   const std::atomic<bool>* cancel = nullptr);
 
 // Network outputs for every row of x, computed in batches of `batch_rows` to bound memory.
 Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef& x,

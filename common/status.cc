@@ -9,6 +9,8 @@ std::string Status::ToString() const {
     case Code::kDiverged: return "diverged: " + message_;
     case Code::kRefused: return "refused: " + message_;
     case Code::kIo: return "i/o error: " + message_;
+    case Code::kCancelled: return "cancelled: " + message_;
+    case Code::kUnavailable: return "unavailable: " + message_;
     case Code::kInternal: return "internal error: " + message_;
   }
   return message_;

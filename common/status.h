@@ -14,8 +14,9 @@ class Status {
   // kInvalidInput: the user's file, config or flag is wrong (exit code 2).
   // kDiverged: training produced NaN/inf (the member fails, the run may go on).
   // kRefused: a gate or a minimum-count rule said no (exit code 3).
-  // kIo: the operating system refused a read or write. kInternal: a bug or an unexpected state.
-  enum class Code { kOk, kInvalidInput, kDiverged, kRefused, kIo, kInternal };
+  // kIo: the operating system refused a read or write. kCancelled: stopped on request.
+  // kUnavailable: a peer (coordinator, worker) could not be reached. kInternal: a bug.
+  enum class Code { kOk, kInvalidInput, kDiverged, kRefused, kIo, kCancelled, kUnavailable, kInternal };
 
   Status() = default;
   static Status Ok() { return Status(); }
@@ -23,6 +24,8 @@ class Status {
   static Status Diverged(std::string msg) { return Status(Code::kDiverged, std::move(msg)); }
   static Status Refused(std::string msg) { return Status(Code::kRefused, std::move(msg)); }
   static Status Io(std::string msg) { return Status(Code::kIo, std::move(msg)); }
+  static Status Cancelled(std::string msg) { return Status(Code::kCancelled, std::move(msg)); }
+  static Status Unavailable(std::string msg) { return Status(Code::kUnavailable, std::move(msg)); }
   static Status Internal(std::string msg) { return Status(Code::kInternal, std::move(msg)); }
 
   bool ok() const { return code_ == Code::kOk; }

@@ -286,10 +286,39 @@ Status LoadCompute(const Section& s, ComputeConfig* c) {
   return s.Get<int>("threads", &c->threads, "a thread count (0 = all cores)", 0, 4096);
 }
 
+Status LoadCluster(const Section& s, const std::string& base, ClusterConfig* c) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"local_workers", "listen", "token_file", "tls", "lease_seconds",
+                                  "max_attempts"}));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("local_workers", &c->local_workers, "a worker count", 0, 4096));
+  CHORUS_RETURN_IF_ERROR(s.GetString("listen", &c->listen));
+  CHORUS_RETURN_IF_ERROR(s.GetString("token_file", &c->token_file));
+  CHORUS_RETURN_IF_ERROR(s.Get<double>("lease_seconds", &c->lease_seconds, "seconds", 0.1, 86400.0));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("max_attempts", &c->max_attempts, "an attempt count", 1, 1000));
+  if (s.Has("tls")) {
+    Section t = s.Child("tls");
+    CHORUS_RETURN_IF_ERROR(t.Check({"cert", "key", "client_ca"}));
+    CHORUS_RETURN_IF_ERROR(t.GetString("cert", &c->tls_cert));
+    CHORUS_RETURN_IF_ERROR(t.GetString("key", &c->tls_key));
+    CHORUS_RETURN_IF_ERROR(t.GetString("client_ca", &c->tls_client_ca));
+    if (c->tls_cert.empty() || c->tls_key.empty()) {
+      return t.Error(s.Node("tls"), s.Path("tls"), "expected {cert: FILE, key: FILE, client_ca?: FILE}");
+    }
+  }
+  const std::string host = c->listen.substr(0, c->listen.rfind(':'));
+  const bool loopback = c->listen.empty() || host == "127.0.0.1" || host == "localhost" || host == "[::1]";
+  if (!loopback && c->token_file.empty()) {
+    return s.Error(s.Node("listen"), s.Path("listen"),
+                   "listening beyond loopback needs cluster.token_file (refusing to run without a token)");
+  }
+  for (std::string* p : {&c->token_file, &c->tls_cert, &c->tls_key, &c->tls_client_ca}) *p = Resolve(base, *p);
+  return Status::Ok();
+}
+
 Status LoadAll(const YAML::Node& root, const std::string& path, Config* c) {
   const std::string base = std::filesystem::path(path).parent_path().string();
   Section top(root, "", path);
-  CHORUS_RETURN_IF_ERROR(top.Check({"run", "data", "model", "train", "ensemble", "report", "compute"}));
+  CHORUS_RETURN_IF_ERROR(top.Check({"run", "data", "model", "train", "ensemble", "report", "compute",
+                                    "cluster"}));
   if (!top.Has("data")) return Status::InvalidInput(path + ": data: required section is missing");
   if (top.Has("run")) CHORUS_RETURN_IF_ERROR(LoadRun(top.Child("run"), &c->run));
   CHORUS_RETURN_IF_ERROR(LoadData(top.Child("data"), base.empty() ? "." : base, &c->data));
@@ -299,6 +328,9 @@ Status LoadAll(const YAML::Node& root, const std::string& path, Config* c) {
   else c->ensemble.min_members = c->ensemble.members;
   if (top.Has("report")) CHORUS_RETURN_IF_ERROR(LoadReport(top.Child("report"), &c->report));
   if (top.Has("compute")) CHORUS_RETURN_IF_ERROR(LoadCompute(top.Child("compute"), &c->compute));
+  if (top.Has("cluster")) {
+    CHORUS_RETURN_IF_ERROR(LoadCluster(top.Child("cluster"), base.empty() ? "." : base, &c->cluster));
+  }
   return Status::Ok();
 }
 
@@ -363,6 +395,22 @@ void EmitBasin(YAML::Emitter& out, const BasinConfig& b) {
       << YAML::Key << "scale" << YAML::Value << b.scale << YAML::EndMap;
 }
 
+void EmitCluster(YAML::Emitter& out, const ClusterConfig& c) {
+  out << YAML::Key << "cluster" << YAML::Value << YAML::BeginMap
+      << YAML::Key << "local_workers" << YAML::Value << c.local_workers
+      << YAML::Key << "listen" << YAML::Value << (c.listen.empty() ? YAML::Node() : YAML::Node(c.listen))
+      << YAML::Key << "token_file" << YAML::Value
+      << (c.token_file.empty() ? YAML::Node() : YAML::Node(c.token_file));
+  if (!c.tls_cert.empty()) {
+    out << YAML::Key << "tls" << YAML::Value << YAML::Flow << YAML::BeginMap << YAML::Key << "cert"
+        << YAML::Value << c.tls_cert << YAML::Key << "key" << YAML::Value << c.tls_key;
+    if (!c.tls_client_ca.empty()) out << YAML::Key << "client_ca" << YAML::Value << c.tls_client_ca;
+    out << YAML::EndMap;
+  }
+  out << YAML::Key << "lease_seconds" << YAML::Value << c.lease_seconds
+      << YAML::Key << "max_attempts" << YAML::Value << c.max_attempts << YAML::EndMap;
+}
+
 // The model-relevant sections; with `everything`, also names, paths and speed-only settings.
 std::string Emit(const Config& c, bool everything) {
   YAML::Emitter out;
@@ -394,6 +442,7 @@ std::string Emit(const Config& c, bool everything) {
   if (everything) {
     out << YAML::Key << "compute" << YAML::Value << YAML::BeginMap << YAML::Key << "threads"
         << YAML::Value << c.compute.threads << YAML::EndMap;
+    EmitCluster(out, c.cluster);
   }
   out << YAML::EndMap;
   return std::string(out.c_str()) + "\n";

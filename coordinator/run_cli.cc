@@ -1,4 +1,5 @@
 // `chorus run`: command-line options for RunCommand (coordinator/run_command.h).
+#include <cstdio>
 #include <memory>
 
 #include "coordinator/command.h"
@@ -12,12 +13,26 @@ void RegisterRunCommand(CLI::App& app, CommandRunner* runner) {
       "run", "Train every member of CONFIG, assemble the ensemble, tune its temperature on\n"
              "validation, score it on test, and write a run directory (config.yaml, manifest.json,\n"
              "jobs/, events.jsonl, report.json, report.html).");
-  cmd->add_option("CONFIG", options->config_path, "YAML config file")->required();
+  cmd->add_option("CONFIG", options->config_path, "YAML config file (not needed with --resume)");
+  cmd->add_option("--resume", options->resume_dir,
+                  "continue RUN_DIR after an interruption: finished members are kept, the rest run");
   cmd->add_option("--out", options->out_dir, "parent directory for the run directory (default: run.out_dir)");
   cmd->add_option("--threads", options->threads,
                   "members trained at once (default: compute.threads; 0 = all cores)")
       ->check(CLI::Range(0, 4096));
-  cmd->callback([runner, options] { *runner = [options] { return RunCommand(*options); }; });
+  cmd->add_option("--workers", options->workers,
+                  "local worker processes (default: cluster.local_workers; 0 with no cluster.listen "
+                  "= train in this process)")
+      ->check(CLI::Range(0, 4096));
+  cmd->callback([runner, options] {
+    *runner = [options] {
+      if (options->config_path.empty() == options->resume_dir.empty()) {
+        std::fprintf(stderr, "chorus run: give either CONFIG or --resume RUN_DIR\n");
+        return 2;
+      }
+      return RunCommand(*options);
+    };
+  });
 }
 
 }  // namespace chorus

@@ -4,6 +4,7 @@
 
 #include <chrono>
 #include <cstdio>
+#include <filesystem>
 #include <thread>
 
 #include <nlohmann/json.hpp>
@@ -11,6 +12,8 @@
 #include "common/file_util.h"
 #include "common/gemm.h"
 #include "common/rng.h"
+#include "coordinator/bundle_writer.h"
+#include "coordinator/cluster_run.h"
 #include "coordinator/config_loader.h"
 #include "coordinator/run_directory.h"
 #include "coordinator/run_report.h"
@@ -32,9 +35,11 @@ struct Inputs {
 
 StatusOr<Inputs> LoadInputs(const RunOptions& options) {
   Inputs in;
-  CHORUS_ASSIGN_OR_RETURN(in.config, LoadConfigFile(options.config_path));
+  const std::string path = options.resume_dir.empty() ? options.config_path : options.resume_dir + "/config.yaml";
+  CHORUS_ASSIGN_OR_RETURN(in.config, LoadConfigFile(path));
   if (!options.out_dir.empty()) in.config.run.out_dir = options.out_dir;
   if (options.threads >= 0) in.config.compute.threads = options.threads;
+  if (options.workers >= 0) in.config.cluster.local_workers = options.workers;
   CHORUS_ASSIGN_OR_RETURN(in.data, LoadPreparedData(in.config.data, in.config.run.seed));
   if (!in.config.data.true_probabilities.empty()) {
     CHORUS_ASSIGN_OR_RETURN(in.true_probabilities,
@@ -52,6 +57,8 @@ std::vector<MemberSpec> PlanMembers(const Config& c) {
   return specs;
 }
 
+bool InProcess(const Config& c) { return c.cluster.local_workers == 0 && c.cluster.listen.empty(); }
+
 std::string HostName() {
   char buf[256] = {};
   gethostname(buf, sizeof buf - 1);
@@ -66,18 +73,45 @@ json Manifest(const Inputs& in, const std::string& status, const std::string& ca
           {"config_hash", in.config_hash}, {"data_hash", in.data.hash},
           {"run_seed", std::to_string(in.config.run.seed)}, {"member_seeds", seeds},
           {"wall_seconds", seconds}, {"gemm_backend", GemmBackendName()},
-          {"workers", {{{"host", HostName()}, {"kind", "in-process"},
-                        {"threads", in.config.compute.threads > 0 ? in.config.compute.threads
-                                                                  : static_cast<int>(cores)}}}}};
+          {"coordinator", {{"host", HostName()}, {"cores", cores},
+                           {"mode", InProcess(in.config) ? "in-process" : "workers"}}}};
 }
 
-// Trains all members, storing each result under jobs/<index>/ as it finishes.
-std::vector<MemberResult> TrainAll(const Inputs& in, RunDirectory& dir, std::vector<std::string>& failures) {
-  const std::vector<MemberSpec> specs = PlanMembers(in.config);
+// On resume: the config and data must be the ones the run started with.
+Status CheckResumable(const RunDirectory& dir, const Inputs& in) {
+  CHORUS_ASSIGN_OR_RETURN(std::string text, ReadFileToString(dir.File("manifest.json"), 1 << 24));
+  const json m = json::parse(text, nullptr, false);
+  if (m.is_discarded()) return Status::InvalidInput(dir.File("manifest.json") + ": not JSON");
+  if (m.value("config_hash", "") != in.config_hash || m.value("data_hash", "") != in.data.hash) {
+    return Status::InvalidInput(dir.path() + ": the config or the data changed since the run started");
+  }
+  if (m.value("status", "") == "complete") return Status::InvalidInput(dir.path() + ": run already complete");
+  return Status::Ok();
+}
+
+// Results already on disk that decode against this run's hashes.
+std::vector<bool> FinishedOnDisk(const RunDirectory& dir, const Inputs& in, int jobs) {
+  std::vector<bool> done(static_cast<size_t>(jobs), false);
+  for (int i = 0; i < jobs; ++i) {
+    const std::string path = dir.path() + "/jobs/" + std::to_string(i) + "/result.pb";
+    if (!std::filesystem::exists(path)) continue;
+    StatusOr<std::string> bytes = ReadFileToString(path);
+    done[i] = bytes.ok() && DecodeJobResult(bytes.value(), path, in.data.hash, in.config_hash).ok();
+  }
+  return done;
+}
+
+// Trains the unfinished members in this process, storing each result as it finishes.
+std::vector<std::string> TrainInProcess(const Inputs& in, RunDirectory& dir, const std::vector<bool>& finished) {
+  std::vector<MemberSpec> specs;
+  for (const MemberSpec& s : PlanMembers(in.config)) {
+    if (!finished[s.index]) specs.push_back(s);
+  }
   const std::vector<int> widths = NetworkFor(in.config.model, in.data).widths();
   const BasinConfig& basin = in.config.ensemble.basin;
-  ProgressPrinter printer(stderr, in.config.ensemble.members,
+  ProgressPrinter printer(stderr, static_cast<int>(specs.size()),
                           in.config.train.epochs + (basin.method == BasinMethod::kNone ? 0 : basin.epochs));
+  std::vector<std::string> failures;
   auto done = [&](const MemberSpec& spec, const StatusOr<MemberResult>& r) {
     Status st = r.status();
     if (st.ok()) {
@@ -86,20 +120,44 @@ std::vector<MemberResult> TrainAll(const Inputs& in, RunDirectory& dir, std::vec
                                           EncodeJobResult(r.value(), widths, in.data.hash, in.config_hash))
                         : job_dir.status();
     }
+    if (!st.ok()) failures.push_back("member " + std::to_string(spec.index) + ": " + st.ToString());
     dir.LogEvent(st.ok() ? "member_finished" : "member_failed",
                  {{"member", spec.index}, {"cause", st.ok() ? "" : st.ToString()}});
     printer.OnMemberDone(spec.index, st);
   };
-  dir.LogEvent("training_started", {{"members", specs.size()}});
-  auto results = TrainMembersLocally(specs, in.data, in.config.compute.threads,
-                                     [&](const EpochProgress& p) { printer.OnEpoch(p); }, done);
+  TrainMembersLocally(specs, in.data, in.config.compute.threads,
+                      [&](const EpochProgress& p) { printer.OnEpoch(p); }, done);
   printer.Finish();
-  std::vector<MemberResult> finished;
-  for (size_t i = 0; i < results.size(); ++i) {
-    if (results[i].ok()) finished.push_back(std::move(results[i]).value());
-    else failures.push_back("member " + std::to_string(i) + ": " + results[i].status().ToString());
+  return failures;
+}
+
+// Trains what is not finished, in process or on workers; returns failure causes.
+StatusOr<std::vector<std::string>> TrainMembers(const Inputs& in, RunDirectory& dir) {
+  const std::vector<bool> finished = FinishedOnDisk(dir, in, in.config.ensemble.members);
+  int kept = 0;
+  for (bool f : finished) kept += f;
+  dir.LogEvent("training_started", {{"members", in.config.ensemble.members}, {"already_finished", kept}});
+  if (InProcess(in.config)) return TrainInProcess(in, dir, finished);
+  CHORUS_ASSIGN_OR_RETURN(std::vector<JobSnapshot> jobs,
+                          RunJobsOnWorkers({&in.config, &in.data, in.config_hash, PlanMembers(in.config), finished}, dir));
+  std::vector<std::string> failures;
+  for (size_t i = 0; i < jobs.size(); ++i) {
+    if (jobs[i].state == JobState::kFailed) failures.push_back("member " + std::to_string(i) + ": " + jobs[i].cause);
   }
-  return finished;
+  return failures;
+}
+
+// Every finished member's result, read back from disk, in member order.
+StatusOr<std::vector<MemberResult>> LoadResults(const RunDirectory& dir, const Inputs& in) {
+  std::vector<MemberResult> members;
+  for (int i = 0; i < in.config.ensemble.members; ++i) {
+    const std::string path = dir.path() + "/jobs/" + std::to_string(i) + "/result.pb";
+    if (!std::filesystem::exists(path)) continue;
+    CHORUS_ASSIGN_OR_RETURN(std::string bytes, ReadFileToString(path));
+    CHORUS_ASSIGN_OR_RETURN(MemberResult r, DecodeJobResult(bytes, path, in.data.hash, in.config_hash));
+    members.push_back(std::move(r));
+  }
+  return members;
 }
 
 int Fail(RunDirectory& dir, const Inputs& in, const Status& st, double seconds) {
@@ -108,6 +166,47 @@ int Fail(RunDirectory& dir, const Inputs& in, const Status& st, double seconds) 
   WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "failed", st.ToString(), seconds).dump(2));
   std::fprintf(stderr, "run directory (failed): %s\n", dir.path().c_str());
   return st.ExitCode();
+}
+
+StatusOr<RunDirectory> OpenOrCreate(const RunOptions& options, const Inputs& in) {
+  if (options.resume_dir.empty()) {
+    CHORUS_ASSIGN_OR_RETURN(RunDirectory dir, RunDirectory::Create(in.config.run.out_dir, in.config.run.name));
+    CHORUS_RETURN_IF_ERROR(WriteFileAtomic(dir.File("config.yaml"), ConfigToYaml(in.config)));
+    CHORUS_RETURN_IF_ERROR(WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "running", "", 0).dump(2)));
+    return dir;
+  }
+  CHORUS_ASSIGN_OR_RETURN(RunDirectory dir, RunDirectory::Open(options.resume_dir));
+  CHORUS_RETURN_IF_ERROR(CheckResumable(dir, in));
+  dir.LogEvent("run_resumed");
+  return dir;
+}
+
+// Assembles, reports and writes the closing files of a run whose members are on disk.
+int Finish(RunDirectory& dir, const Inputs& in, const std::vector<std::string>& failures, double seconds) {
+  for (const std::string& f : failures) std::fprintf(stderr, "failed: %s\n", f.c_str());
+  StatusOr<std::vector<MemberResult>> loaded = LoadResults(dir, in);
+  if (!loaded.ok()) return Fail(dir, in, loaded.status(), seconds);
+  const std::vector<MemberResult>& members = loaded.value();
+  if (static_cast<int>(members.size()) < in.config.ensemble.min_members || members.empty()) {
+    return Fail(dir, in, Status::Refused(std::to_string(members.size()) + " members finished, fewer than min_members = " +
+                                         std::to_string(in.config.ensemble.min_members)), seconds);
+  }
+  const EnsembleEvaluation ev = EvaluateEnsemble(in.data, members, in.config.ensemble, in.config.report,
+                                                 in.config.run.seed,
+                                                 in.true_probabilities ? &*in.true_probabilities : nullptr);
+  const RunFacts facts{in.config.run.name, in.data.hash, in.config_hash, in.config.ensemble.members,
+                       failures, seconds};
+  const json report = ReportJson(ev, in.data, facts);
+  Status st = WriteFileAtomic(dir.File("report.html"), ReportHtml(report));
+  if (st.ok()) st = WriteFileAtomic(dir.File("report.json"), report.dump(2) + "\n");
+  if (st.ok()) {
+    st = WriteRunBundle(dir.File("bundle.chorus"), in.config, in.data, members, ev, in.config_hash);
+  }
+  if (st.ok()) st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds).dump(2));
+  if (!st.ok()) return Fail(dir, in, st, seconds);
+  dir.LogEvent("run_finished", {{"members", members.size()}});
+  std::printf("%s\nrun directory: %s\n", SummaryTable(ev).c_str(), dir.path().c_str());
+  return 0;
 }
 
 }  // namespace
@@ -121,37 +220,19 @@ int RunCommand(const RunOptions& options) {
     return loaded.status().ExitCode();
   }
   const Inputs& in = loaded.value();
-  StatusOr<RunDirectory> created = RunDirectory::Create(in.config.run.out_dir, in.config.run.name);
-  if (!created.ok()) {
-    std::fprintf(stderr, "chorus run: %s\n", created.status().ToString().c_str());
-    return created.status().ExitCode();
+  StatusOr<RunDirectory> opened = OpenOrCreate(options, in);
+  if (!opened.ok()) {
+    std::fprintf(stderr, "chorus run: %s\n", opened.status().ToString().c_str());
+    return opened.status().ExitCode();
   }
-  RunDirectory& dir = created.value();
-  Status st = WriteFileAtomic(dir.File("config.yaml"), ConfigToYaml(in.config));
-  if (!st.ok()) return Fail(dir, in, st, seconds());
+  RunDirectory& dir = opened.value();
   std::fprintf(stderr, "run directory: %s\ndata: %lld train, %lld validation, %lld test rows; %lld features\n",
                dir.path().c_str(), static_cast<long long>(in.data.train.rows()),
                static_cast<long long>(in.data.validation.rows()),
                static_cast<long long>(in.data.test.rows()), static_cast<long long>(in.data.features()));
-  std::vector<std::string> failures;
-  const std::vector<MemberResult> members = TrainAll(in, dir, failures);
-  if (static_cast<int>(members.size()) < in.config.ensemble.min_members) {
-    return Fail(dir, in, Status::Refused(std::to_string(members.size()) + " members finished, fewer than min_members = " +
-                                         std::to_string(in.config.ensemble.min_members)), seconds());
-  }
-  const EnsembleEvaluation ev = EvaluateEnsemble(
-      in.data, members, in.config.ensemble, in.config.report, in.config.run.seed,
-      in.true_probabilities ? &*in.true_probabilities : nullptr);
-  const RunFacts facts{in.config.run.name, in.data.hash, in.config_hash, in.config.ensemble.members,
-                       failures, seconds()};
-  const json report = ReportJson(ev, in.data, facts);
-  st = WriteFileAtomic(dir.File("report.html"), ReportHtml(report));
-  if (st.ok()) st = WriteFileAtomic(dir.File("report.json"), report.dump(2) + "\n");
-  if (st.ok()) st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds()).dump(2));
-  if (!st.ok()) return Fail(dir, in, st, seconds());
-  dir.LogEvent("run_finished", {{"members", members.size()}});
-  std::printf("%s\nrun directory: %s\n", SummaryTable(ev).c_str(), dir.path().c_str());
-  return 0;
+  StatusOr<std::vector<std::string>> failures = TrainMembers(in, dir);
+  if (!failures.ok()) return Fail(dir, in, failures.status(), seconds());
+  return Finish(dir, in, failures.value(), seconds());
 }
 
 }  // namespace chorus

@@ -7,11 +7,15 @@
 namespace chorus {
 
 struct RunOptions {
-  std::string config_path;
-  std::string out_dir;   // overrides run.out_dir when non-empty
-  int threads = -1;      // overrides compute.threads when >= 0
+  std::string config_path;  // the config; with resume_dir empty, RUN_DIR/config.yaml is used
+  std::string resume_dir;   // continue this run directory: finished jobs are kept, not rerun
+  std::string out_dir;      // overrides run.out_dir when non-empty
+  int threads = -1;         // overrides compute.threads when >= 0
+  int workers = -1;         // overrides cluster.local_workers when >= 0
 };
 
+// Where members train: in this process when cluster.local_workers is 0 and cluster.listen is
+// empty, otherwise on chorus-worker processes over gRPC (coordinator/cluster_run.h).
 // Returns the process exit code (DESIGN.md): 0 success, 1 internal failure, 2 bad input,
 // 3 too few members finished. Progress goes to stderr, the summary table to stdout, errors to
 // stderr. On failure after the run directory exists, manifest.json says "failed" and why and no

@@ -38,6 +38,15 @@ StatusOr<RunDirectory> RunDirectory::Create(const std::string& out_dir, const st
   return Status::Io(stem + ": too many run directories with this name and time");
 }
 
+StatusOr<RunDirectory> RunDirectory::Open(const std::string& path) {
+  struct stat st {};
+  if (::stat((path + "/config.yaml").c_str(), &st) != 0) {
+    return Status::InvalidInput(path + ": not a run directory (no config.yaml)");
+  }
+  CHORUS_RETURN_IF_ERROR(MakeDirectories(path + "/jobs"));
+  return RunDirectory(path);
+}
+
 StatusOr<std::string> RunDirectory::JobDir(int index) const {
   const std::string dir = path_ + "/jobs/" + std::to_string(index);
   CHORUS_RETURN_IF_ERROR(MakeDirectories(dir));

@@ -16,6 +16,8 @@ class RunDirectory {
  public:
   // Creates OUT_DIR/NAME-YYYYMMDD-HHMMSS (UTC; "-2", "-3"... appended if taken) with jobs/ inside.
   static StatusOr<RunDirectory> Create(const std::string& out_dir, const std::string& name);
+  // An existing run directory (for --resume); kInvalidInput if it has no config.yaml.
+  static StatusOr<RunDirectory> Open(const std::string& path);
 
   const std::string& path() const { return path_; }
   std::string File(const std::string& name) const { return path_ + "/" + name; }

@@ -47,7 +47,9 @@ class RunCommandTest : public ::testing::Test {
   static std::string OnlyRunDir(const std::string& out) {
     std::vector<fs::path> dirs;
     if (fs::exists(out)) {
-      for (const auto& e : fs::directory_iterator(out)) dirs.push_back(e.path());
+      for (const auto& e : fs::directory_iterator(out)) {
+        if (e.path().filename().string()[0] != '.') dirs.push_back(e.path());  // not the data cache
+      }
     }
     return dirs.size() == 1 ? dirs[0].string() : "";
   }

@@ -23,6 +23,7 @@ nlohmann::json RunAndReadReport(const std::string& dir, const std::string& confi
   if (r.exit_code != 0) return {};
   std::cout << r.output.substr(r.output.find("test set")) << std::endl;
   for (const auto& e : fs::directory_iterator(dir + "/runs")) {
+    if (e.path().filename().string()[0] == '.') continue;  // the workers' data cache
     return nlohmann::json::parse(testing::ReadTextFile(e.path().string() + "/report.json"));
   }
   return {};

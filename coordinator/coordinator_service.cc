@@ -1,0 +1,229 @@
+#include "coordinator/coordinator_service.h"
+
+#include <openssl/crypto.h>
+
+#include <algorithm>
+#include <cstdio>
+#include <filesystem>
+
+#include "common/file_util.h"
+#include "common/sha256.h"
+#include "proto/result_codec.h"
+#include "proto/spec_codec.h"
+
+namespace chorus {
+namespace {
+
+constexpr size_t kChunkBytes = 1 << 20;
+constexpr int64_t kMaxResultBytes = int64_t{4} << 30;
+
+grpc::Status Invalid(const std::string& msg) { return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT, msg); }
+
+}  // namespace
+
+CoordinatorService::CoordinatorService(DispatchInputs inputs, JobTable* table, RunDirectory* dir)
+    : in_(std::move(inputs)), data_sha_(Sha256Hex(in_.data_bytes.data(), in_.data_bytes.size())),
+      table_(table), dir_(dir) {}
+
+grpc::Status CoordinatorService::Authenticate(grpc::ServerContext* ctx) {
+  const auto& md = ctx->client_metadata();
+  const auto it = md.find("x-chorus-token");
+  const bool ok = it != md.end() && it->second.size() == in_.token.size() &&
+                  CRYPTO_memcmp(it->second.data(), in_.token.data(), in_.token.size()) == 0;
+  if (ok) return grpc::Status::OK;
+  {
+    std::lock_guard<std::mutex> lock(mu_);
+    ++refused_;
+  }
+  const std::string why = it == md.end() ? "no token" : "wrong token";
+  std::fprintf(stderr, "refused a call from %s: %s\n", ctx->peer().c_str(), why.c_str());
+  dir_->LogEvent("call_refused", {{"peer", ctx->peer()}, {"why", why}});
+  return grpc::Status(grpc::StatusCode::UNAUTHENTICATED, "missing or wrong token");
+}
+
+int CoordinatorService::JobIndex(const std::string& job_id) const {
+  int index = -1;
+  try {
+    size_t used = 0;
+    index = std::stoi(job_id, &used);
+    if (used != job_id.size()) return -1;
+  } catch (...) {
+    return -1;
+  }
+  return index >= 0 && index < static_cast<int>(in_.specs.size()) ? index : -1;
+}
+
+void CoordinatorService::Seen(const std::string& worker, const std::string& job,
+                              const wire::HeartbeatRequest* p) {
+  std::lock_guard<std::mutex> lock(mu_);
+  WorkerView& w = workers_[worker];
+  w.job = job;
+  w.last_seen = Clock::now();
+  if (p != nullptr) {
+    w.epoch = p->epoch();
+    w.epochs = p->epochs();
+    w.loss = p->loss();
+    w.samples_per_second = p->samples_per_second();
+  } else {
+    w.epoch = w.epochs = 0;
+  }
+}
+
+grpc::Status CoordinatorService::Register(grpc::ServerContext* ctx, const wire::RegisterRequest* req,
+                                          wire::RegisterReply* reply) {
+  if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  std::string id;
+  {
+    std::lock_guard<std::mutex> lock(mu_);
+    id = "w" + std::to_string(next_worker_++);
+    workers_[id] = WorkerView{req->host(), "", 0, 0, 0, 0, Clock::now()};
+  }
+  reply->set_worker_id(id);
+  reply->set_lease_seconds(in_.lease_seconds);
+  dir_->LogEvent("worker_registered", {{"worker", id}, {"host", req->host()}, {"slots", req->slots()},
+                                       {"pid", req->pid()}, {"peer", ctx->peer()}});
+  return grpc::Status::OK;
+}
+
+grpc::Status CoordinatorService::Lease(grpc::ServerContext* ctx, const wire::LeaseRequest* req,
+                                       wire::LeaseReply* reply) {
+  if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  const std::optional<JobLease> lease = table_->Lease(req->worker_id(), Clock::now());
+  if (!lease) {
+    reply->set_kind(table_->AllSettled() ? wire::LeaseReply::DONE : wire::LeaseReply::WAIT);
+    reply->set_retry_after_seconds(0.5);
+    Seen(req->worker_id(), "", nullptr);
+    return grpc::Status::OK;
+  }
+  reply->set_kind(wire::LeaseReply::JOB);
+  reply->set_job_id(std::to_string(lease->job));
+  reply->set_lease_id(lease->lease_id);
+  SpecToWire(in_.specs[lease->job], reply->mutable_spec());
+  reply->set_data_hash(in_.data_hash);
+  reply->set_config_hash(in_.config_hash);
+  Seen(req->worker_id(), std::to_string(lease->job), nullptr);
+  dir_->LogEvent("job_leased", {{"job", lease->job}, {"worker", req->worker_id()},
+                                {"attempt", lease->attempt}, {"lease", lease->lease_id}});
+  return grpc::Status::OK;
+}
+
+grpc::Status CoordinatorService::Heartbeat(grpc::ServerContext* ctx, const wire::HeartbeatRequest* req,
+                                           wire::HeartbeatReply* reply) {
+  if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  const int job = JobIndex(req->job_id());
+  if (job < 0) return Invalid("unknown job " + req->job_id());
+  reply->set_keep_going(table_->Renew(job, req->lease_id(), Clock::now()));
+  Seen(req->worker_id(), req->job_id(), req);
+  return grpc::Status::OK;
+}
+
+grpc::Status CoordinatorService::FetchData(grpc::ServerContext* ctx, const wire::FetchDataRequest* req,
+                                           grpc::ServerWriter<wire::DataChunk>* writer) {
+  if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  if (req->data_hash() != in_.data_hash) {
+    return grpc::Status(grpc::StatusCode::NOT_FOUND, "no data set " + req->data_hash());
+  }
+  size_t offset = 0;
+  do {
+    wire::DataChunk chunk;
+    if (offset == 0) {
+      chunk.set_total_bytes(static_cast<int64_t>(in_.data_bytes.size()));
+      chunk.set_sha256(data_sha_);
+    }
+    const size_t n = std::min(kChunkBytes, in_.data_bytes.size() - offset);
+    chunk.set_payload(in_.data_bytes.substr(offset, n));
+    offset += n;
+    if (!writer->Write(chunk)) return grpc::Status(grpc::StatusCode::CANCELLED, "client went away");
+  } while (offset < in_.data_bytes.size());
+  return grpc::Status::OK;
+}
+
+grpc::Status CoordinatorService::UploadResult(grpc::ServerContext* ctx,
+                                              grpc::ServerReader<wire::ResultChunk>* reader,
+                                              wire::UploadReply* reply) {
+  if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  wire::ResultChunk chunk;
+  wire::ResultChunk header;
+  std::string bytes;
+  while (reader->Read(&chunk)) {
+    if (bytes.empty() && header.job_id().empty()) {
+      header = chunk;
+      if (header.total_bytes() < 0 || header.total_bytes() > kMaxResultBytes) return Invalid("result too large");
+      bytes.reserve(static_cast<size_t>(header.total_bytes()));
+    }
+    if (static_cast<int64_t>(bytes.size() + chunk.payload().size()) > header.total_bytes()) {
+      return Invalid("more result bytes than announced");
+    }
+    bytes += chunk.payload();
+  }
+  const int job = JobIndex(header.job_id());
+  if (job < 0) return Invalid("unknown job " + header.job_id());
+  if (static_cast<int64_t>(bytes.size()) != header.total_bytes() ||
+      Sha256Hex(bytes.data(), bytes.size()) != header.sha256()) {
+    return Invalid("result transfer incomplete or corrupted");
+  }
+  return Store(job, header.worker_id(), bytes, reply);
+}
+
+grpc::Status CoordinatorService::Store(int job, const std::string& worker, const std::string& bytes,
+                                       wire::UploadReply* reply) {
+  const std::string source = "result of job " + std::to_string(job) + " from " + worker;
+  StatusOr<MemberResult> decoded = DecodeJobResult(bytes, source, in_.data_hash, in_.config_hash);
+  if (!decoded.ok()) return Invalid(decoded.status().message());
+  if (decoded.value().index != job) return Invalid(source + ": names member " + std::to_string(decoded.value().index));
+  StatusOr<std::string> job_dir = dir_->JobDir(job);
+  if (!job_dir.ok()) return grpc::Status(grpc::StatusCode::INTERNAL, job_dir.status().message());
+  const std::string path = job_dir.value() + "/result.pb";
+  auto duplicate = [&] {
+    StatusOr<std::string> first = ReadFileToString(path);
+    const bool same = first.ok() && first.value() == bytes;
+    reply->set_outcome(same ? wire::UploadReply::DUPLICATE_IDENTICAL : wire::UploadReply::DUPLICATE_DIFFERENT);
+    dir_->LogEvent("duplicate_result", {{"job", job}, {"worker", worker}, {"identical", same}});
+    return grpc::Status::OK;
+  };
+  if (table_->Snapshot()[job].state == JobState::kFinished) return duplicate();
+  // The file is complete before the table says finished; a racing upload of the same job writes
+  // the same bytes (results are deterministic) and is then reported as a duplicate.
+  const Status st = WriteFileAtomic(path, bytes);
+  if (!st.ok()) return grpc::Status(grpc::StatusCode::INTERNAL, st.message());
+  if (!table_->Finish(job)) return duplicate();
+  reply->set_outcome(wire::UploadReply::ACCEPTED);
+  Seen(worker, "", nullptr);
+  dir_->LogEvent("member_finished", {{"member", job}, {"job", job}, {"worker", worker}});
+  return grpc::Status::OK;
+}
+
+grpc::Status CoordinatorService::ReportFailure(grpc::ServerContext* ctx, const wire::FailureRequest* req,
+                                               wire::FailureReply*) {
+  if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  const int job = JobIndex(req->job_id());
+  if (job < 0) return Invalid("unknown job " + req->job_id());
+  const bool failed = table_->Fail(job, req->lease_id(), req->cause(), req->deterministic());
+  Seen(req->worker_id(), "", nullptr);
+  dir_->LogEvent(failed ? "member_failed" : "job_retry",
+                 {{"member", job}, {"job", job}, {"worker", req->worker_id()}, {"cause", req->cause()}});
+  return grpc::Status::OK;
+}
+
+grpc::Status CoordinatorService::ReturnLease(grpc::ServerContext* ctx, const wire::ReturnLeaseRequest* req,
+                                             wire::ReturnLeaseReply*) {
+  if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  const int job = JobIndex(req->job_id());
+  if (job < 0) return Invalid("unknown job " + req->job_id());
+  table_->Return(job, req->lease_id());
+  Seen(req->worker_id(), "", nullptr);
+  dir_->LogEvent("lease_returned", {{"job", job}, {"worker", req->worker_id()}});
+  return grpc::Status::OK;
+}
+
+std::map<std::string, WorkerView> CoordinatorService::Workers() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return workers_;
+}
+
+int CoordinatorService::RefusedCalls() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return refused_;
+}
+
+}  // namespace chorus

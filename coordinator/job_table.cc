@@ -1,0 +1,117 @@
+#include "coordinator/job_table.h"
+
+namespace chorus {
+
+const char* JobStateName(JobState s) {
+  switch (s) {
+    case JobState::kQueued: return "queued";
+    case JobState::kLeased: return "leased";
+    case JobState::kFinished: return "finished";
+    case JobState::kFailed: return "failed";
+  }
+  return "?";
+}
+
+JobTable::JobTable(int jobs, int max_attempts, double lease_seconds)
+    : max_attempts_(max_attempts),
+      lease_(std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(lease_seconds))),
+      jobs_(static_cast<size_t>(jobs)) {}
+
+void JobTable::MarkFinished(int job) {
+  std::lock_guard<std::mutex> lock(mu_);
+  jobs_[job].state = JobState::kFinished;
+}
+
+std::optional<JobLease> JobTable::Lease(const std::string& worker, Clock::time_point now) {
+  std::lock_guard<std::mutex> lock(mu_);
+  for (size_t i = 0; i < jobs_.size(); ++i) {
+    Job& j = jobs_[i];
+    if (j.state != JobState::kQueued) continue;
+    j.state = JobState::kLeased;
+    j.lease_id = next_lease_id_++;
+    j.worker = worker;
+    j.deadline = now + lease_;
+    ++j.attempts;
+    return JobLease{static_cast<int>(i), j.lease_id, j.attempts};
+  }
+  return std::nullopt;
+}
+
+bool JobTable::Renew(int job, uint64_t lease_id, Clock::time_point now) {
+  std::lock_guard<std::mutex> lock(mu_);
+  Job& j = jobs_[job];
+  if (!IsCurrent(j, lease_id)) return false;
+  j.deadline = now + lease_;
+  return true;
+}
+
+bool JobTable::Finish(int job) {
+  std::lock_guard<std::mutex> lock(mu_);
+  Job& j = jobs_[job];
+  if (j.state == JobState::kFinished) return false;
+  j.state = JobState::kFinished;
+  j.worker.clear();
+  j.cause.clear();
+  return true;
+}
+
+bool JobTable::EndLease(Job& j, const std::string& cause, bool deterministic) {
+  j.worker.clear();
+  j.cause = cause;
+  const bool failed = deterministic || j.attempts >= max_attempts_;
+  j.state = failed ? JobState::kFailed : JobState::kQueued;
+  return failed;
+}
+
+bool JobTable::Fail(int job, uint64_t lease_id, const std::string& cause, bool deterministic) {
+  std::lock_guard<std::mutex> lock(mu_);
+  Job& j = jobs_[job];
+  if (!IsCurrent(j, lease_id)) return false;
+  return EndLease(j, cause, deterministic);
+}
+
+void JobTable::Return(int job, uint64_t lease_id) {
+  std::lock_guard<std::mutex> lock(mu_);
+  Job& j = jobs_[job];
+  if (!IsCurrent(j, lease_id)) return;
+  j.state = JobState::kQueued;
+  j.worker.clear();
+  --j.attempts;
+}
+
+std::vector<ExpiredLease> JobTable::ExpireLeases(Clock::time_point now) {
+  std::lock_guard<std::mutex> lock(mu_);
+  std::vector<ExpiredLease> expired;
+  for (size_t i = 0; i < jobs_.size(); ++i) {
+    Job& j = jobs_[i];
+    if (j.state != JobState::kLeased || j.deadline >= now) continue;
+    const std::string worker = j.worker;
+    const bool failed = EndLease(j, "lease expired " + std::to_string(j.attempts) + " time(s)", false);
+    expired.push_back({static_cast<int>(i), worker, failed});
+  }
+  return expired;
+}
+
+bool JobTable::AllSettled() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  for (const Job& j : jobs_) {
+    if (j.state == JobState::kQueued || j.state == JobState::kLeased) return false;
+  }
+  return true;
+}
+
+int JobTable::Count(JobState s) const {
+  std::lock_guard<std::mutex> lock(mu_);
+  int n = 0;
+  for (const Job& j : jobs_) n += j.state == s;
+  return n;
+}
+
+std::vector<JobSnapshot> JobTable::Snapshot() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  std::vector<JobSnapshot> out;
+  for (const Job& j : jobs_) out.push_back({j.state, j.attempts, j.worker, j.cause});
+  return out;
+}
+
+}  // namespace chorus

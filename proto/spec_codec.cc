@@ -1,0 +1,60 @@
+#include "proto/spec_codec.h"
+
+namespace chorus {
+
+void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
+  out->set_index(spec.index);
+  out->set_seed(spec.seed);
+  out->mutable_hidden()->Add(spec.model.hidden.begin(), spec.model.hidden.end());
+  out->set_activation(ActivationName(spec.model.activation));
+  const TrainConfig& t = spec.train;
+  out->set_epochs(t.epochs);
+  out->set_batch_size(t.batch_size);
+  out->set_lr(t.optimizer.lr);
+  out->set_momentum(t.optimizer.momentum);
+  out->set_nesterov(t.optimizer.nesterov);
+  out->set_weight_decay(t.optimizer.weight_decay);
+  out->set_clip_norm(t.optimizer.clip_norm);
+  out->set_schedule(ScheduleName(t.schedule.kind));
+  out->set_step_every_epochs(t.schedule.step_every_epochs);
+  out->set_step_factor(t.schedule.step_factor);
+  const BasinConfig& b = spec.basin;
+  out->set_basin_method(BasinMethodName(b.method));
+  out->set_basin_epochs(b.epochs);
+  out->set_basin_lr(b.lr);
+  out->set_basin_snapshots(b.snapshots);
+  out->set_basin_rank(b.rank);
+  out->set_basin_samples(b.samples);
+  out->set_basin_scale(b.scale);
+}
+
+StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
+  const auto activation = ParseActivation(w.activation());
+  const auto schedule = ParseSchedule(w.schedule());
+  const auto basin = ParseBasinMethod(w.basin_method());
+  if (!activation || !schedule || !basin) {
+    return Status::InvalidInput("job spec: unknown activation, schedule or basin method");
+  }
+  const bool sizes_ok = w.epochs() >= 1 && w.batch_size() >= 1 && w.lr() > 0 && w.hidden_size() <= 64 &&
+                        w.step_every_epochs() >= 1 && w.basin_snapshots() >= 2 &&
+                        w.basin_rank() >= 2 && w.basin_rank() <= w.basin_snapshots() &&
+                        w.basin_samples() >= 1 && w.basin_epochs() >= 1 && w.basin_lr() > 0;
+  if (!sizes_ok) return Status::InvalidInput("job spec: a value is out of range");
+  MemberSpec s;
+  s.index = w.index();
+  s.seed = w.seed();
+  s.model.hidden.assign(w.hidden().begin(), w.hidden().end());
+  for (int h : s.model.hidden) {
+    if (h < 1 || h > 65536) return Status::InvalidInput("job spec: hidden width out of range");
+  }
+  s.model.activation = *activation;
+  s.train.epochs = w.epochs();
+  s.train.batch_size = w.batch_size();
+  s.train.optimizer = {w.lr(), w.momentum(), w.nesterov(), w.weight_decay(), w.clip_norm()};
+  s.train.schedule = {*schedule, w.step_every_epochs(), w.step_factor()};
+  s.basin = {*basin, w.basin_epochs(), w.basin_lr(), w.basin_snapshots(), w.basin_rank(),
+             w.basin_samples(), w.basin_scale()};
+  return s;
+}
+
+}  // namespace chorus

@@ -1,0 +1,56 @@
+// The worker's side of the protocol (proto/service.proto): one method per RPC, each turning
+// grpc::Status into chorus::Status at this boundary. Every call sends the token as metadata and
+// has a deadline. Thread safety: safe to share between the worker's slot threads (gRPC stubs are).
+#pragma once
+
+#include <functional>
+#include <memory>
+#include <string>
+
+#include "common/status.h"
+#include "service.grpc.pb.h"
+
+namespace chorus {
+
+struct ConnectionOptions {
+  std::string target;     // HOST:PORT of the coordinator
+  std::string token;      // the shared secret
+  std::string tls_ca;     // PEM file of the CA to trust; empty = plaintext (loopback only)
+  std::string tls_cert;   // optional client certificate and key (PEM files) for mutual TLS
+  std::string tls_key;
+};
+
+class CoordinatorClient {
+ public:
+  // Builds the channel; a bad TLS file is kInvalidInput. Nothing is sent yet.
+  static StatusOr<std::unique_ptr<CoordinatorClient>> Create(const ConnectionOptions& options);
+
+  // kUnavailable when the coordinator cannot be reached (retry later); kInvalidInput when it
+  // refused our token (UNAUTHENTICATED: retrying cannot help).
+  Status Register(const wire::RegisterRequest& request, wire::RegisterReply* reply);
+  Status Lease(const wire::LeaseRequest& request, wire::LeaseReply* reply);
+  Status Heartbeat(const wire::HeartbeatRequest& request, wire::HeartbeatReply* reply);
+  Status ReportFailure(const wire::FailureRequest& request);
+  Status ReturnLease(const wire::ReturnLeaseRequest& request);
+
+  // Streams the data set with `hash`; checks size and SHA-256. Bounded by `max_bytes`.
+  StatusOr<std::string> FetchData(const std::string& hash, int64_t max_bytes);
+
+  // Streams a result's bytes in chunks of at most 1 MiB.
+  Status UploadResult(const std::string& worker_id, const std::string& job_id, uint64_t lease_id,
+                      const std::string& bytes, wire::UploadReply* reply);
+
+ private:
+  CoordinatorClient(std::unique_ptr<wire::Coordinator::Stub> stub, std::string token)
+      : stub_(std::move(stub)), token_(std::move(token)) {}
+  // A context with the token and a deadline `seconds` from now.
+  std::unique_ptr<grpc::ClientContext> Context(double seconds) const;
+
+  std::unique_ptr<wire::Coordinator::Stub> stub_;
+  std::string token_;
+};
+
+// grpc::Status -> chorus::Status, naming the call.
+Status FromGrpc(const grpc::Status& status, const std::string& call);
+
+}  // namespace chorus

@@ -1,0 +1,60 @@
+// chorus-worker: trains jobs for a chorus coordinator on this server.
+#include <CLI/CLI.hpp>
+
+#include <csignal>
+#include <cstdio>
+#include <cstdlib>
+
+#include "common/file_util.h"
+#include "worker/worker_loop.h"
+
+namespace {
+
+std::atomic<bool> g_stop{false};
+
+void OnSignal(int) { g_stop.store(true); }
+
+std::string DefaultCacheDir() {
+  if (const char* xdg = std::getenv("XDG_CACHE_HOME"); xdg != nullptr && *xdg) return std::string(xdg) + "/chorus";
+  if (const char* home = std::getenv("HOME"); home != nullptr && *home) return std::string(home) + "/.cache/chorus";
+  return "";
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  CLI::App app{"chorus-worker: lease ensemble-member jobs from a chorus coordinator, train them on\n"
+               "this server's CPUs and send the results back. Reconnects with backoff while the\n"
+               "coordinator is away; on SIGTERM or SIGINT returns its leases and exits.\n\n"
+               "Exit codes: 0 stopped or done, 1 internal failure, 2 bad usage or token refused."};
+  chorus::WorkerOptions o;
+  std::string token_file;
+  o.cache_dir = DefaultCacheDir();
+  app.add_option("--coordinator", o.connection.target, "HOST:PORT of the coordinator")->required();
+  app.add_option("--token-file", token_file, "file holding the shared token (first line)")->required();
+  app.add_option("--slots", o.slots, "jobs to run at once")->check(CLI::Range(1, 1024))->capture_default_str();
+  app.add_option("--cache-dir", o.cache_dir, "where fetched data sets are cached by hash ('' = none)")
+      ->capture_default_str();
+  app.add_option("--tls-ca", o.connection.tls_ca, "PEM CA certificate to trust (enables TLS)");
+  app.add_option("--tls-cert", o.connection.tls_cert, "PEM client certificate (mutual TLS)")->needs("--tls-ca");
+  app.add_option("--tls-key", o.connection.tls_key, "PEM client key (mutual TLS)")->needs("--tls-cert");
+  app.add_flag("--exit-when-done", o.exit_when_done, "exit once the coordinator has no jobs left");
+  app.add_option("--max-backoff", o.max_backoff_seconds, "longest wait between reconnects, seconds")
+      ->check(CLI::Range(0.1, 3600.0))->capture_default_str();
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    return app.exit(e) == 0 ? 0 : 2;
+  }
+  chorus::StatusOr<std::string> token = chorus::ReadFileToString(token_file, 4096);
+  if (!token.ok()) {
+    std::fprintf(stderr, "chorus-worker: %s\n", token.status().ToString().c_str());
+    return 2;
+  }
+  o.connection.token = token.value().substr(0, token.value().find_first_of("\r\n"));
+  std::signal(SIGTERM, OnSignal);
+  std::signal(SIGINT, OnSignal);
+  const chorus::Status st = chorus::RunWorker(o, g_stop);
+  if (!st.ok()) std::fprintf(stderr, "chorus-worker: %s\n", st.ToString().c_str());
+  return st.ExitCode();
+}
