@@ -59,7 +59,7 @@ int LocalWorkerCount(const ClusterConfig& c) {
 std::vector<std::string> LocalWorkerArgs(const ClusterConfig& c, const Config& config, int port,
                                          const std::string& token_path) {
   std::vector<std::string> args = {"--coordinator", "127.0.0.1:" + std::to_string(port),
-                                   "--token-file", token_path, "--slots", "1", "--exit-when-done",
+                                   "--token-file", token_path, "--slots", "1", "--exit-when-done", "--exit-with-parent",
                                    "--max-backoff", "1", "--cache-dir", config.run.out_dir + "/.cache"};
   if (!c.tls_cert.empty()) args.insert(args.end(), {"--tls-ca", c.tls_cert});
   return args;

@@ -398,9 +398,12 @@ void EmitBasin(YAML::Emitter& out, const BasinConfig& b) {
 void EmitCluster(YAML::Emitter& out, const ClusterConfig& c) {
   out << YAML::Key << "cluster" << YAML::Value << YAML::BeginMap
       << YAML::Key << "local_workers" << YAML::Value << c.local_workers
-      << YAML::Key << "listen" << YAML::Value << (c.listen.empty() ? YAML::Node() : YAML::Node(c.listen))
-      << YAML::Key << "token_file" << YAML::Value
-      << (c.token_file.empty() ? YAML::Node() : YAML::Node(c.token_file));
+      << YAML::Key << "listen" << YAML::Value;
+  if (c.listen.empty()) out << YAML::Null;
+  else out << c.listen;
+  out << YAML::Key << "token_file" << YAML::Value;
+  if (c.token_file.empty()) out << YAML::Null;
+  else out << c.token_file;
   if (!c.tls_cert.empty()) {
     out << YAML::Key << "tls" << YAML::Value << YAML::Flow << YAML::BeginMap << YAML::Key << "cert"
         << YAML::Value << c.tls_cert << YAML::Key << "key" << YAML::Value << c.tls_key;

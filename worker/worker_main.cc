@@ -1,6 +1,9 @@
 // chorus-worker: trains jobs for a chorus coordinator on this server.
 #include <CLI/CLI.hpp>
 
+#include <sys/prctl.h>
+#include <unistd.h>
+
 #include <csignal>
 #include <cstdio>
 #include <cstdlib>
@@ -39,6 +42,9 @@ int main(int argc, char** argv) {
   app.add_option("--tls-cert", o.connection.tls_cert, "PEM client certificate (mutual TLS)")->needs("--tls-ca");
   app.add_option("--tls-key", o.connection.tls_key, "PEM client key (mutual TLS)")->needs("--tls-cert");
   app.add_flag("--exit-when-done", o.exit_when_done, "exit once the coordinator has no jobs left");
+  bool exit_with_parent = false;
+  app.add_flag("--exit-with-parent", exit_with_parent,
+               "stop (as on SIGTERM) when the process that started this one exits");
   app.add_option("--max-backoff", o.max_backoff_seconds, "longest wait between reconnects, seconds")
       ->check(CLI::Range(0.1, 3600.0))->capture_default_str();
   try {
@@ -54,6 +60,11 @@ int main(int argc, char** argv) {
   o.connection.token = token.value().substr(0, token.value().find_first_of("\r\n"));
   std::signal(SIGTERM, OnSignal);
   std::signal(SIGINT, OnSignal);
+  if (exit_with_parent) {
+    const pid_t parent = getppid();
+    prctl(PR_SET_PDEATHSIG, SIGTERM);
+    if (getppid() != parent) g_stop.store(true);  // the parent died before prctl took effect
+  }
   const chorus::Status st = chorus::RunWorker(o, g_stop);
   if (!st.ok()) std::fprintf(stderr, "chorus-worker: %s\n", st.ToString().c_str());
   return st.ExitCode();

@@ -1,7 +1,14 @@
 #include "tests/testing/process.h"
 
 #include <gtest/gtest.h>
+#include <fcntl.h>
+#include <signal.h>
+#include <spawn.h>
 #include <sys/wait.h>
+#include <unistd.h>
+
+#include <chrono>
+#include <thread>
 
 #include <array>
 #include <cstdio>
@@ -27,6 +34,55 @@ CommandResult RunShell(const std::string& command_line, int timeout_seconds) {
   const int status = pclose(pipe);
   result.exit_code = WIFEXITED(status) ? WEXITSTATUS(status) : -1;
   return result;
+}
+
+extern "C" char** environ;
+
+BackgroundProcess::BackgroundProcess(const std::vector<std::string>& argv, const std::string& log_file) {
+  std::vector<std::string> copy = argv;
+  std::vector<char*> args;
+  for (std::string& a : copy) args.push_back(a.data());
+  args.push_back(nullptr);
+  posix_spawn_file_actions_t actions;
+  posix_spawn_file_actions_init(&actions);
+  posix_spawn_file_actions_addopen(&actions, STDOUT_FILENO, log_file.c_str(), O_WRONLY | O_CREAT | O_APPEND, 0644);
+  posix_spawn_file_actions_adddup2(&actions, STDOUT_FILENO, STDERR_FILENO);
+  pid_t pid = -1;
+  if (posix_spawn(&pid, args[0], &actions, nullptr, args.data(), environ) != 0) {
+    ADD_FAILURE() << "cannot start " << argv[0];
+  }
+  posix_spawn_file_actions_destroy(&actions);
+  pid_ = pid;
+}
+
+BackgroundProcess::~BackgroundProcess() {
+  if (pid_ > 0 && !reaped_) {
+    kill(pid_, SIGKILL);
+    waitpid(pid_, nullptr, 0);
+  }
+}
+
+void BackgroundProcess::Signal(int signal) const {
+  if (pid_ > 0 && !reaped_) kill(pid_, signal);
+}
+
+int BackgroundProcess::Wait(double seconds) {
+  const bool done = WaitFor([this] {
+    if (reaped_) return true;
+    if (waitpid(pid_, &status_, WNOHANG) == pid_) reaped_ = true;
+    return reaped_;
+  }, seconds);
+  if (!done) return -1;
+  return WIFEXITED(status_) ? WEXITSTATUS(status_) : 128 + WTERMSIG(status_);
+}
+
+bool WaitFor(const std::function<bool()>& condition, double seconds) {
+  const auto until = std::chrono::steady_clock::now() + std::chrono::duration<double>(seconds);
+  while (!condition()) {
+    if (std::chrono::steady_clock::now() >= until) return false;
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  }
+  return true;
 }
 
 std::string BinaryPath(const std::string& name) { return std::string(CHORUS_BINARY_DIR) + "/" + name; }

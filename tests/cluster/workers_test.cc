@@ -1,0 +1,228 @@
+// Runs with chorus-worker processes over gRPC on loopback: determinism across worker counts,
+// a worker killed mid-job, a coordinator killed and resumed, token refusal, late joiners, TLS.
+// Every process is started by the test, bounded in time, and killed if still running at the end.
+#include <gtest/gtest.h>
+#include <signal.h>
+
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <thread>
+
+#include <nlohmann/json.hpp>
+
+#include "tests/testing/process.h"
+#include "tests/testing/reference.h"
+
+namespace chorus {
+namespace {
+
+namespace fs = std::filesystem;
+using nlohmann::json;
+using testing::BackgroundProcess;
+using testing::WaitFor;
+
+class WorkersTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = testing::MakeTempDir("chorus-workers");
+    const auto r = testing::RunShell(testing::BinaryPath("chorus-demo-data") + " " + dir_ +
+                                     "/data --train-rows 1200 --test-rows 400");
+    ASSERT_EQ(r.exit_code, 0) << r.output;
+  }
+  void TearDown() override {
+    if (!HasFailure()) fs::remove_all(dir_);
+  }
+
+  // A classification config; `epochs` sets how long each job takes, `cluster` is YAML for the
+  // cluster section's contents.
+  std::string WriteConfig(const std::string& name, int members, int epochs, const std::string& cluster) {
+    const std::string path = dir_ + "/" + name + ".yaml";
+    testing::WriteTextFile(path, "run: {name: " + name + ", seed: 5}\n"
+        "data: {train: data/alarms_train.csv, test: data/alarms_test.csv, target: cause,\n"
+        "       categorical: [station]}\n"
+        "model: {hidden: [48, 48]}\n"
+        "train: {epochs: " + std::to_string(epochs) + ", batch_size: 32}\n"
+        "ensemble: {members: " + std::to_string(members) + "}\n"
+        "cluster: {" + cluster + "}\n");
+    return path;
+  }
+
+  std::vector<std::string> Chorus(const std::vector<std::string>& args) {
+    std::vector<std::string> argv = {testing::BinaryPath("chorus")};
+    argv.insert(argv.end(), args.begin(), args.end());
+    return argv;
+  }
+
+  static std::string RunDir(const std::string& out) {
+    if (!fs::exists(out)) return "";
+    for (const auto& e : fs::directory_iterator(out)) {
+      if (e.path().filename().string()[0] != '.') return e.path().string();
+    }
+    return "";
+  }
+
+  static std::vector<json> Events(const std::string& run_dir) {
+    std::vector<json> events;
+    std::ifstream f(run_dir + "/events.jsonl");
+    for (std::string line; std::getline(f, line);) events.push_back(json::parse(line));
+    return events;
+  }
+
+  static int CountEvents(const std::string& run_dir, const std::string& kind) {
+    int n = 0;
+    for (const json& e : Events(run_dir)) n += e["event"] == kind;
+    return n;
+  }
+
+  static std::map<std::string, std::string> Results(const std::string& run_dir) {
+    std::map<std::string, std::string> bytes;
+    for (const auto& e : fs::recursive_directory_iterator(run_dir + "/jobs")) {
+      if (e.path().filename() == "result.pb") {
+        bytes[fs::relative(e.path(), run_dir).string()] = testing::ReadTextFile(e.path().string());
+      }
+    }
+    return bytes;
+  }
+
+  // The in-process results of the same members: the reference every worker run must match byte
+  // for byte (the cluster section changes speed only, not results).
+  std::map<std::string, std::string> InProcessResults(const std::string& name, int members, int epochs) {
+    const std::string out = dir_ + "/reference";
+    fs::remove_all(out);
+    const std::string config = WriteConfig(name, members, epochs, "local_workers: 0");
+    const auto r = testing::RunShell(testing::BinaryPath("chorus") + " run " + config + " --out " + out, 300);
+    EXPECT_EQ(r.exit_code, 0) << r.output;
+    return Results(RunDir(out));
+  }
+
+  // Waits for the coordinator of the run under `out` to publish its address.
+  json WaitForCoordinator(const std::string& out) {
+    json info;
+    WaitFor([&] {
+      const std::string run = RunDir(out);
+      if (run.empty() || !fs::exists(run + "/coordinator.json")) return false;
+      info = json::parse(testing::ReadTextFile(run + "/coordinator.json"));
+      return true;
+    }, 30);
+    return info;
+  }
+
+  std::unique_ptr<BackgroundProcess> StartWorker(const json& coordinator, const std::string& token_file,
+                                                 const std::vector<std::string>& extra = {}) {
+    std::vector<std::string> argv = {testing::BinaryPath("chorus-worker"), "--coordinator",
+                                     coordinator["address"].get<std::string>(), "--token-file", token_file,
+                                     "--cache-dir", dir_ + "/cache", "--exit-when-done", "--max-backoff", "0.5"};
+    argv.insert(argv.end(), extra.begin(), extra.end());
+    return std::make_unique<BackgroundProcess>(argv, dir_ + "/workers.log");
+  }
+
+  std::string dir_;
+};
+
+TEST_F(WorkersTest, ResultsAreBitIdenticalWithOneTwoThreeWorkersAndInProcess) {
+  const std::string cfg = WriteConfig("det", 3, 4, "lease_seconds: 10");
+  const auto reference = InProcessResults("det-reference", 3, 4);
+  ASSERT_EQ(reference.size(), 3u);
+  for (const char* workers : {"1", "2", "3"}) {
+    SCOPED_TRACE(std::string(workers) + " workers");
+    const std::string out = dir_ + "/runs-" + workers;
+    const auto r = testing::RunShell(testing::BinaryPath("chorus") + " run " + cfg + " --workers " +
+                                     workers + " --out " + out, 300);
+    ASSERT_EQ(r.exit_code, 0) << r.output;
+    EXPECT_TRUE(Results(RunDir(out)) == reference);
+    EXPECT_EQ(CountEvents(RunDir(out), "worker_registered"), std::stoi(workers));
+  }
+}
+
+TEST_F(WorkersTest, KilledWorkersJobIsLeasedAgainAndTheRunCompletesIdentically) {
+  const std::string cfg = WriteConfig("kill-worker", 2, 3000,
+                                      "local_workers: 0, listen: \"127.0.0.1:0\", lease_seconds: 1");
+  const std::string out = dir_ + "/runs";
+  BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
+  const json info = WaitForCoordinator(out);
+  ASSERT_FALSE(info.is_null()) << testing::ReadTextFile(dir_ + "/coordinator.log");
+  const std::string run = RunDir(out);
+  auto doomed = StartWorker(info, info["token_file"]);
+  ASSERT_TRUE(WaitFor([&] { return CountEvents(run, "job_leased") >= 1; }, 30));
+  doomed->Signal(SIGKILL);
+  doomed->Wait(5);
+  auto rescuer = StartWorker(info, info["token_file"]);
+  EXPECT_EQ(coordinator.Wait(240), 0) << testing::ReadTextFile(dir_ + "/coordinator.log");
+  EXPECT_GE(CountEvents(run, "lease_expired"), 1);
+  EXPECT_EQ(CountEvents(run, "member_finished"), 2);
+  EXPECT_EQ(rescuer->Wait(30), 0);
+  EXPECT_TRUE(Results(run) == InProcessResults("kill-worker-reference", 2, 3000));
+}
+
+TEST_F(WorkersTest, KilledCoordinatorResumesWithoutRerunningFinishedJobs) {
+  const std::string cfg = WriteConfig("resume", 4, 600, "local_workers: 1, lease_seconds: 2");
+  const std::string out = dir_ + "/runs";
+  {
+    BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
+    ASSERT_TRUE(WaitFor([&] {
+      const std::string run = RunDir(out);
+      return !run.empty() && fs::exists(run + "/events.jsonl") && CountEvents(run, "member_finished") >= 1;
+    }, 120)) << testing::ReadTextFile(dir_ + "/coordinator.log");
+    coordinator.Signal(SIGKILL);
+    coordinator.Wait(5);
+  }
+  const std::string run = RunDir(out);
+  const int finished_before = CountEvents(run, "member_finished");
+  ASSERT_LT(finished_before, 4) << "the kill came too late to test anything";
+  const auto r = testing::RunShell(testing::BinaryPath("chorus") + " run --resume " + run, 300);
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  std::map<int, int> finishes;
+  for (const json& e : Events(run)) {
+    if (e["event"] == "member_finished") ++finishes[e["member"].get<int>()];
+  }
+  ASSERT_EQ(finishes.size(), 4u);
+  for (const auto& [member, count] : finishes) EXPECT_EQ(count, 1) << "member " << member << " ran twice";
+  EXPECT_TRUE(Results(run) == InProcessResults("resume-reference", 4, 600));
+  EXPECT_TRUE(fs::exists(run + "/report.json"));
+}
+
+TEST_F(WorkersTest, WrongTokenIsRefusedAndAWorkerJoiningLateGetsTheJobs) {
+  const std::string cfg = WriteConfig("token", 2, 3, "local_workers: 0, listen: \"127.0.0.1:0\"");
+  const std::string out = dir_ + "/runs";
+  BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
+  const json info = WaitForCoordinator(out);
+  ASSERT_FALSE(info.is_null());
+  const std::string run = RunDir(out);
+  testing::WriteTextFile(dir_ + "/wrong.token", "not-the-token-at-all\n");
+  auto intruder = StartWorker(info, dir_ + "/wrong.token");
+  EXPECT_EQ(intruder->Wait(30), 2) << "a refused worker exits with code 2";
+  EXPECT_GE(CountEvents(run, "call_refused"), 1);
+  EXPECT_EQ(CountEvents(run, "worker_registered"), 0);
+  EXPECT_EQ(CountEvents(run, "job_leased"), 0);
+  auto late = StartWorker(info, info["token_file"]);
+  EXPECT_EQ(coordinator.Wait(120), 0) << testing::ReadTextFile(dir_ + "/coordinator.log");
+  EXPECT_EQ(CountEvents(run, "member_finished"), 2);
+}
+
+// TLS with a server certificate made by the openssl command-line tool for 127.0.0.1.
+TEST_F(WorkersTest, WorkerThatDoesNotTrustTheServerCertificateCannotConnect) {
+  const std::string make_cert =
+      "openssl req -x509 -newkey rsa:2048 -nodes -days 1 -subj /CN=chorus-test "
+      "-addext subjectAltName=IP:127.0.0.1,DNS:localhost ";
+  ASSERT_EQ(testing::RunShell(make_cert + "-keyout " + dir_ + "/key.pem -out " + dir_ + "/cert.pem").exit_code, 0);
+  ASSERT_EQ(testing::RunShell(make_cert + "-keyout " + dir_ + "/other-key.pem -out " + dir_ + "/other.pem").exit_code, 0);
+  const std::string cfg = WriteConfig("tls", 2, 3, "local_workers: 0, listen: \"127.0.0.1:0\", tls: {cert: " +
+                                      dir_ + "/cert.pem, key: " + dir_ + "/key.pem}");
+  const std::string out = dir_ + "/runs";
+  BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
+  const json info = WaitForCoordinator(out);
+  ASSERT_FALSE(info.is_null());
+  const std::string run = RunDir(out);
+  auto distrustful = StartWorker(info, info["token_file"], {"--tls-ca", dir_ + "/other.pem"});
+  std::this_thread::sleep_for(std::chrono::seconds(3));
+  EXPECT_EQ(CountEvents(run, "worker_registered"), 0) << "the handshake must fail";
+  distrustful->Signal(SIGTERM);
+  EXPECT_EQ(distrustful->Wait(10), 0);
+  auto trusting = StartWorker(info, info["token_file"], {"--tls-ca", dir_ + "/cert.pem"});
+  EXPECT_EQ(coordinator.Wait(120), 0) << testing::ReadTextFile(dir_ + "/coordinator.log");
+  EXPECT_EQ(CountEvents(run, "member_finished"), 2);
+}
+
+}  // namespace
+}  // namespace chorus
