@@ -8,11 +8,11 @@
 #include <exception>
 #include <numeric>
 #include <set>
-#include <string_view>
 #include <unordered_map>
 #include <utility>
 
 #include "common/csv.h"
+#include "common/feature_encoder.h"
 #include "common/idx.h"
 #include "common/rng.h"
 #include "common/sha256.h"
@@ -42,26 +42,6 @@ template <typename Scalar>
 struct RowSet {
   const RawRows<Scalar>* raw = nullptr;
   std::vector<int64_t> rows;
-};
-
-// How raw columns become features, in the train header's column order: a numeric column gives
-// its value, a categorical column one 0/1 feature per vocabulary entry.
-struct FeaturePlan {
-  struct Column {
-    std::string name;
-    bool categorical = false;
-    int64_t index = 0;  // into a row of RawRows::numeric, or of RawRows::categories
-  };
-  std::vector<Column> columns;
-  std::vector<CategoricalColumn> categorical;  // vocabularies, filled from the train rows
-
-  int64_t Features() const {
-    int64_t n = 0;
-    for (const Column& c : columns) {
-      n += c.categorical ? static_cast<int64_t>(categorical[c.index].vocabulary.size()) : 1;
-    }
-    return n;
-  }
 };
 
 // Every file's rows, and where validation comes from.
@@ -99,28 +79,6 @@ std::vector<int64_t> AllRows(int64_t n) {
   return rows;
 }
 
-// Reads a whole field as a finite double, independent of the locale. Surrounding spaces and tabs
-// and a leading '+' are allowed.
-Status ParseNumber(const std::string& field, const std::string& place, const std::string& column,
-                   double* value) {
-  const size_t first = field.find_first_not_of(" \t");
-  std::string_view text =
-      first == std::string::npos
-          ? std::string_view()
-          : std::string_view(field).substr(first, field.find_last_not_of(" \t") - first + 1);
-  if (text.size() > 1 && text[0] == '+' && text[1] != '-') text.remove_prefix(1);
-  const char* end = text.data() + text.size();
-  const auto [ptr, error] = std::from_chars(text.data(), end, *value);
-  const std::string found = " in column " + Quoted(column) + ", found " + Quoted(field);
-  if (text.empty() || error == std::errc::invalid_argument || ptr != end) {
-    return Status::InvalidInput(place + ": expected a number" + found);
-  }
-  if (error == std::errc::result_out_of_range || !std::isfinite(*value)) {
-    return Status::InvalidInput(place + ": expected a finite number" + found);
-  }
-  return Status::Ok();
-}
-
 bool ParseInteger(const std::string& text, int64_t* value) {
   const char* end = text.data() + text.size();
   const auto [ptr, error] = std::from_chars(text.data(), end, *value);
@@ -131,20 +89,10 @@ bool ParseInteger(const std::string& text, int64_t* value) {
 
 // Writes row r's features, unstandardised, to out[0 .. plan.Features()).
 template <typename Scalar>
-void EncodeRow(const RawRows<Scalar>& raw, int64_t r, const FeaturePlan& plan, double* out) {
-  const Scalar* numeric = raw.numeric.data() + r * raw.numeric_cols;
-  for (const FeaturePlan::Column& column : plan.columns) {
-    if (!column.categorical) {
-      *out++ = numeric[column.index];
-      continue;
-    }
-    const std::vector<std::string>& vocabulary = plan.categorical[column.index].vocabulary;
-    const std::string& value = raw.categories[r][column.index];
-    std::fill(out, out + vocabulary.size(), 0.0);
-    const auto it = std::lower_bound(vocabulary.begin(), vocabulary.end(), value);
-    if (it != vocabulary.end() && *it == value) out[it - vocabulary.begin()] = 1.0;
-    out += vocabulary.size();
-  }
+void EncodeRawRow(const RawRows<Scalar>& raw, int64_t r, const FeaturePlan& plan, double* out) {
+  const std::vector<std::string>* categories =
+      raw.categories.empty() ? nullptr : &raw.categories[r];
+  EncodeRow(plan, raw.numeric.data() + r * raw.numeric_cols, categories, out);
 }
 
 // Sets each categorical column's vocabulary to the sorted distinct values in `train`.
@@ -157,20 +105,6 @@ void FillVocabularies(const RowSet<Scalar>& train, FeaturePlan* plan) {
   }
 }
 
-std::vector<std::string> FeatureNames(const FeaturePlan& plan) {
-  std::vector<std::string> names;
-  for (const FeaturePlan::Column& column : plan.columns) {
-    if (!column.categorical) {
-      names.push_back(column.name);
-      continue;
-    }
-    for (const std::string& value : plan.categorical[column.index].vocabulary) {
-      names.push_back(column.name + "=" + value);
-    }
-  }
-  return names;
-}
-
 // Mean and population standard deviation per feature over `train` (two passes, in double).
 template <typename Scalar>
 Standardizer FitStandardizer(const RowSet<Scalar>& train, const FeaturePlan& plan) {
@@ -178,12 +112,12 @@ Standardizer FitStandardizer(const RowSet<Scalar>& train, const FeaturePlan& pla
   const double n = static_cast<double>(train.rows.size());
   std::vector<double> row(features), mean(features, 0.0), squares(features, 0.0);
   for (int64_t r : train.rows) {
-    EncodeRow(*train.raw, r, plan, row.data());
+    EncodeRawRow(*train.raw, r, plan, row.data());
     for (size_t j = 0; j < features; ++j) mean[j] += row[j];
   }
   for (double& m : mean) m /= n;
   for (int64_t r : train.rows) {
-    EncodeRow(*train.raw, r, plan, row.data());
+    EncodeRawRow(*train.raw, r, plan, row.data());
     for (size_t j = 0; j < features; ++j) squares[j] += (row[j] - mean[j]) * (row[j] - mean[j]);
   }
   Standardizer s;
@@ -203,10 +137,8 @@ Matrix Standardize(const RowSet<Scalar>& set, const FeaturePlan& plan, const Sta
   Matrix x(static_cast<Eigen::Index>(set.rows.size()), features);
   std::vector<double> row(static_cast<size_t>(features));
   for (size_t i = 0; i < set.rows.size(); ++i) {
-    EncodeRow(*set.raw, set.rows[i], plan, row.data());
-    for (int64_t j = 0; j < features; ++j) {
-      x(static_cast<Eigen::Index>(i), j) = static_cast<float>((row[j] - s.mean[j]) / s.scale[j]);
-    }
+    EncodeRawRow(*set.raw, set.rows[i], plan, row.data());
+    StandardizeRow(s, row.data(), x.row(static_cast<Eigen::Index>(i)).data());
   }
   return x;
 }
@@ -345,8 +277,8 @@ std::string HashOf(const PreparedData& d) {
   h.Text(TaskName(d.task));
   h.Texts(d.feature_names);
   h.Texts(d.class_names);
-  h.Count(d.categorical.size());
-  for (const CategoricalColumn& c : d.categorical) {
+  h.Count(d.plan.categorical.size());
+  for (const CategoricalColumn& c : d.plan.categorical) {
     h.Text(c.name);
     h.Texts(c.vocabulary);
   }
@@ -378,8 +310,8 @@ StatusOr<PreparedData> Prepare(const RawData<Scalar>& raw, const DataConfig& con
   FillVocabularies(train, &plan);
   PreparedData data;
   data.task = config.task;
-  data.feature_names = FeatureNames(plan);
-  data.categorical = plan.categorical;
+  data.feature_names = plan.FeatureNames();
+  data.plan = plan;
   if (data.task == Task::kClassification) {
     CHORUS_ASSIGN_OR_RETURN(data.class_names, ClassNames(train, raw.train_file));
   } else {
@@ -499,7 +431,7 @@ StatusOr<RawRows<double>> CsvRows(CsvTable table, const FeaturePlan& plan, const
   }
   CHORUS_ASSIGN_OR_RETURN(const CsvLayout layout, MapColumns(table, plan, config.target));
   RawRows<double> raw;
-  raw.numeric_cols = static_cast<int64_t>(plan.columns.size() - plan.categorical.size());
+  raw.numeric_cols = plan.NumericColumns();
   for (size_t r = 0; r < table.rows.size(); ++r) {
     CHORUS_RETURN_IF_ERROR(AddCsvRow(table, r, plan, layout, config, &raw));
   }

@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "common/config.h"
+#include "common/feature_encoder.h"
 #include "common/matrix.h"
 #include "common/status.h"
 
@@ -25,26 +26,11 @@ struct Split {
   int64_t rows() const { return x.rows(); }
 };
 
-// Per-feature standardisation fitted on the training split only: x' = (x - mean) / scale, where
-// scale is the population standard deviation, or 1 where that is below 1e-12. One-hot features
-// are standardised like every other feature.
-struct Standardizer {
-  std::vector<float> mean;
-  std::vector<float> scale;
-};
-
-// A categorical CSV column and its one-hot vocabulary from the training split (sorted). A value
-// not in the vocabulary encodes as all zeros.
-struct CategoricalColumn {
-  std::string name;
-  std::vector<std::string> vocabulary;
-};
-
 struct PreparedData {
   Task task = Task::kClassification;
   std::vector<std::string> feature_names;   // after one-hot expansion ("site=north")
   std::vector<std::string> class_names;     // classification: sorted labels seen in train
-  std::vector<CategoricalColumn> categorical;
+  FeaturePlan plan;                         // raw columns -> features, with the train vocabularies
   Standardizer standardizer;
   float target_mean = 0.0f;                 // regression: y' = (y - target_mean) / target_scale
   float target_scale = 1.0f;

@@ -4,12 +4,15 @@
 #include <cmath>
 
 #include "common/heads.h"
+#include "common/reliability.h"
 #include "common/rng.h"
 #include "common/uncertainty.h"
 #include "common/weighting.h"
 
 namespace chorus {
 namespace {
+
+constexpr int kHistogramBins = 20;
 
 // One assembled mixture: weights per member, temperature, and its test scores.
 struct Assembled {
@@ -114,6 +117,13 @@ std::vector<double> Coverages() {
   return c;
 }
 
+// Nominal levels of the regression interval-coverage diagram: 0.05, 0.10, ..., 0.95.
+std::vector<double> NominalLevels() {
+  std::vector<double> q;
+  for (int pct = 5; pct <= 95; pct += 5) q.push_back(pct / 100.0);
+  return q;
+}
+
 // Entropy split of the calibrated test mixture, and how well each part flags its errors.
 void ClassificationUncertainty(const MemberSamples& test, const std::vector<double>& weights,
                                double temperature, const std::vector<int32_t>& labels,
@@ -144,20 +154,57 @@ void ClassificationUncertainty(const MemberSamples& test, const std::vector<doub
   u.auroc_epistemic = Auroc(split.epistemic, wrong);
   u.coverages = Coverages();
   u.selective_accuracy = SelectiveAccuracy(confidence, correct, u.coverages);
+  u.epistemic_histogram = HistogramByOutcome(split.epistemic, correct, kHistogramBins);
 }
 
-void RegressionUncertainty(const MemberSampleGaussians& test, const std::vector<double>& weights,
-                           double scale, UncertaintySummary& u) {
+// Reliability diagrams of the weighted test mixture at T = 1 and at the tuned T.
+void ClassificationReliability(const MemberSamples& test, const std::vector<int32_t>& labels,
+                               int bins, EnsembleEvaluation& ev) {
+  std::vector<const Matrix*> comps;
+  std::vector<double> cw;
+  Flatten(test, ev.weights, &comps, &cw);
+  ev.reliability = ReliabilityBins(MixtureProbabilities(comps, cw, ev.temperature), labels, bins);
+  ev.reliability_uncalibrated = ReliabilityBins(MixtureProbabilities(comps, cw, 1.0), labels, bins);
+}
+
+// Variance split of the calibrated test mixture, its epistemic histogram (hits: targets inside
+// the 90% interval, from the PIT) and selective RMSE ranked by total variance.
+void RegressionUncertainty(const GaussianMixture& calibrated, const std::vector<double>& pit,
+                           const std::vector<double>& y, UncertaintySummary& u) {
+  const UncertaintySplit split = SplitVariance(calibrated);
+  const size_t n = y.size();
+  std::vector<double> epistemic_std(n), errors(n);
+  std::vector<bool> inside(n);
+  for (size_t i = 0; i < n; ++i) {
+    u.total += split.total[i] / static_cast<double>(n);
+    u.aleatoric += split.aleatoric[i] / static_cast<double>(n);
+    u.epistemic += split.epistemic[i] / static_cast<double>(n);
+    epistemic_std[i] = std::sqrt(split.epistemic[i]);
+    inside[i] = std::abs(pit[i] - 0.5) <= 0.45;
+    double mean = 0;
+    for (size_t m = 0; m < calibrated.weights.size(); ++m) {
+      mean += calibrated.weights[m] * calibrated.mean(static_cast<Eigen::Index>(i), m);
+    }
+    errors[i] = y[i] - mean;
+  }
+  u.epistemic_histogram = HistogramByOutcome(epistemic_std, inside, kHistogramBins);
+  u.coverages = Coverages();
+  u.selective_rmse = SelectiveRmse(split.total, errors, u.coverages);
+}
+
+// Interval coverage of the weighted test mixture at scale 1 and at the tuned scale, and the
+// uncertainty summary of the calibrated one.
+void RegressionCalibration(const MemberSampleGaussians& test, const std::vector<double>& y,
+                           EnsembleEvaluation& ev) {
   std::vector<const MemberGaussian*> comps;
   std::vector<double> cw;
-  Flatten(test, weights, &comps, &cw);
-  const UncertaintySplit split = SplitVariance(MixtureGaussians(comps, cw, scale));
-  const double n = static_cast<double>(split.total.size());
-  for (size_t i = 0; i < split.total.size(); ++i) {
-    u.total += split.total[i] / n;
-    u.aleatoric += split.aleatoric[i] / n;
-    u.epistemic += split.epistemic[i] / n;
-  }
+  Flatten(test, ev.weights, &comps, &cw);
+  const GaussianMixture calibrated = MixtureGaussians(comps, cw, ev.temperature);
+  const std::vector<double> pit = MixturePit(calibrated, y);
+  ev.interval_coverage = IntervalCoverages(pit, NominalLevels());
+  ev.interval_coverage_uncalibrated =
+      IntervalCoverages(MixturePit(MixtureGaussians(comps, cw, 1.0), y), NominalLevels());
+  RegressionUncertainty(calibrated, pit, y, ev.uncertainty);
 }
 
 MemberSamples Points(const std::vector<MemberResult>& members, bool validation) {
@@ -189,6 +236,7 @@ void EvaluateClassification(const PreparedData& data, const std::vector<MemberRe
     s.validation_nll = -l.col(static_cast<Eigen::Index>(m)).array().max(1e-300).log().mean();
   }
   ClassificationUncertainty(test, ev.weights, ev.temperature, data.test.labels, ev.uncertainty);
+  ClassificationReliability(test, data.test.labels, rep.ece_bins, ev);
   ev.size_curve = ClassificationSizeGrid(val, data.validation.labels, test, data.test.labels,
                                          rep.size_curve_subsets, rep.ece_bins, seed);
 }
@@ -251,7 +299,7 @@ void EvaluateRegression(const PreparedData& data, const std::vector<MemberResult
     s.test_point.regression = ScoreRegression(MixtureGaussians({&test_g.points[m]}, {1.0}, 1.0), y_test);
     s.validation_nll = -l.col(static_cast<Eigen::Index>(m)).array().max(1e-300).log().mean();
   }
-  RegressionUncertainty(test, ev.weights, ev.temperature, ev.uncertainty);
+  RegressionCalibration(test, y_test, ev);
   ev.size_curve = RegressionSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets, seed);
 }
 

@@ -6,7 +6,8 @@
 // (uniform, stacking or greedy: common/weighting.h); then one temperature is tuned on validation
 // for the weighted mixture. Weights decide which members to trust; the temperature then fixes the
 // mixture's overall sharpness, a 1-D correction that cannot undo a bad weighting but does correct
-// the over- or under-confidence the weighting leaves. Each member's samples share its weight equally.
+// the over- or under-confidence the weighting leaves. Each member's samples share its weight
+// equally.
 // Thread safety: free functions, reentrant.
 #pragma once
 
@@ -18,6 +19,7 @@
 #include "common/dataset.h"
 #include "common/member_training.h"
 #include "common/metrics.h"
+#include "common/reliability.h"
 #include "common/size_curve.h"
 
 namespace chorus {
@@ -44,7 +46,12 @@ struct UncertaintySummary {
   double total = 0, aleatoric = 0, epistemic = 0;
   double auroc_total = 0, auroc_aleatoric = 0, auroc_epistemic = 0;  // classification only
   std::vector<double> coverages;            // 0.50, 0.55, ..., 1.00
-  std::vector<double> selective_accuracy;   // accuracy on the most confident c of inputs
+  std::vector<double> selective_accuracy;   // classification: accuracy on the most confident c
+  std::vector<double> selective_rmse;       // regression: RMSE on the c with least total variance
+  // The epistemic part per test input of the calibrated mixture, binned (common/reliability.h).
+  // Classification: mutual information (nats); hits are correct predictions. Regression: standard
+  // deviation of the members' means (target units); hits are targets inside the 90% interval.
+  OutcomeHistogram epistemic_histogram;
 };
 
 struct EnsembleEvaluation {
@@ -62,6 +69,12 @@ struct EnsembleEvaluation {
   Scores mean_member;            // metric-wise mean over members
   int best_member = 0;           // position in `members` with the lowest validation NLL
   UncertaintySummary uncertainty;
+  // Classification: reliability diagrams of the test mixture at T = 1 and at the tuned T, with
+  // report.ece_bins bins. Empty for regression.
+  std::vector<ReliabilityBin> reliability_uncalibrated, reliability;
+  // Regression: coverage of the test mixture's central intervals at nominal levels 0.05, 0.10,
+  // ..., 0.95, at scale 1 and at the tuned scale. Empty for classification.
+  std::vector<IntervalCoverage> interval_coverage_uncalibrated, interval_coverage;
   std::vector<SizeCurvePoint> size_curve;
   std::optional<double> bayes_optimal_test_nll;  // when true class probabilities are known
 };
@@ -73,7 +86,8 @@ MemberGaussian ToGaussian(const Matrix& outputs, const PreparedData& data);
 // Requires at least one member; every member's outputs match the data's validation/test rows and
 // every member has the same number of samples. true_probabilities: optional test rows x classes
 // matrix of the data's true class probabilities.
-EnsembleEvaluation EvaluateEnsemble(const PreparedData& data, const std::vector<MemberResult>& members,
+EnsembleEvaluation EvaluateEnsemble(const PreparedData& data,
+                                    const std::vector<MemberResult>& members,
                                     const EnsembleConfig& ensemble, const ReportConfig& report,
                                     uint64_t seed, const Matrix* true_probabilities);
 

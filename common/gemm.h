@@ -1,7 +1,9 @@
 // The one interface every matrix product in chorus goes through, so the backend can be chosen by
-// measurement without touching model code. Today's backend: Eigen's own product.
+// measurement without touching model code. Backend: oneDNN's sgemm (runtime CPU dispatch),
+// chosen over Eigen's product by bench/gemm_backends.cc.
 // Shapes: op(A) is m x k, op(B) is k x n, C is m x n; all row-major (common/matrix.h).
-// Thread safety: reentrant; the function uses only the calling thread.
+// Thread safety: reentrant; the function uses only the calling thread. Deterministic for a given
+// instruction set: the same inputs give the same bits.
 #pragma once
 
 #include "common/matrix.h"

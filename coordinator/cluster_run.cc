@@ -97,7 +97,7 @@ Status Supervise(JobTable& table, CoordinatorService& service, RunDirectory& dir
 
 }  // namespace
 
-StatusOr<std::vector<JobSnapshot>> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory& dir) {
+StatusOr<ClusterOutcome> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory& dir) {
   const ClusterConfig& c = jobs.config->cluster;
   const int local = LocalWorkerCount(c);
   if (local > 0 && !c.tls_client_ca.empty()) {
@@ -133,7 +133,9 @@ StatusOr<std::vector<JobSnapshot>> RunJobsOnWorkers(const ClusterJobs& jobs, Run
   workers.Stop(2.0);
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(2));
   CHORUS_RETURN_IF_ERROR(st);
-  return table.Snapshot();
+  ClusterOutcome outcome{table.Snapshot(), {}};
+  for (const auto& [id, view] : service.Workers()) outcome.workers.emplace_back(id, view.host);
+  return outcome;
 }
 
 }  // namespace chorus

@@ -22,9 +22,14 @@ struct ClusterJobs {
   std::vector<bool> already_finished;  // jobs whose results are on disk (resume)
 };
 
-// Serves jobs until every one has finished or failed; returns each job's final state.
+struct ClusterOutcome {
+  std::vector<JobSnapshot> jobs;                  // each job's final state
+  std::vector<std::pair<std::string, std::string>> workers;  // (worker id, host) seen
+};
+
+// Serves jobs until every one has finished or failed.
 // Errors: kInvalidInput for a bad TLS/token file or an address that cannot be bound; kInternal
 // if the embedded workers cannot be started or all keep dying.
-StatusOr<std::vector<JobSnapshot>> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory& dir);
+StatusOr<ClusterOutcome> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory& dir);
 
 }  // namespace chorus

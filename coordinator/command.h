@@ -14,5 +14,9 @@ namespace chorus {
 using CommandRunner = std::function<int()>;
 
 void RegisterRunCommand(CLI::App& app, CommandRunner* runner);
+void RegisterPredictCommand(CLI::App& app, CommandRunner* runner);
+void RegisterInspectCommand(CLI::App& app, CommandRunner* runner);
+void RegisterReportCommand(CLI::App& app, CommandRunner* runner);
+void RegisterCompareCommand(CLI::App& app, CommandRunner* runner);
 
 }  // namespace chorus

@@ -289,7 +289,8 @@ Status LoadCompute(const Section& s, ComputeConfig* c) {
 Status LoadCluster(const Section& s, const std::string& base, ClusterConfig* c) {
   CHORUS_RETURN_IF_ERROR(s.Check({"local_workers", "listen", "token_file", "tls", "lease_seconds",
                                   "max_attempts"}));
-  CHORUS_RETURN_IF_ERROR(s.Get<int>("local_workers", &c->local_workers, "a worker count", 0, 4096));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("local_workers", &c->local_workers,
+                                    "a worker count (-1 = one per core)", -1, 4096));
   CHORUS_RETURN_IF_ERROR(s.GetString("listen", &c->listen));
   CHORUS_RETURN_IF_ERROR(s.GetString("token_file", &c->token_file));
   CHORUS_RETURN_IF_ERROR(s.Get<double>("lease_seconds", &c->lease_seconds, "seconds", 0.1, 86400.0));

@@ -14,6 +14,10 @@ int main(int argc, char** argv) {
   app.set_version_flag("--version", CHORUS_VERSION);
   chorus::CommandRunner runner;
   chorus::RegisterRunCommand(app, &runner);
+  chorus::RegisterPredictCommand(app, &runner);
+  chorus::RegisterInspectCommand(app, &runner);
+  chorus::RegisterReportCommand(app, &runner);
+  chorus::RegisterCompareCommand(app, &runner);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {

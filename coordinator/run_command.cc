@@ -65,7 +65,13 @@ std::string HostName() {
   return buf;
 }
 
-json Manifest(const Inputs& in, const std::string& status, const std::string& cause, double seconds) {
+// Who trained the members: the workers that registered, or this process.
+using WorkersSeen = std::vector<std::pair<std::string, std::string>>;
+
+json Manifest(const Inputs& in, const std::string& status, const std::string& cause, double seconds,
+              const WorkersSeen& workers = {}) {
+  json seen = json::array();
+  for (const auto& [id, host] : workers) seen.push_back({{"id", id}, {"host", host}});
   json seeds = json::array();
   for (const MemberSpec& s : PlanMembers(in.config)) seeds.push_back(std::to_string(s.seed));
   const unsigned cores = std::thread::hardware_concurrency();
@@ -74,7 +80,8 @@ json Manifest(const Inputs& in, const std::string& status, const std::string& ca
           {"run_seed", std::to_string(in.config.run.seed)}, {"member_seeds", seeds},
           {"wall_seconds", seconds}, {"gemm_backend", GemmBackendName()},
           {"coordinator", {{"host", HostName()}, {"cores", cores},
-                           {"mode", InProcess(in.config) ? "in-process" : "workers"}}}};
+                           {"mode", InProcess(in.config) ? "in-process" : "workers"}}},
+          {"workers", seen}};
 }
 
 // On resume: the config and data must be the ones the run started with.
@@ -131,20 +138,32 @@ std::vector<std::string> TrainInProcess(const Inputs& in, RunDirectory& dir, con
   return failures;
 }
 
-// Trains what is not finished, in process or on workers; returns failure causes.
-StatusOr<std::vector<std::string>> TrainMembers(const Inputs& in, RunDirectory& dir) {
+struct TrainingOutcome {
+  std::vector<std::string> failures;  // "member i: cause"
+  WorkersSeen workers;
+};
+
+// Trains what is not finished, in process or on workers.
+StatusOr<TrainingOutcome> TrainMembers(const Inputs& in, RunDirectory& dir) {
   const std::vector<bool> finished = FinishedOnDisk(dir, in, in.config.ensemble.members);
   int kept = 0;
   for (bool f : finished) kept += f;
   dir.LogEvent("training_started", {{"members", in.config.ensemble.members}, {"already_finished", kept}});
-  if (InProcess(in.config)) return TrainInProcess(in, dir, finished);
-  CHORUS_ASSIGN_OR_RETURN(std::vector<JobSnapshot> jobs,
-                          RunJobsOnWorkers({&in.config, &in.data, in.config_hash, PlanMembers(in.config), finished}, dir));
-  std::vector<std::string> failures;
-  for (size_t i = 0; i < jobs.size(); ++i) {
-    if (jobs[i].state == JobState::kFailed) failures.push_back("member " + std::to_string(i) + ": " + jobs[i].cause);
+  if (InProcess(in.config)) {
+    const unsigned threads = in.config.compute.threads > 0 ? in.config.compute.threads
+                                                           : std::thread::hardware_concurrency();
+    return TrainingOutcome{TrainInProcess(in, dir, finished),
+                           {{"in-process (" + std::to_string(threads) + " threads)", HostName()}}};
   }
-  return failures;
+  CHORUS_ASSIGN_OR_RETURN(ClusterOutcome run, RunJobsOnWorkers({&in.config, &in.data, in.config_hash,
+                                                                PlanMembers(in.config), finished}, dir));
+  TrainingOutcome outcome{{}, run.workers};
+  for (size_t i = 0; i < run.jobs.size(); ++i) {
+    if (run.jobs[i].state == JobState::kFailed) {
+      outcome.failures.push_back("member " + std::to_string(i) + ": " + run.jobs[i].cause);
+    }
+  }
+  return outcome;
 }
 
 // Every finished member's result, read back from disk, in member order.
@@ -182,7 +201,8 @@ StatusOr<RunDirectory> OpenOrCreate(const RunOptions& options, const Inputs& in)
 }
 
 // Assembles, reports and writes the closing files of a run whose members are on disk.
-int Finish(RunDirectory& dir, const Inputs& in, const std::vector<std::string>& failures, double seconds) {
+int Finish(RunDirectory& dir, const Inputs& in, const TrainingOutcome& trained, double seconds) {
+  const std::vector<std::string>& failures = trained.failures;
   for (const std::string& f : failures) std::fprintf(stderr, "failed: %s\n", f.c_str());
   StatusOr<std::vector<MemberResult>> loaded = LoadResults(dir, in);
   if (!loaded.ok()) return Fail(dir, in, loaded.status(), seconds);
@@ -230,9 +250,9 @@ int RunCommand(const RunOptions& options) {
                dir.path().c_str(), static_cast<long long>(in.data.train.rows()),
                static_cast<long long>(in.data.validation.rows()),
                static_cast<long long>(in.data.test.rows()), static_cast<long long>(in.data.features()));
-  StatusOr<std::vector<std::string>> failures = TrainMembers(in, dir);
-  if (!failures.ok()) return Fail(dir, in, failures.status(), seconds());
-  return Finish(dir, in, failures.value(), seconds());
+  StatusOr<TrainingOutcome> trained = TrainMembers(in, dir);
+  if (!trained.ok()) return Fail(dir, in, trained.status(), seconds());
+  return Finish(dir, in, trained.value(), seconds());
 }
 
 }  // namespace chorus

@@ -1,7 +1,9 @@
 #include "coordinator/run_report.h"
 
-#include <cmath>
-#include <sstream>
+#include <filesystem>
+#include <utility>
+
+#include "common/file_util.h"
 
 namespace chorus {
 
@@ -14,6 +16,8 @@ const char* const kCautionText =
 namespace {
 
 using nlohmann::json;
+
+constexpr int64_t kMaxReportBytes = int64_t{256} << 20;
 
 json ScoresJson(Task task, const Scores& s) {
   if (task == Task::kClassification) {
@@ -42,53 +46,125 @@ json SizeCurveJson(Task task, const std::vector<SizeCurvePoint>& curve) {
   return out;
 }
 
+json MembersJson(const EnsembleEvaluation& ev) {
+  json members = json::array();
+  for (const MemberScores& m : ev.members) {
+    members.push_back({{"index", m.index},
+                       {"seed", std::to_string(m.seed)},
+                       {"samples", m.samples},
+                       {"validation_nll", m.validation_nll},
+                       {"test", ScoresJson(ev.task, m.test)},
+                       {"test_trained_point", ScoresJson(ev.task, m.test_point)}});
+  }
+  return members;
+}
+
+json ReliabilityJson(const std::vector<ReliabilityBin>& bins) {
+  json out = json::array();
+  for (const ReliabilityBin& b : bins) {
+    out.push_back({{"lower", b.lower},
+                   {"upper", b.upper},
+                   {"count", b.count},
+                   {"confidence", b.confidence},
+                   {"accuracy", b.accuracy}});
+  }
+  return out;
+}
+
+json IntervalCoverageJson(const std::vector<IntervalCoverage>& levels) {
+  json out = json::array();
+  for (const IntervalCoverage& c : levels) {
+    out.push_back({{"nominal", c.nominal}, {"observed", c.observed}});
+  }
+  return out;
+}
+
+json HistogramJson(Task task, const OutcomeHistogram& h) {
+  const bool classification = task == Task::kClassification;
+  return {{"quantity", classification ? "mutual information (nats)"
+                                      : "std of the members' means (target units)"},
+          {"edges", h.edges},
+          {"groups",
+           {{{"name", classification ? "correct" : "inside 90% interval"}, {"counts", h.hits}},
+            {{"name", classification ? "wrong" : "outside 90% interval"}, {"counts", h.misses}}}}};
+}
+
+// Pairs {"coverage": c, key: values[i]} for the selective-prediction curve.
+json SelectiveJson(const std::vector<double>& coverages, const std::vector<double>& values,
+                   const char* key) {
+  json out = json::array();
+  for (size_t i = 0; i < coverages.size(); ++i) {
+    out.push_back({{"coverage", coverages[i]}, {key, values[i]}});
+  }
+  return out;
+}
+
+json UncertaintyJson(const EnsembleEvaluation& ev) {
+  const UncertaintySummary& u = ev.uncertainty;
+  const bool classification = ev.task == Task::kClassification;
+  json out = {
+      {"unit", classification ? "nats (entropy)" : "target units squared (variance)"},
+      {"test_mean", {{"total", u.total}, {"aleatoric", u.aleatoric}, {"epistemic", u.epistemic}}},
+      {"epistemic_histogram", HistogramJson(ev.task, u.epistemic_histogram)}};
+  if (classification) {
+    out["auroc_misclassified"] = {{"total", u.auroc_total},
+                                  {"aleatoric", u.auroc_aleatoric},
+                                  {"epistemic", u.auroc_epistemic}};
+    out["selective_accuracy"] = SelectiveJson(u.coverages, u.selective_accuracy, "accuracy");
+  } else {
+    out["selective_rmse"] = SelectiveJson(u.coverages, u.selective_rmse, "rmse");
+  }
+  return out;
+}
+
+// Adds the task's calibration diagram: reliability bins or interval coverage.
+void AddCalibrationDiagram(const EnsembleEvaluation& ev, json& report) {
+  if (ev.task == Task::kClassification) {
+    report["reliability"] = {{"uncalibrated", ReliabilityJson(ev.reliability_uncalibrated)},
+                             {"calibrated", ReliabilityJson(ev.reliability)}};
+  } else {
+    report["interval_coverage"] = {
+        {"uncalibrated", IntervalCoverageJson(ev.interval_coverage_uncalibrated)},
+        {"calibrated", IntervalCoverageJson(ev.interval_coverage)}};
+  }
+}
+
 }  // namespace
 
 json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const RunFacts& facts) {
-  json members = json::array();
-  for (const MemberScores& m : ev.members) {
-    members.push_back({{"index", m.index}, {"seed", std::to_string(m.seed)}, {"samples", m.samples},
-                       {"validation_nll", m.validation_nll}, {"test", ScoresJson(ev.task, m.test)},
-                       {"test_trained_point", ScoresJson(ev.task, m.test_point)}});
-  }
-  const UncertaintySummary& u = ev.uncertainty;
-  json uncertainty = {{"unit", ev.task == Task::kClassification ? "nats (entropy)" : "target units squared (variance)"},
-                      {"test_mean", {{"total", u.total}, {"aleatoric", u.aleatoric}, {"epistemic", u.epistemic}}}};
-  if (ev.task == Task::kClassification) {
-    uncertainty["auroc_misclassified"] = {{"total", u.auroc_total}, {"aleatoric", u.auroc_aleatoric},
-                                          {"epistemic", u.auroc_epistemic}};
-    json selective = json::array();
-    for (size_t i = 0; i < u.coverages.size(); ++i) {
-      selective.push_back({{"coverage", u.coverages[i]}, {"accuracy", u.selective_accuracy[i]}});
-    }
-    uncertainty["selective_accuracy"] = selective;
-  }
+  const MemberScores& best = ev.members[ev.best_member];
   json report = {
       {"name", facts.name},
       {"task", TaskName(ev.task)},
-      {"ensemble", {{"test", ScoresJson(ev.task, ev.test)},
-                    {"test_uncalibrated", ScoresJson(ev.task, ev.test_uncalibrated)}}},
+      {"ensemble",
+       {{"test", ScoresJson(ev.task, ev.test)},
+        {"test_uncalibrated", ScoresJson(ev.task, ev.test_uncalibrated)}}},
       {"mean_member", {{"test", ScoresJson(ev.task, ev.mean_member)}}},
-      {"best_member", {{"index", ev.members[ev.best_member].index},
-                       {"chosen_by", "validation nll"},
-                       {"test", ScoresJson(ev.task, ev.members[ev.best_member].test)}}},
-      {"members", members},
+      {"best_member",
+       {{"index", best.index},
+        {"chosen_by", "validation nll"},
+        {"test", ScoresJson(ev.task, best.test)}}},
+      {"members", MembersJson(ev)},
       {"temperature", ev.temperature},
       {"weighting", WeightingName(ev.weighting)},
       {"weights", ev.weights},
       {"validation_nll_weighted", ev.validation_nll_weighted},
-      {"uncertainty", uncertainty},
+      {"uncertainty", UncertaintyJson(ev)},
       {"size_curve", SizeCurveJson(ev.task, ev.size_curve)},
       {"data_hash", facts.data_hash},
       {"config_hash", facts.config_hash},
-      {"data", {{"train_rows", data.train.rows()}, {"validation_rows", data.validation.rows()},
-                {"test_rows", data.test.rows()}, {"features", data.features()},
-                {"classes", data.class_names}}},
+      {"data",
+       {{"train_rows", data.train.rows()},
+        {"validation_rows", data.validation.rows()},
+        {"test_rows", data.test.rows()},
+        {"features", data.features()},
+        {"classes", data.class_names}}},
       {"members_planned", facts.members_planned},
       {"failed_members", facts.failed_members},
       {"wall_seconds", facts.wall_seconds},
       {"caution", kCautionText},
   };
+  AddCalibrationDiagram(ev, report);
   if (ev.bayes_optimal_test_nll) report["bayes_optimal_test_nll"] = *ev.bayes_optimal_test_nll;
   if (ev.test_without_basin) {
     report["ensemble"]["test_without_basin"] = ScoresJson(ev.task, *ev.test_without_basin);
@@ -98,118 +174,99 @@ json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const Ru
 
 namespace {
 
-std::string Escape(const std::string& s) {
-  std::string out;
-  for (char c : s) {
-    switch (c) {
-      case '<': out += "&lt;"; break;
-      case '>': out += "&gt;"; break;
-      case '&': out += "&amp;"; break;
-      case '"': out += "&quot;"; break;
-      default: out += c;
-    }
+enum class Kind { kString, kNumber, kObject, kArray };
+
+bool HasKind(const json& v, Kind kind) {
+  switch (kind) {
+    case Kind::kString: return v.is_string();
+    case Kind::kNumber: return v.is_number();
+    case Kind::kObject: return v.is_object();
+    case Kind::kArray: return v.is_array();
   }
-  return out;
+  return false;
 }
 
-std::string Cell(const json& v) {
-  std::ostringstream s;
-  if (v.is_number_float()) s.precision(4), s << std::fixed << v.get<double>();
-  else if (v.is_string()) s << Escape(v.get<std::string>());
-  else s << Escape(v.dump());
-  return "<td>" + s.str() + "</td>";
+const char* KindName(Kind kind) {
+  switch (kind) {
+    case Kind::kString: return "a string";
+    case Kind::kNumber: return "a number";
+    case Kind::kObject: return "an object";
+    case Kind::kArray: return "an array";
+  }
+  return "";
 }
 
-// One table row per (label, metrics object); columns are the metric keys of the first row.
-std::string MetricsTable(const std::vector<std::pair<std::string, json>>& rows) {
-  std::string html = "<table><tr><th></th>";
-  for (const auto& kv : rows.front().second.items()) html += "<th>" + Escape(kv.key()) + "</th>";
-  html += "</tr>";
-  for (const auto& [label, metrics] : rows) {
-    html += "<tr><th>" + Escape(label) + "</th>";
-    for (const auto& kv : metrics.items()) html += Cell(kv.value());
-    html += "</tr>";
-  }
-  return html + "</table>";
-}
-
-std::string SizeCurveTable(const json& curve) {
-  std::string html = "<table><tr><th>members</th><th>samples</th>";
-  std::vector<std::string> keys;
-  for (const auto& kv : curve.front().items()) {
-    if (kv.value().is_object()) keys.push_back(kv.key());
-  }
-  for (const auto& k : keys) html += "<th>" + Escape(k) + " mean [min, max]</th>";
-  html += "</tr>";
-  for (const json& p : curve) {
-    html += "<tr>" + Cell(p["members"]) + Cell(p["samples"]);
-    for (const auto& k : keys) {
-      std::ostringstream s;
-      s.precision(4);
-      s << std::fixed << p[k]["mean"].get<double>() << " [" << p[k]["min"].get<double>() << ", "
-        << p[k]["max"].get<double>() << "]";
-      html += "<td>" + s.str() + "</td>";
-    }
-    html += "</tr>";
-  }
-  return html + "</table>";
-}
+// The fields ReportHtml and the compare command read without checking.
+const std::pair<const char*, Kind> kRequiredFields[] = {
+    {"/name", Kind::kString},
+    {"/task", Kind::kString},
+    {"/ensemble/test", Kind::kObject},
+    {"/ensemble/test_uncalibrated", Kind::kObject},
+    {"/mean_member/test", Kind::kObject},
+    {"/best_member/test", Kind::kObject},
+    {"/members", Kind::kArray},
+    {"/weights", Kind::kArray},
+    {"/weighting", Kind::kString},
+    {"/temperature", Kind::kNumber},
+    {"/size_curve", Kind::kArray},
+    {"/uncertainty/test_mean", Kind::kObject},
+    {"/data_hash", Kind::kString},
+    {"/config_hash", Kind::kString},
+    {"/members_planned", Kind::kNumber},
+    {"/failed_members", Kind::kArray},
+};
 
 }  // namespace
 
-std::string ReportHtml(const json& r) {
-  std::vector<std::pair<std::string, json>> summary = {
-      {"mean member", r["mean_member"]["test"]},
-      {"best member (by validation NLL)", r["best_member"]["test"]},
-      {"ensemble, T = 1", r["ensemble"]["test_uncalibrated"]},
-      {"ensemble, tuned T", r["ensemble"]["test"]}};
-  if (r["ensemble"].contains("test_without_basin")) {
-    summary.insert(summary.begin() + 2, {"ensemble of trained points (no basin samples), tuned T",
-                                         r["ensemble"]["test_without_basin"]});
-  }
-  std::vector<std::pair<std::string, json>> members;
-  for (size_t m = 0; m < r["members"].size(); ++m) {
-    json row = r["members"][m]["test"];
-    row["weight"] = r["weights"][m];
-    members.push_back({"member " + r["members"][m]["index"].dump(), row});
-  }
-  std::ostringstream html;
-  html << "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>chorus report: "
-       << Escape(r["name"].get<std::string>()) << "</title><style>"
-       << "body{font-family:sans-serif;max-width:60em;margin:2em auto;color:#222}"
-       << "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:.3em .6em;"
-       << "text-align:right}th{background:#f4f4f4}.caution{border-left:4px solid #c60;padding:.5em 1em;"
-       << "background:#fff6ee}</style></head><body>";
-  html << "<h1>chorus report: " << Escape(r["name"].get<std::string>()) << "</h1>";
-  html << "<p class=\"caution\"><strong>Caution.</strong> " << Escape(kCautionText) << "</p>";
-  html << "<h2>Test set</h2>" << MetricsTable(summary);
-  html << "<p>Temperature " << r["temperature"].dump() << " (tuned on validation data only).</p>";
-  if (r.contains("bayes_optimal_test_nll")) {
-    html << "<p>Bayes-optimal test NLL (true probabilities known for this invented data): "
-         << r["bayes_optimal_test_nll"].dump() << "</p>";
-  }
-  html << "<h2>Uncertainty on test (" << Escape(r["uncertainty"]["unit"].get<std::string>()) << ")</h2>"
-       << MetricsTable({{"mean per input", r["uncertainty"]["test_mean"]}});
-  if (r["uncertainty"].contains("auroc_misclassified")) {
-    html << "<p>How well each part flags misclassified inputs (AUROC; 0.5 = no better than chance):</p>"
-         << MetricsTable({{"AUROC", r["uncertainty"]["auroc_misclassified"]}});
-    std::vector<std::pair<std::string, json>> selective;
-    for (const json& p : r["uncertainty"]["selective_accuracy"]) {
-      selective.push_back({"most confident " + std::to_string(static_cast<int>(std::lround(100 * p["coverage"].get<double>()))) + "%",
-                           {{"accuracy", p["accuracy"]}}});
+Status ValidateReport(const json& report, const std::string& source) {
+  for (const auto& [path, kind] : kRequiredFields) {
+    const json::json_pointer pointer(path);
+    if (!report.is_object() || !report.contains(pointer) || !HasKind(report[pointer], kind)) {
+      return Status::InvalidInput(source + ": field " + std::string(path).substr(1) +
+                                  " is missing or not " + KindName(kind));
     }
-    html << "<h3>Selective prediction</h3>" << MetricsTable(selective);
   }
-  html << "<h2>Members (weighting: " << Escape(r["weighting"].get<std::string>()) << ")</h2>"
-       << MetricsTable(members);
-  html << "<h2>Size curve</h2>" << SizeCurveTable(r["size_curve"]);
-  html << "<h2>Facts</h2><table>";
-  for (const char* key : {"data_hash", "config_hash", "members_planned", "wall_seconds"}) {
-    html << "<tr><th>" << key << "</th>" << Cell(r[key]) << "</tr>";
+  const std::string task = report["task"];
+  if (task != "classification" && task != "regression") {
+    return Status::InvalidInput(source + ": field task is neither classification nor regression");
   }
-  html << "<tr><th>failed members</th>" << Cell(r["failed_members"]) << "</tr></table>";
-  html << "</body></html>\n";
-  return html.str();
+  if (report["members"].empty() || report["weights"].size() != report["members"].size()) {
+    return Status::InvalidInput(source + ": members is empty or weights has another length");
+  }
+  for (const json& w : report["weights"]) {
+    if (!w.is_number()) return Status::InvalidInput(source + ": weights holds a non-number");
+  }
+  return Status::Ok();
+}
+
+StatusOr<json> ReadRunReport(const std::string& run_dir) {
+  const std::string path = run_dir + "/report.json";
+  if (!std::filesystem::is_regular_file(path)) {
+    return Status::InvalidInput(path + ": no such file (only a complete run has a report)");
+  }
+  StatusOr<std::string> text = ReadFileToString(path, kMaxReportBytes);
+  if (!text.ok()) return Status::InvalidInput(text.status().ToString());
+  json report = json::parse(text.value(), nullptr, /*allow_exceptions=*/false);
+  if (report.is_discarded()) return Status::InvalidInput(path + ": not valid JSON");
+  CHORUS_RETURN_IF_ERROR(ValidateReport(report, path));
+  return report;
+}
+
+Status WriteReportFiles(const std::string& run_dir, json report) {
+  StatusOr<std::string> manifest_text =
+      ReadFileToString(run_dir + "/manifest.json", kMaxReportBytes);
+  if (manifest_text.ok()) {
+    json manifest = json::parse(manifest_text.value(), nullptr, /*allow_exceptions=*/false);
+    if (manifest.is_object()) report["manifest"] = std::move(manifest);
+  }
+  std::string html;
+  try {
+    html = ReportHtml(report);
+  } catch (const json::exception& e) {
+    return Status::InvalidInput(run_dir + "/report.json: " + e.what());
+  }
+  CHORUS_RETURN_IF_ERROR(WriteFileAtomic(run_dir + "/report.json", report.dump(2) + "\n"));
+  return WriteFileAtomic(run_dir + "/report.html", html);
 }
 
 }  // namespace chorus

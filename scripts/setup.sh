@@ -10,10 +10,11 @@ cd "$(dirname "$0")/.."
 
 build_packages=(cmake make g++ pkg-config libtbb-dev libeigen3-dev libprotobuf-dev protobuf-compiler
   libgrpc++-dev protobuf-compiler-grpc libyaml-cpp-dev libcli11-dev nlohmann-json3-dev libssl-dev
-  zlib1g-dev libgtest-dev)
+  zlib1g-dev libgtest-dev libdnnl-dev)
 # Reference libraries and open data the tests check against (scikit-learn, SciPy, PyTorch,
-# Fashion-MNIST).
-test_packages=(python3 python3-numpy python3-scipy python3-sklearn python3-torch dataset-fashion-mnist)
+# Fashion-MNIST), and headless Chromium for the report.html check.
+test_packages=(python3 python3-numpy python3-scipy python3-sklearn python3-torch dataset-fashion-mnist
+  iproute2 openssl chromium)
 wanted=("${build_packages[@]}")
 [ "$mode" = test ] && wanted+=("${test_packages[@]}")
 

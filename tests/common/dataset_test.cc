@@ -276,8 +276,8 @@ TEST_F(DatasetTest, OneHotVocabularyComesFromTrainRowsOnly) {
   config.validation_file = WriteFile(dir_ + "/validation.csv", "site,a,y\neast,1,p\n");
   config.categorical = {"site"};
   const PreparedData data = LoadOk(config);
-  ASSERT_EQ(data.categorical.size(), 1u);
-  EXPECT_EQ(data.categorical[0].vocabulary, (std::vector<std::string>{"north", "south"}));
+  ASSERT_EQ(data.plan.categorical.size(), 1u);
+  EXPECT_EQ(data.plan.categorical[0].vocabulary, (std::vector<std::string>{"north", "south"}));
   EXPECT_EQ(data.feature_names, (std::vector<std::string>{"a", "site=north", "site=south"}));
   EXPECT_EQ(data.train.rows(), 4);  // a validation file leaves train whole
   EXPECT_EQ(data.validation.origin, (std::vector<std::string>{config.validation_file + ":2"}));

@@ -24,6 +24,7 @@ ACTIVATIONS = {"relu": nn.ReLU, "tanh": nn.Tanh, "gelu": nn.GELU}
 
 
 def write_matrix(path, m):
+    """Writes m in the matrix text format of tests/testing/reference.h (shortest exact repr)."""
     m = np.atleast_2d(np.asarray(m, dtype=np.float64))
     with open(path, "w") as f:
         f.write(f"{m.shape[0]} {m.shape[1]}\n")

@@ -21,14 +21,7 @@ import numpy as np
 import torch
 
 from matrix_text import print_value, read_matrix
-
-
-def write_matrix(path, m):
-    m = np.atleast_2d(np.asarray(m, dtype=np.float64))
-    with open(path, "w") as f:
-        f.write(f"{m.shape[0]} {m.shape[1]}\n")
-        for row in m:
-            f.write(" ".join(repr(float(v)) for v in row) + "\n")
+from torch_mlp import write_matrix
 
 
 def sgd(directory, momentum, weight_decay, nesterov):

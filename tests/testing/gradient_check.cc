@@ -44,8 +44,8 @@ double CentralDifference(const LossFunction& loss, std::vector<float>& params, i
                                                              const std::vector<float>& analytic,
                                                              const GradientCheckOptions& options) {
   if (analytic.size() != params.size()) {
-    return ::testing::AssertionFailure() << "gradient has " << analytic.size()
-                                         << " entries, parameters " << params.size();
+    return ::testing::AssertionFailure()
+           << "gradient has " << analytic.size() << " entries, parameters " << params.size();
   }
   std::vector<Mismatch> mismatches;
   for (int64_t i = 0; i < static_cast<int64_t>(params.size()); ++i) {

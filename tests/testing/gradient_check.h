@@ -15,8 +15,8 @@ namespace chorus::testing {
 using LossFunction = std::function<double(const std::vector<float>& params)>;
 
 struct GradientCheckOptions {
-  double step = 1e-2;            // h; parameter i is evaluated at fl(w_i + h) and fl(w_i - h)
-  double abs_tolerance = 1e-4;   // see GradientMatchesCentralDifferences
+  double step = 1e-2;           // h; parameter i is evaluated at fl(w_i + h) and fl(w_i - h)
+  double abs_tolerance = 1e-4;  // see GradientMatchesCentralDifferences
   double rel_tolerance = 1e-2;
 };
 

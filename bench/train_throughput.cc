@@ -1,0 +1,144 @@
+// chorus-bench-train: training throughput of ensemble members on this machine.
+//
+// Network 784-512-512-10, relu, batch 128, SGD (momentum 0.9, weight decay 5e-4, cosine
+// schedule), on synthetic data: 8192 standard-normal rows with uniformly random labels. Each
+// member runs through TrainMember, the same code a worker runs for a job (shuffle, gather,
+// forward, head, backward, schedule, SGD step), single-threaded. Two configurations:
+//   threads=1: one member on a tbb::task_arena of 1;
+//   threads=2: two members at once on a tbb::task_arena of 2 (as worker/local_trainer.cc does).
+// The first epoch is a warm-up (page faults, caches, frequency ramp). The epoch-end callbacks
+// give the timed window: from the end of each member's first epoch to the end of its last, and
+// the reported rate is all timed samples divided by the union of the members' windows.
+// Output: one "machine:" line, then per configuration one line
+//   chorus threads=T members=T samples_per_s=R gflops=G flops_per_sample=F
+#include <sched.h>
+#include <tbb/parallel_for.h>
+#include <tbb/task_arena.h>
+
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <string>
+#include <vector>
+
+#include "common/dataset.h"
+#include "common/gemm.h"
+#include "common/member_training.h"
+#include "common/rng.h"
+
+namespace chorus {
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+constexpr int64_t kTrainRows = 8192;
+constexpr int64_t kHeldOutRows = 128;  // validation and test rows TrainMember predicts at the end
+constexpr int kFeatures = 784;
+constexpr int kClasses = 10;
+constexpr int kWarmupEpochs = 1;
+constexpr int kTimedEpochs = 5;
+
+// FLOPs of one training sample through layers in -> out: forward Z = H W (2 in out), weight
+// gradient dW = H^T dZ (2 in out), input gradient dH = dZ W^T (2 in out) for every layer but the
+// first, whose input needs no gradient. 784-512-512-10: 3,209,216.
+double FlopsPerSample(const std::vector<int>& widths) {
+  double flops = 0;
+  for (size_t l = 0; l + 1 < widths.size(); ++l) {
+    flops += (l == 0 ? 4.0 : 6.0) * widths[l] * widths[l + 1];
+  }
+  return flops;
+}
+
+Split RandomSplit(int64_t rows, Philox& rng) {
+  Split split;
+  split.x.resize(rows, kFeatures);
+  for (int64_t i = 0; i < rows; ++i) {
+    for (int j = 0; j < kFeatures; ++j) split.x(i, j) = static_cast<float>(rng.NextNormal());
+    split.labels.push_back(static_cast<int32_t>(rng.NextBelow(kClasses)));
+  }
+  return split;
+}
+
+PreparedData SyntheticData() {
+  PreparedData data;
+  for (int k = 0; k < kClasses; ++k) data.class_names.push_back("c" + std::to_string(k));
+  Philox rng(Derive(1, "bench-data"));
+  data.train = RandomSplit(kTrainRows, rng);
+  data.validation = RandomSplit(kHeldOutRows, rng);
+  data.test = RandomSplit(kHeldOutRows, rng);
+  return data;
+}
+
+MemberSpec BenchSpec(int index) {
+  MemberSpec spec;
+  spec.index = index;
+  spec.seed = Derive(7, static_cast<uint64_t>(index));
+  spec.model.hidden = {512, 512};
+  spec.model.activation = Activation::kRelu;
+  spec.train.epochs = kWarmupEpochs + kTimedEpochs;
+  spec.train.batch_size = 128;
+  return spec;
+}
+
+// Trains `threads` members at once, one per arena slot; returns samples per second over the union
+// of their timed windows. Exits with a message if a member fails.
+double MeasureSamplesPerSecond(int threads, const PreparedData& data) {
+  std::vector<Clock::time_point> first(threads), last(threads);
+  tbb::task_arena arena(threads);
+  arena.execute([&] {
+    tbb::parallel_for(0, threads, [&](int m) {
+      const ProgressFn mark = [&, m](const EpochProgress& p) {
+        if (p.epoch == kWarmupEpochs) first[m] = Clock::now();
+        if (p.epoch == p.epochs) last[m] = Clock::now();
+      };
+      const StatusOr<MemberResult> result = TrainMember(BenchSpec(m), data, mark);
+      if (!result.ok()) {
+        std::fprintf(stderr, "member %d failed: %s\n", m, result.status().ToString().c_str());
+        std::exit(1);
+      }
+    });
+  });
+  const auto start = *std::min_element(first.begin(), first.end());
+  const auto end = *std::max_element(last.begin(), last.end());
+  const double seconds = std::chrono::duration<double>(end - start).count();
+  return static_cast<double>(threads) * kTimedEpochs * kTrainRows / seconds;
+}
+
+std::string CpuModel() {
+  std::ifstream cpuinfo("/proc/cpuinfo");
+  for (std::string line; std::getline(cpuinfo, line);) {
+    if (line.rfind("model name", 0) == 0) return line.substr(line.find(':') + 2);
+  }
+  return "unknown";
+}
+
+int AvailableCpus() {
+  cpu_set_t set;
+  return sched_getaffinity(0, sizeof(set), &set) == 0 ? CPU_COUNT(&set) : -1;
+}
+
+void PrintMachine() {
+  const char* coretype = std::getenv("OPENBLAS_CORETYPE");
+  std::printf("machine: cpu=\"%s\" nproc=%d OPENBLAS_CORETYPE=%s gemm=%s\n", CpuModel().c_str(),
+              AvailableCpus(), coretype ? coretype : "unset", GemmBackendName());
+}
+
+}  // namespace
+}  // namespace chorus
+
+int main() {
+  using namespace chorus;
+  PrintMachine();
+  const PreparedData data = SyntheticData();
+  const double flops = FlopsPerSample({kFeatures, 512, 512, kClasses});
+  for (int threads : {1, 2}) {
+    const double rate = MeasureSamplesPerSecond(threads, data);
+    std::printf("chorus threads=%d members=%d samples_per_s=%.0f gflops=%.2f", threads, threads,
+                rate, rate * flops * 1e-9);
+    std::printf(" flops_per_sample=%.0f\n", flops);
+    std::fflush(stdout);
+  }
+  return 0;
+}

@@ -1,0 +1,29 @@
+// The bundle of a finished run (common/bundle.h, proto/bundle_codec.h), made from what the run
+// already holds: the config, the prepared data's preprocessing, the finished members and the
+// assembly (weights, temperature). Thread safety: free functions, reentrant.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "common/bundle.h"
+#include "common/config.h"
+#include "common/dataset.h"
+#include "common/evaluation.h"
+#include "common/member_training.h"
+#include "common/status.h"
+
+namespace chorus {
+
+// Requires: `members` are the members `ev` was assembled from, in the same order (ev.weights has
+// one entry per member), trained on `data` with `config`.
+Bundle MakeRunBundle(const Config& config, const PreparedData& data,
+                     const std::vector<MemberResult>& members, const EnsembleEvaluation& ev,
+                     const std::string& config_hash);
+
+// MakeRunBundle, written atomically to `path` (WriteBundleFile). Errors: kIo naming the path.
+Status WriteRunBundle(const std::string& path, const Config& config, const PreparedData& data,
+                      const std::vector<MemberResult>& members, const EnsembleEvaluation& ev,
+                      const std::string& config_hash);
+
+}  // namespace chorus

@@ -1,0 +1,141 @@
+#include "coordinator/predict_command.h"
+
+#include <tbb/parallel_for.h>
+#include <tbb/task_arena.h>
+
+#include <cstdio>
+#include <memory>
+#include <thread>
+#include <vector>
+
+#include "common/atomic_file.h"
+#include "common/prediction_input.h"
+#include "common/predictor.h"
+#include "coordinator/prediction_csv.h"
+#include "proto/bundle_codec.h"
+
+namespace chorus {
+namespace {
+
+constexpr int64_t kBadRowsShown = 20;
+
+// What prediction needs from a bundle; the bundle itself (basin fits) is released after loading.
+struct Model {
+  Predictor predictor;
+  Preprocessing preprocessing;
+  std::vector<std::string> class_names;
+};
+
+StatusOr<Model> LoadModel(const std::string& path, tbb::task_arena& arena) {
+  CHORUS_ASSIGN_OR_RETURN(const BundleFile file, ReadBundleFile(path));
+  const Predictor::ParallelFor parallel_for = [&arena](int64_t count, const auto& body) {
+    arena.execute([&] { tbb::parallel_for(int64_t{0}, count, body); });
+  };
+  CHORUS_ASSIGN_OR_RETURN(Predictor predictor, Predictor::Create(file.bundle, parallel_for));
+  return Model{std::move(predictor), file.bundle.preprocessing, file.bundle.class_names};
+}
+
+StatusOr<InputFormat> ParseFormat(const std::string& name) {
+  if (name == "auto") return InputFormat::kAuto;
+  if (name == "csv") return InputFormat::kCsv;
+  if (name == "idx") return InputFormat::kIdx;
+  return Status::InvalidInput("--format: expected auto, csv or idx, found \"" + name + "\"");
+}
+
+// Shows the first kBadRowsShown invalid rows on stderr and counts them all.
+class BadRows {
+ public:
+  explicit BadRows(bool skip) : skip_(skip) {}
+
+  Status Report(const Status& problem) {
+    if (!skip_) {
+      return Status::InvalidInput(problem.message() + " (--skip-bad-rows skips such rows)");
+    }
+    if (count_++ < kBadRowsShown) std::fprintf(stderr, "skipped: %s\n", problem.message().c_str());
+    return Status::Ok();
+  }
+  int64_t count() const { return count_; }
+
+ private:
+  bool skip_;
+  int64_t count_ = 0;
+};
+
+// One batch of rows in flight: inputs, every component's outputs, the combined predictive.
+struct Batch {
+  InputBatch input;
+  std::vector<Matrix> outputs;
+  Prediction prediction;
+};
+
+// Reads up to `count` batches of Predictor::kBatchRows valid rows; the rows' batch positions are
+// those the run used, so outputs match it bit for bit.
+StatusOr<int64_t> ReadBatches(InputReader& input, BadRows& bad, std::vector<Batch>& batches) {
+  const BadRowFn on_bad_row = [&bad](const Status& problem) { return bad.Report(problem); };
+  int64_t filled = 0;
+  for (Batch& b : batches) {
+    CHORUS_ASSIGN_OR_RETURN(const bool more,
+                            input.Next(Predictor::kBatchRows, on_bad_row, &b.input));
+    if (!more) break;
+    ++filled;
+  }
+  return filled;
+}
+
+// Every (batch, component) forward pass, then every batch's combination, on the arena's threads.
+void PredictBatches(const Predictor& predictor, int64_t filled, std::vector<Batch>& batches,
+                    tbb::task_arena& arena) {
+  const int64_t components = predictor.Components();
+  arena.execute([&] {
+    for (int64_t b = 0; b < filled; ++b) batches[b].outputs.resize(components);
+    tbb::parallel_for(int64_t{0}, filled * components, [&](int64_t task) {
+      Batch& batch = batches[task / components];
+      batch.outputs[task % components] =
+          predictor.ComponentOutputs(task % components, batch.input.x);
+    });
+    tbb::parallel_for(int64_t{0}, filled, [&](int64_t b) {
+      batches[b].prediction = predictor.Combine(batches[b].outputs);
+    });
+  });
+}
+
+Status Predict(const PredictOptions& o, int threads) {
+  CHORUS_ASSIGN_OR_RETURN(const InputFormat format, ParseFormat(o.format));
+  tbb::task_arena arena(threads);
+  CHORUS_ASSIGN_OR_RETURN(Model model, LoadModel(o.bundle_path, arena));
+  CHORUS_ASSIGN_OR_RETURN(std::unique_ptr<InputReader> input,
+                          InputReader::Open(o.input_path, format, model.preprocessing));
+  CHORUS_ASSIGN_OR_RETURN(std::unique_ptr<AtomicFile> out, AtomicFile::Create(o.output_path));
+  const PredictionCsv csv(model.predictor.task(), model.class_names, input->IdName());
+  CHORUS_RETURN_IF_ERROR(out->Append(csv.Header()));
+  BadRows bad(o.skip_bad_rows);
+  std::vector<Batch> batches(static_cast<size_t>(threads));
+  int64_t rows = 0;
+  while (true) {
+    CHORUS_ASSIGN_OR_RETURN(const int64_t filled, ReadBatches(*input, bad, batches));
+    if (filled == 0) break;
+    PredictBatches(model.predictor, filled, batches, arena);
+    for (int64_t b = 0; b < filled; ++b) {
+      CHORUS_RETURN_IF_ERROR(out->Append(csv.Rows(batches[b].input.ids, batches[b].prediction)));
+      rows += static_cast<int64_t>(batches[b].input.ids.size());
+    }
+  }
+  CHORUS_RETURN_IF_ERROR(out->Commit());
+  std::fprintf(stderr, "%lld rows predicted, %lld invalid rows skipped: %s\n",
+               static_cast<long long>(rows), static_cast<long long>(bad.count()),
+               o.output_path.c_str());
+  return Status::Ok();
+}
+
+}  // namespace
+
+int PredictCommand(const PredictOptions& options) {
+  const int threads =
+      options.threads > 0 ? options.threads : static_cast<int>(std::thread::hardware_concurrency());
+  const Status st = Predict(options, threads > 0 ? threads : 1);
+  if (st.ok()) return 0;
+  std::fprintf(stderr, "chorus predict: %s\n", st.ToString().c_str());
+  return st.ExitCode();
+}
+
+}  // namespace chorus

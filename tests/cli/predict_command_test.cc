@@ -1,0 +1,354 @@
+// End-to-end tests of `chorus predict` and `chorus inspect`: the real executables on small runs
+// of the invented demo data (tools/demo_data.cc) and on small IDX files.
+#include <gtest/gtest.h>
+
+#include <cmath>
+#include <cstdlib>
+#include <filesystem>
+#include <nlohmann/json.hpp>
+#include <sstream>
+
+#include "bundle.pb.h"
+#include "common/dataset.h"
+#include "common/predictor.h"
+#include "coordinator/config_loader.h"
+#include "proto/bundle_codec.h"
+#include "tests/testing/process.h"
+#include "tests/testing/reference.h"
+#include "tests/testing/synthetic_bundle.h"
+
+namespace chorus {
+namespace {
+
+namespace fs = std::filesystem;
+using nlohmann::json;
+using testing::ReadTextFile;
+using testing::RunShell;
+using testing::WriteTextFile;
+
+// A parsed prediction CSV: the header and each row's fields.
+struct Table {
+  std::vector<std::string> header;
+  std::vector<std::vector<std::string>> rows;
+  size_t Column(const std::string& name) const {
+    return static_cast<size_t>(std::find(header.begin(), header.end(), name) - header.begin());
+  }
+};
+
+std::vector<std::string> SplitLine(const std::string& line) {
+  std::vector<std::string> fields;
+  std::stringstream in(line);
+  for (std::string field; std::getline(in, field, ',');) fields.push_back(field);
+  return fields;
+}
+
+Table ReadTable(const std::string& path) {
+  std::stringstream in(ReadTextFile(path));
+  Table t;
+  std::string line;
+  std::getline(in, line);
+  t.header = SplitLine(line);
+  while (std::getline(in, line)) t.rows.push_back(SplitLine(line));
+  return t;
+}
+
+double Number(const std::string& text) { return std::strtod(text.c_str(), nullptr); }
+
+// rows x classes probabilities from the p_<class> columns, in the data's class order.
+MatrixD Probabilities(const Table& t, const std::vector<std::string>& class_names) {
+  MatrixD p(static_cast<Eigen::Index>(t.rows.size()),
+            static_cast<Eigen::Index>(class_names.size()));
+  for (size_t k = 0; k < class_names.size(); ++k) {
+    const size_t column = t.Column("p_" + class_names[k]);
+    EXPECT_LT(column, t.header.size()) << "no column p_" << class_names[k];
+    for (size_t i = 0; i < t.rows.size() && column < t.header.size(); ++i) {
+      p(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(k)) = Number(t.rows[i][column]);
+    }
+  }
+  return p;
+}
+
+class PredictCommandTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = testing::MakeTempDir("chorus-predict");
+    const auto r = RunShell(testing::BinaryPath("chorus-demo-data") + " " + dir_ +
+                            "/data --train-rows 1200 --test-rows 400");
+    ASSERT_EQ(r.exit_code, 0) << r.output;
+  }
+  void TearDown() override {
+    if (!HasFailure()) fs::remove_all(dir_);
+  }
+
+  testing::CommandResult Chorus(const std::string& args) {
+    return RunShell(testing::BinaryPath("chorus") + " " + args, 300);
+  }
+
+  // Runs a config (YAML text, data paths relative to dir_) and returns its run directory.
+  std::string Run(const std::string& name, const std::string& yaml) {
+    const std::string config = dir_ + "/" + name + ".yaml";
+    WriteTextFile(config, "run: {name: " + name + ", seed: 4}\n" + yaml);
+    const auto r = Chorus("run " + config + " --out " + dir_ + "/runs-" + name);
+    EXPECT_EQ(r.exit_code, 0) << r.output;
+    for (const auto& e : fs::directory_iterator(dir_ + "/runs-" + name)) {
+      if (e.path().filename().string().rfind(name + "-", 0) == 0) return e.path().string();
+    }
+    return "";
+  }
+
+  // The prepared data of the run made by Run(name): its config loaded again, in process.
+  PreparedData RunData(const std::string& name) {
+    const StatusOr<Config> config = LoadConfigFile(dir_ + "/" + name + ".yaml");
+    if (!config.ok()) {
+      ADD_FAILURE() << config.status().ToString();
+      return {};
+    }
+    StatusOr<PreparedData> data = LoadPreparedData(config.value().data, config.value().run.seed);
+    if (!data.ok()) ADD_FAILURE() << data.status().ToString();
+    return data.ok() ? std::move(data).value() : PreparedData{};
+  }
+
+  static json Report(const std::string& run) {
+    return json::parse(ReadTextFile(run + "/report.json"));
+  }
+
+  std::string dir_;
+};
+
+constexpr char kClassification[] =
+    "data: {train: data/alarms_train.csv, test: data/alarms_test.csv, target: cause,\n"
+    "       categorical: [station]}\n"
+    "model: {hidden: [16]}\ntrain: {epochs: 3, batch_size: 32}\n"
+    "ensemble: {members: 3, weighting: stacking,\n"
+    "  basin: {method: gaussian_lowrank, epochs: 1, snapshots: 4, rank: 3, samples: 2}}\n";
+
+void ExpectScoresEqualReport(const MatrixD& p, const PreparedData& data, const json& report) {
+  const ClassificationMetrics got = ScoreClassification(p, data.test.labels, 15);
+  const json& want = report["ensemble"]["test"];
+  EXPECT_EQ(got.accuracy, want["accuracy"].get<double>());
+  EXPECT_EQ(got.nll, want["nll"].get<double>());
+  EXPECT_EQ(got.brier, want["brier"].get<double>());
+  EXPECT_EQ(got.ece, want["ece"].get<double>());
+}
+
+TEST_F(PredictCommandTest, ReproducesTheReportOnTheRunsOwnTestRows) {
+  const std::string run = Run("cls", kClassification);
+  const std::string test_csv = dir_ + "/data/alarms_test.csv";
+  for (const char* threads : {"1", "2"}) {
+    const auto r = Chorus("predict " + run + "/bundle.chorus " + test_csv + " -o " + dir_ + "/p" +
+                          threads + ".csv --threads " + threads);
+    ASSERT_EQ(r.exit_code, 0) << r.output;
+  }
+  EXPECT_EQ(ReadTextFile(dir_ + "/p1.csv"), ReadTextFile(dir_ + "/p2.csv")) << "1 vs 2 threads";
+  const PreparedData data = RunData("cls");
+  const Table t = ReadTable(dir_ + "/p1.csv");
+  ASSERT_EQ(t.rows.size(), 400u);
+  EXPECT_EQ(t.header[0], "line");
+  EXPECT_EQ(t.rows[0][0], "2");
+  const MatrixD p = Probabilities(t, data.class_names);
+  for (Eigen::Index i = 0; i < p.rows(); ++i) EXPECT_NEAR(p.row(i).sum(), 1.0, 1e-12) << i;
+  const json report = Report(run);
+  ExpectScoresEqualReport(p, data, report);
+  // scikit-learn's log_loss on the written probabilities (Debian python3-sklearn).
+  const std::string out =
+      testing::RunReferenceScript("sklearn_log_loss_csv.py", {dir_ + "/p1.csv", test_csv, "cause"});
+  ASSERT_EQ(out.rfind("nll ", 0), 0u) << out;
+  EXPECT_NEAR(Number(out.substr(4)), report["ensemble"]["test"]["nll"].get<double>(), 1e-12);
+}
+
+TEST_F(PredictCommandTest, RegressionReproducesRmseCoverageAndNll) {
+  const std::string run = Run(
+      "reg",
+      "data: {train: data/faults_train.csv, test: data/faults_test.csv, task: regression,\n"
+      "       target: hours_to_fault, categorical: [station]}\n"
+      "model: {hidden: [16]}\ntrain: {epochs: 3, batch_size: 32}\n"
+      "ensemble: {members: 2, basin: {method: gaussian_diag, epochs: 1, snapshots: 4, rank: 2,\n"
+      "                                samples: 3}}\n");
+  const std::string bundle = run + "/bundle.chorus";
+  const auto r =
+      Chorus("predict " + bundle + " " + dir_ + "/data/faults_test.csv -o " + dir_ + "/reg.csv");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const Table t = ReadTable(dir_ + "/reg.csv");
+  EXPECT_EQ(t.header,
+            (std::vector<std::string>{"line", "mean", "total_std", "epistemic_std", "q05", "q95"}));
+  const PreparedData data = RunData("reg");
+  ASSERT_EQ(t.rows.size(), data.test.targets.size());
+  double squares = 0, inside = 0;
+  std::vector<double> y;  // the targets as the run scores them (common/evaluation.cc)
+  for (size_t i = 0; i < t.rows.size(); ++i) {
+    y.push_back(static_cast<double>(data.test.targets[i]) * data.target_scale + data.target_mean);
+    const double err = y[i] - Number(t.rows[i][1]);
+    squares += err * err;
+    inside += Number(t.rows[i][4]) <= y[i] && y[i] <= Number(t.rows[i][5]) ? 1 : 0;
+  }
+  const json report = Report(run);
+  const json& want = report["ensemble"]["test"];
+  EXPECT_EQ(std::sqrt(squares / static_cast<double>(y.size())), want["rmse"].get<double>());
+  EXPECT_EQ(inside / static_cast<double>(y.size()), want["coverage_90"].get<double>());
+  // The NLL needs the whole mixture, which the CSV does not hold: the same bundle in process.
+  const Predictor predictor = Predictor::Create(ReadBundleFile(bundle).value().bundle).value();
+  const Prediction p = predictor.Predict(data.test.x);
+  EXPECT_EQ(ScoreRegression(p.regression.mixture, y).nll, want["nll"].get<double>());
+  EXPECT_EQ(Number(t.rows[7][1]), p.regression.mean[7]);
+}
+
+// IDX bytes: magic 0x0000TTDD, big-endian uint32 sizes, then the elements.
+std::string Idx(const std::vector<uint32_t>& dims, const std::string& elements) {
+  std::string bytes = {0, 0, 0x08, static_cast<char>(dims.size())};
+  for (uint32_t d : dims) {
+    for (int shift = 24; shift >= 0; shift -= 8) bytes += static_cast<char>((d >> shift) & 0xFF);
+  }
+  return bytes + elements;
+}
+
+// n 4x4 images of noise whose label (0..2) is decided by which third holds the brightest pixel.
+void WriteIdxData(const std::string& prefix, uint32_t n, uint64_t seed) {
+  std::string pixels, labels;
+  for (uint32_t i = 0; i < n; ++i) {
+    int brightest = 0, best = -1;
+    for (int j = 0; j < 16; ++j) {
+      seed = seed * 6364136223846793005ULL + 1442695040888963407ULL;
+      const int v = static_cast<int>(seed >> 56);
+      pixels += static_cast<char>(v);
+      if (v > best) best = v, brightest = j;
+    }
+    labels += static_cast<char>(brightest * 3 / 16);
+  }
+  WriteTextFile(prefix + "-images.idx", Idx({n, 4, 4}, pixels));
+  WriteTextFile(prefix + "-labels.idx", Idx({n}, labels));
+}
+
+TEST_F(PredictCommandTest, IdxImagesReproduceTheRun) {
+  WriteIdxData(dir_ + "/train", 600, 1);
+  WriteIdxData(dir_ + "/test", 1100, 2);  // more than one 1024-row batch
+  const std::string run =
+      Run("idx",
+          "data: {format: idx, train: {images: train-images.idx, labels: train-labels.idx},\n"
+          "       test: {images: test-images.idx, labels: test-labels.idx}}\n"
+          "model: {hidden: [8]}\ntrain: {epochs: 2, batch_size: 50}\nensemble: {members: 2}\n");
+  ASSERT_EQ(RunShell("gzip -k " + dir_ + "/test-images.idx").exit_code, 0);
+  const auto r = Chorus("predict " + run + "/bundle.chorus " + dir_ + "/test-images.idx.gz -o " +
+                        dir_ + "/idx.csv --threads 2");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const Table t = ReadTable(dir_ + "/idx.csv");
+  ASSERT_EQ(t.rows.size(), 1100u);
+  EXPECT_EQ(t.header[0], "index");
+  EXPECT_EQ(t.rows[1099][0], "1099");
+  const PreparedData data = RunData("idx");
+  ExpectScoresEqualReport(Probabilities(t, data.class_names), data, Report(run));
+}
+
+TEST_F(PredictCommandTest, InvalidRowsStopWithExitTwoUnlessSkipped) {
+  const std::string run = Run("bad", kClassification);
+  std::stringstream test(ReadTextFile(dir_ + "/data/alarms_test.csv"));
+  std::string header, text, line;
+  std::getline(test, header);
+  for (int i = 0; i < 6 && std::getline(test, line); ++i) text += line + "\n";
+  std::vector<std::string> lines;
+  for (std::stringstream in(text); std::getline(in, line);) lines.push_back(line);
+  lines[1].replace(lines[1].find(',') + 1, 0, "abc");  // line 3: "abc5.1" in a numeric column
+  lines[3] = "fenside,1,2";                            // line 5: ragged
+  std::string bad = header + "\n";
+  for (const std::string& l : lines) bad += l + "\n";
+  WriteTextFile(dir_ + "/bad.csv", bad);
+  const std::string predict =
+      "predict " + run + "/bundle.chorus " + dir_ + "/bad.csv -o " + dir_ + "/out.csv";
+  auto r = Chorus(predict);
+  EXPECT_EQ(r.exit_code, 2) << r.output;
+  EXPECT_NE(r.output.find(dir_ + "/bad.csv:3:2: expected a number in column"), std::string::npos)
+      << r.output;
+  EXPECT_FALSE(fs::exists(dir_ + "/out.csv"));
+  for (const auto& e : fs::directory_iterator(dir_)) {
+    EXPECT_EQ(e.path().string().find("out.csv.tmp"), std::string::npos) << "left " << e.path();
+  }
+  r = Chorus(predict + " --skip-bad-rows");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  EXPECT_NE(r.output.find("bad.csv:5:4: expected 8 fields, found 3"), std::string::npos)
+      << r.output;
+  EXPECT_NE(r.output.find("4 rows predicted, 2 invalid rows skipped"), std::string::npos);
+  const Table t = ReadTable(dir_ + "/out.csv");
+  std::vector<std::string> ids;
+  for (const auto& row : t.rows) ids.push_back(row[0]);
+  EXPECT_EQ(ids, (std::vector<std::string>{"2", "4", "6", "7"}));
+}
+
+TEST_F(PredictCommandTest, TargetColumnMayBeAbsentButFeatureColumnsMayNot) {
+  const std::string run = Run("cols", kClassification);
+  const std::string bundle = run + "/bundle.chorus";
+  std::stringstream in(ReadTextFile(dir_ + "/data/alarms_test.csv"));
+  std::string no_target, no_station, line;
+  while (std::getline(in, line)) {
+    no_target += line.substr(0, line.rfind(',')) + "\n";   // cause is the last column
+    no_station += line.substr(line.find(',') + 1) + "\n";  // station is the first
+  }
+  WriteTextFile(dir_ + "/no_target.csv", no_target);
+  WriteTextFile(dir_ + "/no_station.csv", no_station);
+  ASSERT_EQ(Chorus("predict " + bundle + " " + dir_ + "/data/alarms_test.csv -o " + dir_ + "/a.csv")
+                .exit_code,
+            0);
+  ASSERT_EQ(
+      Chorus("predict " + bundle + " " + dir_ + "/no_target.csv -o " + dir_ + "/b.csv").exit_code,
+      0);
+  EXPECT_EQ(ReadTextFile(dir_ + "/a.csv"), ReadTextFile(dir_ + "/b.csv"));
+  const auto r = Chorus("predict " + bundle + " " + dir_ + "/no_station.csv -o " + dir_ + "/c.csv");
+  EXPECT_EQ(r.exit_code, 2) << r.output;
+  EXPECT_NE(r.output.find("no_station.csv:1: expected a feature column \"station\""),
+            std::string::npos)
+      << r.output;
+}
+
+// Each corrupt file is refused by inspect and predict with exit 2, under a 1 GiB address-space
+// limit: a large allocation would fail and exit 1 instead.
+TEST_F(PredictCommandTest, CorruptBundlesExitTwoWithoutLargeAllocations) {
+  const std::string run = Run("corrupt", kClassification);
+  const std::string good = ReadTextFile(run + "/bundle.chorus");
+  const std::string payload =
+      good.substr(kBundleHeaderBytes, good.size() - kBundleHeaderBytes - kBundleChecksumBytes);
+  bundle::Bundle absurd;
+  ASSERT_TRUE(absurd.ParseFromString(payload));
+  absurd.set_widths(1, 1 << 24);
+  absurd.set_widths(2, 1 << 24);
+  std::string flipped = good, version = good;
+  flipped[good.size() / 2] ^= 0x10;
+  version[8] = 2;
+  const std::vector<std::pair<std::string, std::string>> cases = {
+      {"truncated", good.substr(0, good.size() - 100)},
+      {"flipped", flipped},
+      {"version", version},
+      {"absurd", testing::FrameBundlePayload(absurd.SerializeAsString())}};
+  const std::string limit = "ulimit -v 1048576; ";
+  for (const auto& [name, bytes] : cases) {
+    SCOPED_TRACE(name);
+    const std::string path = dir_ + "/" + name + ".chorus";
+    WriteTextFile(path, bytes);
+    auto r = RunShell(limit + testing::BinaryPath("chorus") + " inspect " + path);
+    EXPECT_EQ(r.exit_code, 2) << r.output;
+    EXPECT_NE(r.output.find("chorus inspect: invalid input: " + path + ": "), std::string::npos)
+        << r.output;
+    r = RunShell(limit + testing::BinaryPath("chorus") + " predict " + path + " " + dir_ +
+                 "/data/alarms_test.csv -o " + dir_ + "/out.csv");
+    EXPECT_EQ(r.exit_code, 2) << r.output;
+    EXPECT_FALSE(fs::exists(dir_ + "/out.csv"));
+  }
+  const auto r =
+      RunShell(limit + testing::BinaryPath("chorus") + " inspect " + run + "/bundle.chorus");
+  EXPECT_EQ(r.exit_code, 0) << r.output;
+  for (const char* fact : {"checksum      OK", "task          classification, 5 classes",
+                           "gaussian_lowrank (rank 3)", "temperature", "data hash"}) {
+    EXPECT_NE(r.output.find(fact), std::string::npos) << fact << "\n" << r.output;
+  }
+}
+
+TEST_F(PredictCommandTest, BothCommandsHaveHelp) {
+  auto r = Chorus("predict --help");
+  EXPECT_EQ(r.exit_code, 0) << r.output;
+  for (const char* flag : {"--skip-bad-rows", "--threads", "--format", "-o,--output"}) {
+    EXPECT_NE(r.output.find(flag), std::string::npos) << flag;
+  }
+  r = Chorus("inspect --help");
+  EXPECT_EQ(r.exit_code, 0) << r.output;
+  EXPECT_NE(r.output.find("checksum"), std::string::npos) << r.output;
+}
+
+}  // namespace
+}  // namespace chorus

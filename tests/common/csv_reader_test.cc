@@ -1,0 +1,105 @@
+// The streaming CSV reader reads what ParseCsv reads (common/csv.h), record by record, and goes
+// on after a malformed record instead of stopping.
+#include "common/csv_reader.h"
+
+#include <gtest/gtest.h>
+
+#include <filesystem>
+#include <fstream>
+
+#include "common/csv.h"
+#include "tests/testing/reference.h"
+
+namespace chorus {
+namespace {
+
+class CsvReaderTest : public ::testing::Test {
+ protected:
+  void SetUp() override { dir_ = testing::MakeTempDir("chorus-csv-reader"); }
+  void TearDown() override { std::filesystem::remove_all(dir_); }
+
+  std::string Write(const std::string& text) {
+    const std::string path = dir_ + "/f.csv";
+    std::ofstream(path, std::ios::binary) << text;
+    return path;
+  }
+
+  // Every record, with its problem (if any) as text.
+  static std::vector<CsvRecord> ReadAll(CsvReader& reader) {
+    std::vector<CsvRecord> records;
+    CsvRecord record;
+    while (true) {
+      StatusOr<bool> more = reader.Next(&record);
+      EXPECT_TRUE(more.ok()) << more.status().ToString();
+      if (!more.ok() || !more.value()) return records;
+      records.push_back(record);
+    }
+  }
+
+  std::string dir_;
+};
+
+TEST_F(CsvReaderTest, ReadsWhatParseCsvReads) {
+  // A byte order mark, CRLF and LF, blank lines, quoted fields with "" and line breaks, a lone
+  // quote inside an unquoted field, and enough rows to cross the reader's 64 KiB buffer.
+  std::string text =
+      "\xEF\xBB\xBF"
+      "a,b,c\r\n\n1,\"x,\"\"y\"\"\",3\n";
+  for (int i = 0; i < 3000; ++i) {
+    text += std::to_string(i) + ",\"multi\nline " + std::to_string(i) + "\",q\"t\r\n";
+    if (i % 500 == 0) text += "\n\n";
+  }
+  const std::string path = Write(text);
+  const StatusOr<CsvTable> table = ParseCsv(text, path);
+  ASSERT_TRUE(table.ok()) << table.status().ToString();
+  StatusOr<std::unique_ptr<CsvReader>> reader = CsvReader::Open(path);
+  ASSERT_TRUE(reader.ok()) << reader.status().ToString();
+  EXPECT_EQ(reader.value()->header(), table.value().header);
+  EXPECT_EQ(reader.value()->header_line(), table.value().header_line);
+  const std::vector<CsvRecord> records = ReadAll(*reader.value());
+  ASSERT_EQ(records.size(), table.value().rows.size());
+  for (size_t r = 0; r < records.size(); ++r) {
+    ASSERT_TRUE(records[r].problem.ok()) << records[r].problem.ToString();
+    ASSERT_EQ(records[r].fields, table.value().rows[r]) << "record " << r;
+    ASSERT_EQ(records[r].line, table.value().lines[r]) << "record " << r;
+  }
+}
+
+TEST_F(CsvReaderTest, MalformedRecordsComeBackWithTheirPlaceAndReadingGoesOn) {
+  const std::string path = Write("a,b\n1,2\n3\n\"x\"y,4\n5,6\n7,8,9\n10,\"open\n11,12\n");
+  StatusOr<std::unique_ptr<CsvReader>> reader = CsvReader::Open(path);
+  ASSERT_TRUE(reader.ok());
+  const std::vector<CsvRecord> r = ReadAll(*reader.value());
+  ASSERT_EQ(r.size(), 6u);
+  EXPECT_TRUE(r[0].problem.ok());
+  EXPECT_NE(r[1].problem.message().find(path + ":3:2: expected 2 fields, found 1"),
+            std::string::npos)
+      << r[1].problem.ToString();
+  EXPECT_NE(r[2].problem.message().find(path + ":4:1: expected ',' or the end of the line"),
+            std::string::npos)
+      << r[2].problem.ToString();
+  EXPECT_TRUE(r[3].problem.ok());
+  EXPECT_EQ(r[3].fields, (std::vector<std::string>{"5", "6"}));
+  EXPECT_EQ(r[3].line, 5);
+  EXPECT_NE(r[4].problem.message().find(path + ":6:3: expected 2 fields, found 3"),
+            std::string::npos);
+  EXPECT_NE(r[5].problem.message().find(path + ":7:2: expected a closing '\"'"), std::string::npos)
+      << r[5].problem.ToString();
+}
+
+TEST_F(CsvReaderTest, BadHeadersAndOversizedRecordsAreErrors) {
+  EXPECT_NE(CsvReader::Open(Write("")).status().message().find("file is empty"), std::string::npos);
+  EXPECT_NE(CsvReader::Open(Write("a,a\n1,2\n")).status().message().find("duplicate column"),
+            std::string::npos);
+  EXPECT_EQ(CsvReader::Open(dir_ + "/missing.csv").status().code(), Status::Code::kInvalidInput);
+  StatusOr<std::unique_ptr<CsvReader>> reader =
+      CsvReader::Open(Write("a\n" + std::string(200, 'x') + "\n"), /*max_record_bytes=*/100);
+  ASSERT_TRUE(reader.ok());
+  CsvRecord record;
+  const StatusOr<bool> next = reader.value()->Next(&record);
+  EXPECT_EQ(next.status().code(), Status::Code::kInvalidInput);
+  EXPECT_NE(next.status().message().find("longer than 100 bytes"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace chorus

@@ -1,0 +1,95 @@
+#include "coordinator/run_comparison.h"
+
+#include <gtest/gtest.h>
+
+#include <string>
+
+#include "tests/testing/sample_report.h"
+
+namespace chorus {
+namespace {
+
+using nlohmann::json;
+
+const ComparedValue& Find(const RunComparison& c, const std::string& key) {
+  for (const ComparedValue& v : c.values) {
+    if (v.key == key) return v;
+  }
+  ADD_FAILURE() << "no value " << key;
+  return c.values.front();
+}
+
+// B: better NLL, worse accuracy, equal ECE, no Brier, another config and two members, one of them
+// weighted 0.9.
+json VariantB() {
+  json b = testing::SampleReport(Task::kClassification);
+  b["ensemble"]["test"]["nll"] = b["ensemble"]["test"]["nll"].get<double>() - 0.05;
+  b["ensemble"]["test"]["accuracy"] = b["ensemble"]["test"]["accuracy"].get<double>() - 0.01;
+  b["ensemble"]["test"].erase("brier");
+  b["temperature"] = 1.5;
+  b["members"].erase(2);
+  b["weights"] = {0.9, 0.1};
+  b["config_hash"] = std::string(64, 'd');
+  return b;
+}
+
+TEST(RunComparisonTest, DeltasAndTheBetterRunFollowEachMetricsDirection) {
+  const json a = testing::SampleReport(Task::kClassification), b = VariantB();
+  const RunComparison c = CompareReports(a, b, "runs/a", "runs/b");
+  const ComparedValue& nll = Find(c, "ensemble.test.nll");
+  EXPECT_NEAR(*nll.b - *nll.a, -0.05, 1e-12);
+  EXPECT_EQ(nll.better, "b");  // lower NLL
+  EXPECT_EQ(Find(c, "ensemble.test.accuracy").better, "a");
+  EXPECT_EQ(Find(c, "ensemble.test.ece").better, "equal");
+  const ComparedValue& brier = Find(c, "ensemble.test.brier");
+  EXPECT_TRUE(brier.a.has_value());
+  EXPECT_FALSE(brier.b.has_value());
+  EXPECT_EQ(brier.better, "");
+  EXPECT_EQ(Find(c, "temperature").better, "");  // no direction
+  EXPECT_EQ(*Find(c, "members.finished").b, 2);
+  EXPECT_NEAR(*Find(c, "weights.effective_number").a, 1 / (0.25 + 0.09 + 0.04), 1e-12);
+  EXPECT_NEAR(*Find(c, "weights.max").b, 0.9, 1e-12);
+  EXPECT_TRUE(c.same_data());
+  EXPECT_FALSE(c.same_config());
+}
+
+TEST(RunComparisonTest, RegressionCoverageIsBetterNearNinetyPercent) {
+  const json a = testing::SampleReport(Task::kRegression);
+  json b = a;
+  b["ensemble"]["test"]["coverage_90"] = 0.9;
+  EXPECT_EQ(Find(CompareReports(a, b, "a", "b"), "ensemble.test.coverage_90").better, "b");
+}
+
+TEST(RunComparisonTest, TableShowsBothRunsDeltasAndHashVerdicts) {
+  const RunComparison c =
+      CompareReports(testing::SampleReport(Task::kClassification), VariantB(), "runs/a", "runs/b");
+  const std::string table = ComparisonTable(c);
+  EXPECT_NE(table.find("A: runs/a\nB: runs/b"), std::string::npos);
+  EXPECT_NE(table.find("ensemble test NLL (tuned T)"), std::string::npos);
+  EXPECT_NE(table.find("-0.0500  B"), std::string::npos) << table;
+  EXPECT_NE(table.find("aaaaaaaaaaaa   aaaaaaaaaaaa"), std::string::npos) << table;
+  EXPECT_NE(table.find("equal"), std::string::npos);
+  EXPECT_NE(table.find("cccccccccccc   dddddddddddd"), std::string::npos) << table;
+  EXPECT_NE(table.find("differ"), std::string::npos);
+  EXPECT_EQ(table.find("different data"), std::string::npos);
+}
+
+TEST(RunComparisonTest, JsonHasNullsForMissingValues) {
+  const json j = ComparisonJson(
+      CompareReports(testing::SampleReport(Task::kClassification), VariantB(), "a", "b"));
+  EXPECT_EQ(j["a"], "a");
+  EXPECT_TRUE(j["same_data"].get<bool>());
+  EXPECT_FALSE(j["same_config"].get<bool>());
+  bool saw_brier = false;
+  for (const json& v : j["values"]) {
+    if (v["key"] != "ensemble.test.brier") continue;
+    saw_brier = true;
+    EXPECT_TRUE(v["b"].is_null());
+    EXPECT_TRUE(v["delta"].is_null());
+    EXPECT_TRUE(v["better"].is_null());
+  }
+  EXPECT_TRUE(saw_brier);
+}
+
+}  // namespace
+}  // namespace chorus

@@ -1,0 +1,180 @@
+// The bundle file: exact round trips, the documented byte layout (docs/bundle_format.md), and
+// refusal of truncated, corrupted, wrong-version and absurd files before anything large is
+// allocated.
+#include "proto/bundle_codec.h"
+
+#include <gtest/gtest.h>
+
+#include <cstring>
+
+#include "bundle.pb.h"
+#include "common/predictor.h"
+#include "common/sha256.h"
+#include "tests/testing/reference.h"
+#include "tests/testing/synthetic_bundle.h"
+
+namespace chorus {
+namespace {
+
+using testing::SyntheticBundle;
+using testing::SyntheticBundleSpec;
+
+std::string Frame(const std::string& payload, uint32_t version = kBundleFormatVersion) {
+  return testing::FrameBundlePayload(payload, version);
+}
+
+std::string PayloadOf(const std::string& file) {
+  return file.substr(kBundleHeaderBytes, file.size() - kBundleHeaderBytes - kBundleChecksumBytes);
+}
+
+Status DecodeStatus(const std::string& bytes) { return DecodeBundleFile(bytes, "b").status(); }
+
+void ExpectSameBundle(const Bundle& a, const Bundle& b) {
+  EXPECT_EQ(a.task, b.task);
+  EXPECT_EQ(a.class_names, b.class_names);
+  EXPECT_EQ(a.preprocessing.format, b.preprocessing.format);
+  EXPECT_EQ(a.preprocessing.target, b.preprocessing.target);
+  EXPECT_EQ(a.preprocessing.plan.FeatureNames(), b.preprocessing.plan.FeatureNames());
+  EXPECT_EQ(a.preprocessing.standardizer.mean, b.preprocessing.standardizer.mean);
+  EXPECT_EQ(a.preprocessing.standardizer.scale, b.preprocessing.standardizer.scale);
+  EXPECT_EQ(a.widths, b.widths);
+  ASSERT_EQ(a.members.size(), b.members.size());
+  for (size_t m = 0; m < a.members.size(); ++m) {
+    EXPECT_EQ(a.members[m].weight, b.members[m].weight);
+    EXPECT_EQ(a.members[m].parameters, b.members[m].parameters);
+    EXPECT_EQ(a.members[m].basin.method, b.members[m].basin.method);
+    EXPECT_EQ(a.members[m].basin.mean, b.members[m].basin.mean);
+    EXPECT_EQ(a.members[m].basin.variance, b.members[m].basin.variance);
+    EXPECT_EQ(a.members[m].basin.deviations, b.members[m].basin.deviations);
+    EXPECT_EQ(a.members[m].sample_seeds, b.members[m].sample_seeds);
+  }
+  EXPECT_EQ(a.temperature, b.temperature);
+  EXPECT_EQ(a.test_metrics, b.test_metrics);
+  EXPECT_EQ(a.data_hash, b.data_hash);
+}
+
+TEST(BundleCodecTest, RoundTripKeepsEveryFieldAndPredictionsBitForBit) {
+  for (Task task : {Task::kClassification, Task::kRegression}) {
+    SyntheticBundleSpec spec;
+    spec.task = task;
+    const Bundle original = SyntheticBundle(spec);
+    const std::string bytes = EncodeBundleFile(original);
+    EXPECT_EQ(bytes, EncodeBundleFile(original)) << "encoding is deterministic";
+    StatusOr<BundleFile> decoded = DecodeBundleFile(bytes, "b");
+    ASSERT_TRUE(decoded.ok()) << decoded.status().ToString();
+    ExpectSameBundle(original, decoded.value().bundle);
+    EXPECT_EQ(decoded.value().payload_sha256,
+              Sha256Hex(bytes.data() + kBundleHeaderBytes, decoded.value().payload_bytes));
+    const Matrix x = testing::RandomInputs(1500, original.widths[0], 3);
+    const Prediction before = Predictor::Create(original).value().Predict(x);
+    const Prediction after = Predictor::Create(decoded.value().bundle).value().Predict(x);
+    EXPECT_EQ(before.classification.probabilities, after.classification.probabilities);
+    EXPECT_EQ(before.regression.mixture.mean, after.regression.mixture.mean);
+    EXPECT_EQ(before.regression.mixture.stddev, after.regression.mixture.stddev);
+  }
+}
+
+TEST(BundleCodecTest, FileLayoutIsTheDocumentedOne) {
+  const std::string bytes = EncodeBundleFile(SyntheticBundle({}));
+  EXPECT_EQ(bytes, Frame(PayloadOf(bytes)));
+  bundle::Bundle message;
+  ASSERT_TRUE(message.ParseFromString(PayloadOf(bytes)));
+  EXPECT_EQ(message.task(), "classification");
+}
+
+TEST(BundleCodecTest, WriteThenReadTheFile) {
+  const std::string dir = testing::MakeTempDir("chorus-bundle");
+  const Bundle original = SyntheticBundle({});
+  ASSERT_TRUE(WriteBundleFile(dir + "/b.chorus", original).ok());
+  StatusOr<BundleFile> read = ReadBundleFile(dir + "/b.chorus");
+  ASSERT_TRUE(read.ok()) << read.status().ToString();
+  ExpectSameBundle(original, read.value().bundle);
+  EXPECT_EQ(ReadBundleFile(dir + "/missing.chorus").status().code(), Status::Code::kInvalidInput);
+  std::remove((dir + "/b.chorus").c_str());
+  std::remove(dir.c_str());
+}
+
+TEST(BundleCodecTest, TruncatedFilesAreRefused) {
+  const std::string bytes = EncodeBundleFile(SyntheticBundle({}));
+  for (size_t keep :
+       {size_t{0}, size_t{7}, size_t{20}, size_t{51}, bytes.size() / 2, bytes.size() - 1}) {
+    const Status st = DecodeStatus(bytes.substr(0, keep));
+    EXPECT_EQ(st.code(), Status::Code::kInvalidInput) << keep << ": " << st.ToString();
+  }
+  EXPECT_NE(DecodeStatus(bytes.substr(0, bytes.size() / 2)).message().find("truncated"),
+            std::string::npos);
+  EXPECT_NE(DecodeStatus(bytes + "x").message().find("trailing bytes"), std::string::npos);
+}
+
+TEST(BundleCodecTest, EverySingleFlippedByteIsRefused) {
+  const std::string bytes = EncodeBundleFile(SyntheticBundle({}));
+  for (size_t i = 0; i < bytes.size(); ++i) {
+    std::string corrupt = bytes;
+    corrupt[i] = static_cast<char>(corrupt[i] ^ 0x01);
+    const Status st = DecodeStatus(corrupt);
+    ASSERT_EQ(st.code(), Status::Code::kInvalidInput) << "byte " << i << ": " << st.ToString();
+  }
+  std::string corrupt = bytes;
+  corrupt[kBundleHeaderBytes + 5] ^= 0x40;
+  EXPECT_NE(DecodeStatus(corrupt).message().find("checksum mismatch"), std::string::npos);
+  corrupt = bytes;
+  corrupt[1] = 'X';
+  EXPECT_NE(DecodeStatus(corrupt).message().find("bad magic"), std::string::npos);
+}
+
+TEST(BundleCodecTest, AnotherFormatVersionIsRefused) {
+  const std::string bytes = EncodeBundleFile(SyntheticBundle({}));
+  const Status st = DecodeStatus(Frame(PayloadOf(bytes), 2));
+  EXPECT_EQ(st.code(), Status::Code::kInvalidInput);
+  EXPECT_NE(st.message().find("bundle format version 2; this chorus reads version 1"),
+            std::string::npos)
+      << st.ToString();
+}
+
+// Each case makes a correctly framed and checksummed payload whose dimensions promise far more
+// memory than exists (2^30 x 2^30 floats is 4 EiB). An attempt to allocate it would throw and
+// come back as kInternal, so kInvalidInput shows the check came first.
+TEST(BundleCodecTest, AbsurdDimensionsAreRefusedBeforeAllocating) {
+  const std::string good = PayloadOf(EncodeBundleFile(SyntheticBundle({})));
+  const std::vector<std::pair<const char*, std::function<void(bundle::Bundle&)>>> cases = {
+      {"huge widths",
+       [](bundle::Bundle& b) {
+         b.set_widths(0, 1 << 30);
+         b.set_widths(1, 1 << 30);
+       }},
+      {"many layers",
+       [](bundle::Bundle& b) {
+         for (int i = 0; i < 300; ++i) b.add_widths(8);
+       }},
+      {"huge deviations",
+       [](bundle::Bundle& b) {
+         auto* d = b.mutable_members(2)->mutable_basin()->mutable_deviations();
+         d->set_rows(int64_t{1} << 40);
+         d->set_cols(int64_t{1} << 40);
+       }},
+      {"too many samples",
+       [](bundle::Bundle& b) {
+         for (int i = 0; i < 20000; ++i) b.mutable_members(1)->add_sample_seeds(i);
+       }},
+      {"negative width", [](bundle::Bundle& b) { b.set_widths(1, -5); }},
+      {"features mismatch",
+       [](bundle::Bundle& b) { b.mutable_preprocessing()->add_feature_mean(0); }}};
+  for (const auto& [name, mutate] : cases) {
+    SCOPED_TRACE(name);
+    bundle::Bundle message;
+    ASSERT_TRUE(message.ParseFromString(good));
+    mutate(message);
+    const Status st = DecodeStatus(Frame(message.SerializeAsString()));
+    EXPECT_EQ(st.code(), Status::Code::kInvalidInput) << st.ToString();
+  }
+}
+
+TEST(BundleCodecTest, PredictorRefusesSamplesBeyondItsMemoryBound) {
+  const Bundle b = SyntheticBundle({});
+  const StatusOr<Predictor> p = Predictor::Create(b, {}, /*max_sample_bytes=*/100);
+  EXPECT_EQ(p.status().code(), Status::Code::kInvalidInput);
+  EXPECT_NE(p.status().message().find("bytes allowed"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace chorus

@@ -1,0 +1,24 @@
+// Small real runs of the `chorus` executable on the invented demo data (tools/demo_data.cc), for
+// tests of what a finished run directory holds. Thread safety: not thread-safe (runs processes,
+// writes files); call from one test thread.
+#pragma once
+
+#include <string>
+
+namespace chorus::testing {
+
+// Writes 1200 training and 400 test rows of demo data to DIR/data; fails the test on error.
+void WriteDemoData(const std::string& dir);
+
+// YAML of a quick run on DIR/data (a config written into DIR): classification of alarm causes
+// (with their true probabilities) or regression of hours to fault, one hidden layer of 16 units;
+// `extra` is appended and holds the other sections (train, ensemble, ...).
+std::string DemoClassificationYaml(const std::string& name, int seed, const std::string& extra);
+std::string DemoRegressionYaml(const std::string& name, int seed, const std::string& extra);
+
+// Writes DIR/NAME.yaml, runs `chorus run` on it with --out DIR/runs-NAME and returns the run
+// directory (the one holding manifest.json); on failure records a test failure with the output
+// and returns "".
+std::string RunDemo(const std::string& dir, const std::string& name, const std::string& yaml);
+
+}  // namespace chorus::testing
