@@ -15,18 +15,7 @@
 namespace chorus {
 namespace {
 
-// Parses the "name value [value ...]" lines a reference script prints.
-std::map<std::string, std::vector<double>> ParseReferenceOutput(const std::string& text) {
-  std::map<std::string, std::vector<double>> out;
-  std::istringstream lines(text);
-  std::string line, name;
-  while (std::getline(lines, line)) {
-    std::istringstream fields(line);
-    fields >> name;
-    for (double v; fields >> v;) out[name].push_back(v);
-  }
-  return out;
-}
+using testing::ParseReferenceOutput;
 
 GaussianMixture OneInputMixture(std::vector<double> means, std::vector<double> stddevs,
                                 std::vector<double> weights, int inputs) {

@@ -16,31 +16,10 @@ namespace chorus {
 namespace {
 
 using testing::MakeTempDir;
+using testing::RandomProbabilities;
+using testing::ParseReferenceOutput;
 using testing::RunReferenceScript;
 using testing::WriteMatrixText;
-
-// Parses the "name value [value ...]" lines a reference script prints.
-std::map<std::string, std::vector<double>> ParseReferenceOutput(const std::string& text) {
-  std::map<std::string, std::vector<double>> out;
-  std::istringstream lines(text);
-  std::string line, name;
-  while (std::getline(lines, line)) {
-    std::istringstream fields(line);
-    fields >> name;
-    for (double v; fields >> v;) out[name].push_back(v);
-  }
-  return out;
-}
-
-// Rows softmax(2 z) with z standard normal.
-MatrixD RandomProbabilities(int rows, int classes, Philox* rng) {
-  MatrixD p(rows, classes);
-  for (int i = 0; i < rows; ++i) {
-    for (int k = 0; k < classes; ++k) p(i, k) = std::exp(2.0 * rng->NextNormal());
-    p.row(i) /= p.row(i).sum();
-  }
-  return p;
-}
 
 TEST(UncertaintyTest, EntropySplitOfHandWorkedPair) {
   // A = (0.9, 0.1), B = (0.5, 0.5), weights 1/2: mixture (0.7, 0.3). In nats (mpmath, 30 digits):

@@ -18,21 +18,9 @@ namespace chorus {
 namespace {
 
 using testing::MakeTempDir;
+using testing::ParseReferenceOutput;
 using testing::RunReferenceScript;
 using testing::WriteMatrixText;
-
-// Parses the "name value [value ...]" lines a reference script prints.
-std::map<std::string, std::vector<double>> ParseReferenceOutput(const std::string& text) {
-  std::map<std::string, std::vector<double>> out;
-  std::istringstream lines(text);
-  std::string line, name;
-  while (std::getline(lines, line)) {
-    std::istringstream fields(line);
-    fields >> name;
-    for (double v; fields >> v;) out[name].push_back(v);
-  }
-  return out;
-}
 
 // L(i, m) = u_im^a_m with u_im uniform on (0, 1]: a larger exponent makes a worse member. Column
 // 3 is the average of columns 0 and 1, squared: correlated with both and worse than either.

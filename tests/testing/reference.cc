@@ -8,7 +8,9 @@
 #include <cstdlib>
 #include <fstream>
 #include <iomanip>
+#include <cmath>
 #include <memory>
+#include <sstream>
 
 namespace chorus::testing {
 
@@ -64,6 +66,35 @@ MatrixD ReadMatrixText(const std::string& path) {
     for (Eigen::Index j = 0; j < cols; ++j) f >> m(i, j);
   if (!f) ADD_FAILURE() << "could not read matrix from " << path;
   return m;
+}
+
+// Parses the "name value [value ...]" lines a reference script prints.
+std::map<std::string, std::vector<double>> ParseReferenceOutput(const std::string& text) {
+  std::map<std::string, std::vector<double>> out;
+  std::istringstream lines(text);
+  std::string line, name;
+  while (std::getline(lines, line)) {
+    std::istringstream fields(line);
+    fields >> name;
+    for (double v; fields >> v;) out[name].push_back(v);
+  }
+  return out;
+}
+
+// Rows softmax(2 z) with z standard normal: confident but often wrong, like a real classifier.
+MatrixD RandomProbabilities(int rows, int classes, Philox* rng) {
+  MatrixD p(rows, classes);
+  for (int i = 0; i < rows; ++i) {
+    for (int k = 0; k < classes; ++k) p(i, k) = std::exp(2.0 * rng->NextNormal());
+    p.row(i) /= p.row(i).sum();
+  }
+  return p;
+}
+
+std::vector<int32_t> RandomLabels(int rows, int classes, Philox* rng) {
+  std::vector<int32_t> labels(rows);
+  for (auto& y : labels) y = static_cast<int32_t>(rng->NextBelow(classes));
+  return labels;
 }
 
 }  // namespace chorus::testing

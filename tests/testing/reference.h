@@ -3,10 +3,12 @@
 // Thread safety: not thread-safe (uses temporary files); call from one test thread.
 #pragma once
 
+#include <map>
 #include <string>
 #include <vector>
 
 #include "common/matrix.h"
+#include "common/rng.h"
 
 namespace chorus::testing {
 
@@ -22,6 +24,15 @@ std::string MakeTempDir(const std::string& prefix);
 // 17 significant digits. Reads the same format back.
 void WriteMatrixText(const std::string& path, const MatrixD& m);
 MatrixD ReadMatrixText(const std::string& path);
+
+// Parses the "name value [value ...]" lines a reference script prints.
+std::map<std::string, std::vector<double>> ParseReferenceOutput(const std::string& text);
+
+// Rows softmax(2 z) with z standard normal: confident but often wrong, like a real classifier.
+MatrixD RandomProbabilities(int rows, int classes, Philox* rng);
+
+// Labels uniform in [0, classes).
+std::vector<int32_t> RandomLabels(int rows, int classes, Philox* rng);
 
 // Path of a file in the source tree.
 std::string SourcePath(const std::string& relative);
