@@ -103,9 +103,19 @@ void WriteImages(const std::string& path, int64_t rows) {
 }
 
 struct Measured {
-  double seconds = 0;
+  double seconds = 0;      // wall clock
+  double cpu_seconds = 0;  // user + system time of the child, all threads
   double peak_rss_mib = 0;
 };
+
+double Seconds(const timeval& t) { return static_cast<double>(t.tv_sec) + t.tv_usec / 1e6; }
+
+// The 1-minute load average: other work on the machine skews wall-clock rates.
+double LoadAverage() {
+  double load = 0;
+  std::ifstream("/proc/loadavg") >> load;
+  return load;
+}
 
 // Runs `chorus predict` as a child; exits the benchmark if it fails.
 Measured RunPredict(const std::string& chorus, const std::string& bundle, const std::string& input,
@@ -127,7 +137,8 @@ Measured RunPredict(const std::string& chorus, const std::string& bundle, const 
   }
   const double seconds =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-  return {seconds, static_cast<double>(usage.ru_maxrss) / 1024.0};
+  return {seconds, Seconds(usage.ru_utime) + Seconds(usage.ru_stime),
+          static_cast<double>(usage.ru_maxrss) / 1024.0};
 }
 
 int Main(int argc, char** argv) {

@@ -114,7 +114,6 @@ Status IdxReader::ReadHeader() {
                                   " elements per row, the most chorus reads");
     }
   }
-  row_bytes_.resize(static_cast<size_t>(row_elements_) * element_bytes_);
   return Status::Ok();
 }
 
@@ -127,6 +126,7 @@ Status IdxReader::CheckNoTrailingBytes() {
 
 StatusOr<int64_t> IdxReader::Read(int64_t max_rows, float* out) {
   const int64_t n = std::min(max_rows, rows() - next_row_);
+  row_bytes_.resize(static_cast<size_t>(row_elements_) * element_bytes_);  // once: first read
   for (int64_t r = 0; r < n; ++r, ++next_row_) {
     CHORUS_RETURN_IF_ERROR(
         ReadExactly(row_bytes_.size(), row_bytes_.data(), "row " + std::to_string(next_row_)));

@@ -51,7 +51,7 @@ class IdxReader {
   std::vector<int64_t> dims_;
   int64_t row_elements_ = 1;
   int64_t next_row_ = 0;
-  std::vector<uint8_t> row_bytes_;
+  std::vector<uint8_t> row_bytes_;  // one row's bytes, allocated by the first Read
 };
 
 }  // namespace chorus

@@ -18,6 +18,17 @@ std::vector<const Matrix*> Pointers(const std::vector<Matrix>& outputs) {
   return pointers;
 }
 
+// Where component c comes from: a member and the index of one of its samples.
+using Source = std::pair<const BundleMember*, int64_t>;
+
+std::vector<Source> Sources(const Bundle& bundle) {
+  std::vector<Source> sources;
+  for (const BundleMember& m : bundle.members) {
+    for (int64_t s = 0; s < m.Samples(); ++s) sources.emplace_back(&m, s);
+  }
+  return sources;
+}
+
 }  // namespace
 
 Predictor::Predictor(const Bundle& bundle)
@@ -40,12 +51,10 @@ StatusOr<Predictor> Predictor::Create(const Bundle& bundle, const ParallelFor& p
                                 std::to_string(max_sample_bytes) + " bytes allowed");
   }
   Predictor p(bundle);
-  std::vector<std::pair<const BundleMember*, int64_t>> sources;  // member and sample per component
-  for (const BundleMember& m : bundle.members) {
-    for (int64_t s = 0; s < m.Samples(); ++s) {
-      sources.emplace_back(&m, s);
-      p.component_weights_.push_back(m.weight / static_cast<double>(m.Samples()));
-    }
+  const std::vector<Source> sources = Sources(bundle);
+  for (const Source& source : sources) {
+    const BundleMember& m = *source.first;
+    p.component_weights_.push_back(m.weight / static_cast<double>(m.Samples()));
   }
   p.samples_.resize(sources.size());
   const auto draw = [&](int64_t c) {

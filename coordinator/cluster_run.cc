@@ -9,6 +9,7 @@
 #include <thread>
 
 #include "common/file_util.h"
+#include "common/log_format.h"
 #include "coordinator/coordinator_service.h"
 #include "coordinator/local_workers.h"
 #include "coordinator/progress_view.h"
@@ -62,6 +63,7 @@ std::vector<std::string> LocalWorkerArgs(const ClusterConfig& c, const Config& c
                                    "--token-file", token_path, "--slots", "1", "--exit-when-done", "--exit-with-parent",
                                    "--max-backoff", "1", "--cache-dir", config.run.out_dir + "/.cache"};
   if (!c.tls_cert.empty()) args.insert(args.end(), {"--tls-ca", c.tls_cert});
+  if (GetLogFormat() == LogFormat::kJson) args.insert(args.end(), {"--log-format", "json"});
   return args;
 }
 
@@ -124,7 +126,8 @@ StatusOr<ClusterOutcome> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory&
   CHORUS_RETURN_IF_ERROR(WriteFileAtomic(dir.File("coordinator.json"),
       "{\"address\": \"" + bound + "\", \"token_file\": \"" + token.second + "\"}\n"));
   dir.LogEvent("coordinator_listening", {{"address", bound}, {"local_workers", local}});
-  std::fprintf(stderr, "coordinator listening on %s; %d local worker(s)\n", bound.c_str(), local);
+  LogLine(stderr, LogLevel::kInfo, "coordinator listening on " + bound + "; " + std::to_string(local) +
+          " local worker(s)", {{"address", bound}, {"local_workers", local}});
   LocalWorkers workers;
   const std::vector<std::string> args = LocalWorkerArgs(c, *jobs.config, port, token.second);
   CHORUS_RETURN_IF_ERROR(workers.Start(WorkerBinaryPath(), args, local, dir.File("worker.log")));

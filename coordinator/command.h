@@ -18,5 +18,6 @@ void RegisterPredictCommand(CLI::App& app, CommandRunner* runner);
 void RegisterInspectCommand(CLI::App& app, CommandRunner* runner);
 void RegisterReportCommand(CLI::App& app, CommandRunner* runner);
 void RegisterCompareCommand(CLI::App& app, CommandRunner* runner);
+void RegisterPromoteCommand(CLI::App& app, CommandRunner* runner);
 
 }  // namespace chorus

@@ -7,6 +7,7 @@
 #include <filesystem>
 
 #include "common/file_util.h"
+#include "common/log_format.h"
 #include "common/sha256.h"
 #include "proto/result_codec.h"
 #include "proto/spec_codec.h"
@@ -36,7 +37,8 @@ grpc::Status CoordinatorService::Authenticate(grpc::ServerContext* ctx) {
     ++refused_;
   }
   const std::string why = it == md.end() ? "no token" : "wrong token";
-  std::fprintf(stderr, "refused a call from %s: %s\n", ctx->peer().c_str(), why.c_str());
+  LogLine(stderr, LogLevel::kWarning, "refused a call from " + ctx->peer() + ": " + why,
+          {{"peer", ctx->peer()}, {"why", why}});
   dir_->LogEvent("call_refused", {{"peer", ctx->peer()}, {"why", why}});
   return grpc::Status(grpc::StatusCode::UNAUTHENTICATED, "missing or wrong token");
 }

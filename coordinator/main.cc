@@ -18,6 +18,7 @@ int main(int argc, char** argv) {
   chorus::RegisterInspectCommand(app, &runner);
   chorus::RegisterReportCommand(app, &runner);
   chorus::RegisterCompareCommand(app, &runner);
+  chorus::RegisterPromoteCommand(app, &runner);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {

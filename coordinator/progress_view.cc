@@ -4,6 +4,8 @@
 
 #include <string>
 
+#include "common/log_format.h"
+
 namespace chorus {
 namespace {
 
@@ -12,7 +14,8 @@ double Seconds(std::chrono::steady_clock::duration d) { return std::chrono::dura
 }  // namespace
 
 ProgressView::ProgressView(FILE* out, int jobs, double plain_interval_seconds)
-    : out_(out), live_(isatty(fileno(out)) != 0), jobs_(jobs), plain_interval_(plain_interval_seconds),
+    : out_(out), live_(isatty(fileno(out)) != 0 && GetLogFormat() == LogFormat::kText), jobs_(jobs),
+      plain_interval_(plain_interval_seconds),
       start_(std::chrono::steady_clock::now()), last_plain_(start_) {}
 
 std::string ProgressView::Summary(const std::vector<JobSnapshot>& jobs,
@@ -46,8 +49,7 @@ void ProgressView::Update(const std::vector<JobSnapshot>& jobs,
   if (!live_) {
     if (Seconds(std::chrono::steady_clock::now() - last_plain_) < plain_interval_) return;
     last_plain_ = std::chrono::steady_clock::now();
-    std::fprintf(out_, "%s\n", summary.c_str());
-    std::fflush(out_);
+    LogLine(out_, LogLevel::kInfo, summary, {{"workers", workers.size()}});
     return;
   }
   if (lines_drawn_ > 0) std::fprintf(out_, "\033[%dA", lines_drawn_);
@@ -68,8 +70,7 @@ void ProgressView::Update(const std::vector<JobSnapshot>& jobs,
 
 void ProgressView::Finish(const std::vector<JobSnapshot>& jobs) {
   lines_drawn_ = 0;
-  std::fprintf(out_, "%s\n", Summary(jobs, {}).c_str());
-  std::fflush(out_);
+  LogLine(out_, LogLevel::kInfo, Summary(jobs, {}));
 }
 
 }  // namespace chorus

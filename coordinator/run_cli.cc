@@ -2,6 +2,7 @@
 #include <cstdio>
 #include <memory>
 
+#include "common/log_format.h"
 #include "coordinator/command.h"
 #include "coordinator/run_command.h"
 
@@ -24,10 +25,17 @@ void RegisterRunCommand(CLI::App& app, CommandRunner* runner) {
                   "local worker processes (default: cluster.local_workers; 0 with no cluster.listen "
                   "= train in this process)")
       ->check(CLI::Range(0, 4096));
-  cmd->callback([runner, options] {
-    *runner = [options] {
+  auto log_format = std::make_shared<std::string>("text");
+  cmd->add_option("--log-format", *log_format,
+                  "log lines on stderr: text, or json (one object per line: time, level, msg, "
+                  "fields; the embedded workers' worker.log too)")
+      ->check(CLI::IsMember({"text", "json"}))
+      ->capture_default_str();
+  cmd->callback([runner, options, log_format] {
+    *runner = [options, log_format] {
+      SetLogFormat(*log_format == "json" ? LogFormat::kJson : LogFormat::kText);
       if (options->config_path.empty() == options->resume_dir.empty()) {
-        std::fprintf(stderr, "chorus run: give either CONFIG or --resume RUN_DIR\n");
+        LogPrintf(stderr, LogLevel::kError, "chorus run: give either CONFIG or --resume RUN_DIR");
         return 2;
       }
       return RunCommand(*options);

@@ -11,6 +11,7 @@
 
 #include "common/file_util.h"
 #include "common/gemm.h"
+#include "common/log_format.h"
 #include "common/rng.h"
 #include "coordinator/bundle_writer.h"
 #include "coordinator/cluster_run.h"
@@ -180,10 +181,10 @@ StatusOr<std::vector<MemberResult>> LoadResults(const RunDirectory& dir, const I
 }
 
 int Fail(RunDirectory& dir, const Inputs& in, const Status& st, double seconds) {
-  std::fprintf(stderr, "chorus run: %s\n", st.ToString().c_str());
+  LogPrintf(stderr, LogLevel::kError, "chorus run: %s", st.ToString().c_str());
   dir.LogEvent("run_failed", {{"cause", st.ToString()}});
   WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "failed", st.ToString(), seconds).dump(2));
-  std::fprintf(stderr, "run directory (failed): %s\n", dir.path().c_str());
+  LogPrintf(stderr, LogLevel::kError, "run directory (failed): %s", dir.path().c_str());
   return st.ExitCode();
 }
 
@@ -203,7 +204,7 @@ StatusOr<RunDirectory> OpenOrCreate(const RunOptions& options, const Inputs& in)
 // Assembles, reports and writes the closing files of a run whose members are on disk.
 int Finish(RunDirectory& dir, const Inputs& in, const TrainingOutcome& trained, double seconds) {
   const std::vector<std::string>& failures = trained.failures;
-  for (const std::string& f : failures) std::fprintf(stderr, "failed: %s\n", f.c_str());
+  for (const std::string& f : failures) LogPrintf(stderr, LogLevel::kError, "failed: %s", f.c_str());
   StatusOr<std::vector<MemberResult>> loaded = LoadResults(dir, in);
   if (!loaded.ok()) return Fail(dir, in, loaded.status(), seconds);
   const std::vector<MemberResult>& members = loaded.value();
@@ -236,20 +237,20 @@ int RunCommand(const RunOptions& options) {
   auto seconds = [&] { return std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count(); };
   StatusOr<Inputs> loaded = LoadInputs(options);
   if (!loaded.ok()) {
-    std::fprintf(stderr, "chorus run: %s\n", loaded.status().ToString().c_str());
+    LogPrintf(stderr, LogLevel::kError, "chorus run: %s", loaded.status().ToString().c_str());
     return loaded.status().ExitCode();
   }
   const Inputs& in = loaded.value();
   StatusOr<RunDirectory> opened = OpenOrCreate(options, in);
   if (!opened.ok()) {
-    std::fprintf(stderr, "chorus run: %s\n", opened.status().ToString().c_str());
+    LogPrintf(stderr, LogLevel::kError, "chorus run: %s", opened.status().ToString().c_str());
     return opened.status().ExitCode();
   }
   RunDirectory& dir = opened.value();
-  std::fprintf(stderr, "run directory: %s\ndata: %lld train, %lld validation, %lld test rows; %lld features\n",
-               dir.path().c_str(), static_cast<long long>(in.data.train.rows()),
-               static_cast<long long>(in.data.validation.rows()),
-               static_cast<long long>(in.data.test.rows()), static_cast<long long>(in.data.features()));
+  LogLine(stderr, LogLevel::kInfo, "run directory: " + dir.path(), {{"run_dir", dir.path()}});
+  LogPrintf(stderr, LogLevel::kInfo, "data: %lld train, %lld validation, %lld test rows; %lld features",
+            static_cast<long long>(in.data.train.rows()), static_cast<long long>(in.data.validation.rows()),
+            static_cast<long long>(in.data.test.rows()), static_cast<long long>(in.data.features()));
   StatusOr<TrainingOutcome> trained = TrainMembers(in, dir);
   if (!trained.ok()) return Fail(dir, in, trained.status(), seconds());
   return Finish(dir, in, trained.value(), seconds());

@@ -5,11 +5,13 @@
 #include <sstream>
 #include <iomanip>
 
+#include "common/log_format.h"
+
 namespace chorus {
 
 ProgressPrinter::ProgressPrinter(FILE* out, int members, int epochs)
-    : out_(out), live_(isatty(fileno(out)) != 0), members_(members), epochs_(epochs),
-      start_(std::chrono::steady_clock::now()) {}
+    : out_(out), live_(isatty(fileno(out)) != 0 && GetLogFormat() == LogFormat::kText),
+      members_(members), epochs_(epochs), start_(std::chrono::steady_clock::now()) {}
 
 void ProgressPrinter::OnEpoch(const EpochProgress& p) {
   ++epochs_seen_;
@@ -20,8 +22,11 @@ void ProgressPrinter::OnEpoch(const EpochProgress& p) {
     std::fprintf(out_, "\r\033[K[%d/%d members done] member %d epoch %d/%d loss %.4f  eta %.0fs",
                  done_, members_, p.member, p.epoch, p.epochs, p.mean_loss, eta);
   } else {
-    std::fprintf(out_, "member %d epoch %d/%d loss %.6f (%.0f%% of all epochs, eta %.0fs)\n",
-                 p.member, p.epoch, p.epochs, p.mean_loss, 100.0 * epochs_seen_ / total, eta);
+    char text[160];
+    std::snprintf(text, sizeof text, "member %d epoch %d/%d loss %.6f (%.0f%% of all epochs, eta %.0fs)",
+                  p.member, p.epoch, p.epochs, p.mean_loss, 100.0 * epochs_seen_ / total, eta);
+    LogLine(out_, LogLevel::kInfo, text, {{"member", p.member}, {"epoch", p.epoch},
+                                          {"epochs", p.epochs}, {"loss", p.mean_loss}, {"eta_s", eta}});
   }
   std::fflush(out_);
 }
@@ -31,17 +36,18 @@ void ProgressPrinter::OnMemberDone(int member, const Status& status) {
   if (!status.ok()) ++failed_;
   if (live_) std::fputs("\r\033[K", out_);
   if (status.ok()) {
-    std::fprintf(out_, "member %d finished (%d/%d)\n", member, done_, members_);
+    LogPrintf(out_, LogLevel::kInfo, "member %d finished (%d/%d)", member, done_, members_);
   } else {
-    std::fprintf(out_, "member %d FAILED: %s\n", member, status.ToString().c_str());
+    LogLine(out_, LogLevel::kError, "member " + std::to_string(member) + " FAILED: " + status.ToString(),
+            {{"member", member}, {"cause", status.ToString()}});
   }
   std::fflush(out_);
 }
 
 void ProgressPrinter::Finish() {
   const double elapsed = std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
-  std::fprintf(out_, "trained %d of %d members in %.1fs (%d failed)\n", done_ - failed_, members_,
-               elapsed, failed_);
+  LogPrintf(out_, LogLevel::kInfo, "trained %d of %d members in %.1fs (%d failed)", done_ - failed_,
+            members_, elapsed, failed_);
 }
 
 namespace {

@@ -10,6 +10,7 @@
 #include <thread>
 #include <vector>
 
+#include "common/log_format.h"
 #include "common/member_training.h"
 #include "proto/result_codec.h"
 #include "proto/spec_codec.h"
@@ -124,7 +125,10 @@ void RunJob(const Shared& s, const wire::LeaseReply& lease) {
     const std::string bytes = EncodeJobResult(result.value(), net.widths(), data_hash, lease.config_hash());
     wire::UploadReply reply;
     const Status st = s.client->UploadResult(s.worker_id, lease.job_id(), lease.lease_id(), bytes, &reply);
-    if (!st.ok()) std::fprintf(stderr, "chorus-worker: upload of job %s failed: %s\n", lease.job_id().c_str(), st.ToString().c_str());
+    if (!st.ok()) {
+      LogLine(stderr, LogLevel::kError, "chorus-worker: upload of job " + lease.job_id() + " failed: " +
+              st.ToString(), {{"job", lease.job_id()}, {"cause", st.ToString()}});
+    }
     return;
   }
   if (result.status().code() == Status::Code::kCancelled) {
@@ -181,7 +185,8 @@ Status RegisterWithBackoff(const WorkerOptions& o, const std::atomic<bool>& stop
   while (!stop.load()) {
     const Status st = client->Register(request, reply);
     if (st.ok() || st.code() == Status::Code::kInvalidInput) return st;
-    std::fprintf(stderr, "chorus-worker: %s; retrying in %.1fs\n", st.ToString().c_str(), backoff);
+    LogPrintf(stderr, LogLevel::kWarning, "chorus-worker: %s; retrying in %.1fs", st.ToString().c_str(),
+              backoff);
     SleepUnlessStopped(backoff, stop);
     backoff = std::min(backoff * 2, o.max_backoff_seconds);
   }

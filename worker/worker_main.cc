@@ -9,6 +9,7 @@
 #include <cstdlib>
 
 #include "common/file_util.h"
+#include "common/log_format.h"
 #include "worker/worker_loop.h"
 
 namespace {
@@ -47,14 +48,20 @@ int main(int argc, char** argv) {
                "stop (as on SIGTERM) when the process that started this one exits");
   app.add_option("--max-backoff", o.max_backoff_seconds, "longest wait between reconnects, seconds")
       ->check(CLI::Range(0.1, 3600.0))->capture_default_str();
+  std::string log_format = "text";
+  app.add_option("--log-format", log_format,
+                 "log lines on stderr: text, or json (one object per line: time, level, msg, fields)")
+      ->check(CLI::IsMember({"text", "json"}))->capture_default_str();
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
     return app.exit(e) == 0 ? 0 : 2;
   }
+  chorus::SetLogFormat(log_format == "json" ? chorus::LogFormat::kJson : chorus::LogFormat::kText);
   chorus::StatusOr<std::string> token = chorus::ReadFileToString(token_file, 4096);
   if (!token.ok()) {
-    std::fprintf(stderr, "chorus-worker: %s\n", token.status().ToString().c_str());
+    chorus::LogPrintf(stderr, chorus::LogLevel::kError, "chorus-worker: %s",
+                      token.status().ToString().c_str());
     return 2;
   }
   o.connection.token = token.value().substr(0, token.value().find_first_of("\r\n"));
@@ -66,6 +73,8 @@ int main(int argc, char** argv) {
     if (getppid() != parent) g_stop.store(true);  // the parent died before prctl took effect
   }
   const chorus::Status st = chorus::RunWorker(o, g_stop);
-  if (!st.ok()) std::fprintf(stderr, "chorus-worker: %s\n", st.ToString().c_str());
+  if (!st.ok()) {
+    chorus::LogPrintf(stderr, chorus::LogLevel::kError, "chorus-worker: %s", st.ToString().c_str());
+  }
   return st.ExitCode();
 }
