@@ -1,17 +1,20 @@
 // chorus-bench-predict: throughput and peak memory of `chorus predict` on this machine.
 //
 // Bundle: 8 members of 784-512-512-10 (relu, 669,706 parameters), each a gaussian_lowrank basin
-// fit of rank 10 with 10 samples (80 networks in all), random weights (N(0, 1/fan_in)), written
+// fit of rank 10 with 10 samples (80 networks in all), random weights (N(0, 2/fan_in)), written
 // with the real codec. Input: 10,000 random 28x28 ubyte images in an IDX file (the Fashion-MNIST
 // test set's shape). The real `chorus predict` executable runs as a child process, so the times
 // include everything a user waits for: reading and verifying the bundle, re-drawing the 80
 // samples, streaming the input, 80 forward passes per row, mixing and writing the CSV. Peak
 // memory is the child's maximum resident set (wait4's ru_maxrss).
-// A run on a 1-row input gives the fixed cost (load + draw); rows_per_s_steady excludes it.
+// A run on a 1-row input gives the fixed cost (load + draw); the *_steady rates exclude it.
+// Wall-clock rates need an otherwise idle machine; rows_per_cpu_s_steady (rows per CPU-second of
+// the child, all threads) is less sensitive to other load, and loadavg says how busy it was.
 // Usage: chorus-bench-predict [CHORUS_BINARY] (default: the build's chorus)
 // Output: one line per thread count:
 //   chorus-predict threads=T rows=N seconds=S load_seconds=L rows_per_s=R rows_per_s_steady=R2
-//                  gflops=G peak_rss_mib=M bundle_mib=B
+//                  gflops=G cpu_seconds=C rows_per_cpu_s_steady=R3 peak_rss_mib=M bundle_mib=B
+//                  loadavg=A
 #include <sys/resource.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -156,17 +159,19 @@ int Main(int argc, char** argv) {
   const double bundle_mib = std::filesystem::file_size(dir + "/bundle.chorus") / 1048576.0;
   const double flops_per_row = 2.0 * BundleParameterCount(bundle.widths) * kMembers * kSamples;
   for (int threads : {1, 2}) {
+    const double load_average = LoadAverage();
     const Measured load =
         RunPredict(chorus, dir + "/bundle.chorus", dir + "/one.idx", dir + "/one.csv", threads);
     const Measured all =
         RunPredict(chorus, dir + "/bundle.chorus", dir + "/rows.idx", dir + "/rows.csv", threads);
     const double steady = kRows / (all.seconds - load.seconds);
     std::printf(
-        "chorus-predict threads=%d rows=%lld seconds=%.2f load_seconds=%.2f "
-        "rows_per_s=%.1f rows_per_s_steady=%.1f gflops=%.1f peak_rss_mib=%.0f "
-        "bundle_mib=%.0f\n",
+        "chorus-predict threads=%d rows=%lld seconds=%.2f load_seconds=%.2f rows_per_s=%.1f "
+        "rows_per_s_steady=%.1f gflops=%.1f cpu_seconds=%.1f rows_per_cpu_s_steady=%.1f "
+        "peak_rss_mib=%.0f bundle_mib=%.0f loadavg=%.2f\n",
         threads, static_cast<long long>(kRows), all.seconds, load.seconds, kRows / all.seconds,
-        steady, steady * flops_per_row / 1e9, all.peak_rss_mib, bundle_mib);
+        steady, steady * flops_per_row / 1e9, all.cpu_seconds,
+        kRows / (all.cpu_seconds - load.cpu_seconds), all.peak_rss_mib, bundle_mib, load_average);
     std::fflush(stdout);
   }
   std::filesystem::remove_all(dir);

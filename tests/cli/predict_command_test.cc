@@ -150,10 +150,10 @@ TEST_F(PredictCommandTest, ReproducesTheReportOnTheRunsOwnTestRows) {
   const json report = Report(run);
   ExpectScoresEqualReport(p, data, report);
   // scikit-learn's log_loss on the written probabilities (Debian python3-sklearn).
-  const std::string out =
-      testing::RunReferenceScript("sklearn_log_loss_csv.py", {dir_ + "/p1.csv", test_csv, "cause"});
-  ASSERT_EQ(out.rfind("nll ", 0), 0u) << out;
-  EXPECT_NEAR(Number(out.substr(4)), report["ensemble"]["test"]["nll"].get<double>(), 1e-12);
+  const auto reference = testing::ParseReferenceOutput(testing::RunReferenceScript(
+      "sklearn_log_loss_csv.py", {dir_ + "/p1.csv", test_csv, "cause"}));
+  ASSERT_EQ(reference.count("nll"), 1u);
+  EXPECT_NEAR(reference.at("nll")[0], report["ensemble"]["test"]["nll"].get<double>(), 1e-12);
 }
 
 TEST_F(PredictCommandTest, RegressionReproducesRmseCoverageAndNll) {
