@@ -316,7 +316,8 @@ Status LoadCluster(const Section& s, const std::string& base, ClusterConfig* c) 
 }
 
 Status LoadAll(const YAML::Node& root, const std::string& path, Config* c) {
-  const std::string base = std::filesystem::path(path).parent_path().string();
+  // Absolute, so the resolved config written into a run directory loads from anywhere.
+  const std::string base = std::filesystem::absolute(path).parent_path().string();
   Section top(root, "", path);
   CHORUS_RETURN_IF_ERROR(top.Check({"run", "data", "model", "train", "ensemble", "report", "compute",
                                     "cluster"}));
