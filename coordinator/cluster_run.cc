@@ -97,6 +97,22 @@ Status Supervise(JobTable& table, CoordinatorService& service, RunDirectory& dir
   return Status::Ok();
 }
 
+// Keeps serving until every registered worker has asked for work since the run settled (and so
+// was told DONE), or a third of a lease plus 2 s has passed: remote workers started with
+// --exit-when-done then exit instead of retrying a coordinator that is gone.
+void TellRemoteWorkersDone(const CoordinatorService& service, double lease_seconds) {
+  const Clock::time_point settled = Clock::now();
+  const auto all_told = [&] {
+    for (const auto& [id, w] : service.Workers()) {
+      if (w.last_seen <= settled || !w.job.empty()) return false;
+    }
+    return true;
+  };
+  const auto until = settled + std::chrono::duration_cast<Clock::duration>(
+                                   std::chrono::duration<double>(lease_seconds / 3 + 2));
+  while (!all_told() && Clock::now() < until) std::this_thread::sleep_for(std::chrono::milliseconds(50));
+}
+
 }  // namespace
 
 StatusOr<ClusterOutcome> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory& dir) {
@@ -132,6 +148,7 @@ StatusOr<ClusterOutcome> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory&
   const std::vector<std::string> args = LocalWorkerArgs(c, *jobs.config, port, token.second);
   CHORUS_RETURN_IF_ERROR(workers.Start(WorkerBinaryPath(), args, local, dir.File("worker.log")));
   const Status st = Supervise(table, service, dir, workers, local, args);
+  if (!c.listen.empty()) TellRemoteWorkersDone(service, c.lease_seconds);
   workers.WaitForExit(5.0);  // they exit on their own once told the run is done
   workers.Stop(2.0);
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(2));

@@ -12,9 +12,10 @@ build_packages=(cmake make g++ pkg-config libtbb-dev libeigen3-dev libprotobuf-d
   libgrpc++-dev protobuf-compiler-grpc libyaml-cpp-dev libcli11-dev nlohmann-json3-dev libssl-dev
   zlib1g-dev libgtest-dev libdnnl-dev)
 # Reference libraries and open data the tests check against (scikit-learn, SciPy, PyTorch,
-# Fashion-MNIST), and headless Chromium for the report.html check.
+# Fashion-MNIST), headless Chromium for the report.html check, and for the deploy/ checks a real
+# one-node Slurm cluster (slurm-wlm, munge), systemd-analyze (systemd) and PyYAML.
 test_packages=(python3 python3-numpy python3-scipy python3-sklearn python3-torch dataset-fashion-mnist
-  iproute2 openssl chromium)
+  iproute2 openssl chromium slurm-wlm munge systemd python3-yaml)
 wanted=("${build_packages[@]}")
 [ "$mode" = test ] && wanted+=("${test_packages[@]}")
 
