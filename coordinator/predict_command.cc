@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "common/atomic_file.h"
+#include "common/log_format.h"
 #include "common/prediction_input.h"
 #include "common/predictor.h"
 #include "coordinator/prediction_csv.h"
@@ -51,7 +52,9 @@ class BadRows {
     if (!skip_) {
       return Status::InvalidInput(problem.message() + " (--skip-bad-rows skips such rows)");
     }
-    if (count_++ < kBadRowsShown) std::fprintf(stderr, "skipped: %s\n", problem.message().c_str());
+    if (count_++ < kBadRowsShown) {
+      LogLine(stderr, LogLevel::kWarning, "skipped: " + problem.message(), {{"cause", problem.message()}});
+    }
     return Status::Ok();
   }
   int64_t count() const { return count_; }
@@ -121,9 +124,10 @@ Status Predict(const PredictOptions& o, int threads) {
     }
   }
   CHORUS_RETURN_IF_ERROR(out->Commit());
-  std::fprintf(stderr, "%lld rows predicted, %lld invalid rows skipped: %s\n",
-               static_cast<long long>(rows), static_cast<long long>(bad.count()),
-               o.output_path.c_str());
+  LogLine(stderr, LogLevel::kInfo,
+          std::to_string(rows) + " rows predicted, " + std::to_string(bad.count()) +
+              " invalid rows skipped: " + o.output_path,
+          {{"rows", rows}, {"skipped", bad.count()}, {"output", o.output_path}});
   return Status::Ok();
 }
 
@@ -134,7 +138,7 @@ int PredictCommand(const PredictOptions& options) {
       options.threads > 0 ? options.threads : static_cast<int>(std::thread::hardware_concurrency());
   const Status st = Predict(options, threads > 0 ? threads : 1);
   if (st.ok()) return 0;
-  std::fprintf(stderr, "chorus predict: %s\n", st.ToString().c_str());
+  LogLine(stderr, LogLevel::kError, "chorus predict: " + st.ToString(), {{"cause", st.ToString()}});
   return st.ExitCode();
 }
 
