@@ -10,6 +10,28 @@
 #include <limits>
 
 namespace chorus {
+
+uint32_t IdxBigEndian32(const uint8_t* p) {
+  return (uint32_t{p[0]} << 24) | (uint32_t{p[1]} << 16) | (uint32_t{p[2]} << 8) | p[3];
+}
+
+size_t IdxElementBytes(uint8_t type) {
+  switch (type) {
+    case 0x08:
+    case 0x09:
+      return 1;
+    case 0x0B:
+      return 2;
+    case 0x0C:
+    case 0x0D:
+      return 4;
+    case 0x0E:
+      return 8;
+    default:
+      return 0;
+  }
+}
+
 namespace {
 
 constexpr int64_t kMaxElements = int64_t{1} << 31;
@@ -28,31 +50,11 @@ struct IdxHeader {
   }
 };
 
-uint32_t BigEndian32(const uint8_t* p) {
-  return (uint32_t{p[0]} << 24) | (uint32_t{p[1]} << 16) | (uint32_t{p[2]} << 8) | p[3];
-}
 
 uint64_t BigEndian64(const uint8_t* p) {
-  return (uint64_t{BigEndian32(p)} << 32) | BigEndian32(p + 4);
+  return (uint64_t{IdxBigEndian32(p)} << 32) | IdxBigEndian32(p + 4);
 }
 
-// Bytes per element for an IDX type code, 0 for an unknown code.
-size_t ElementBytes(uint8_t type) {
-  switch (type) {
-    case 0x08:
-    case 0x09:
-      return 1;
-    case 0x0B:
-      return 2;
-    case 0x0C:
-    case 0x0D:
-      return 4;
-    case 0x0E:
-      return 8;
-    default:
-      return 0;
-  }
-}
 
 std::string Hex(uint32_t value, int digits) {
   char text[16];
@@ -69,7 +71,7 @@ std::string DimsText(const std::vector<int64_t>& dims) {
 Status ParseDims(const std::vector<uint8_t>& bytes, const std::string& path, IdxHeader* h) {
   for (size_t i = 0; i < h->dims.size(); ++i) {
     const size_t offset = 4 + 4 * i;
-    h->dims[i] = BigEndian32(&bytes[offset]);
+    h->dims[i] = IdxBigEndian32(&bytes[offset]);
     if (h->dims[i] == 0) {
       return Status::InvalidInput(path + ": byte " + std::to_string(offset) +
                                   ": expected a size "
@@ -93,11 +95,11 @@ StatusOr<IdxHeader> ParseHeader(const std::vector<uint8_t>& bytes, const std::st
   }
   if (bytes[0] != 0 || bytes[1] != 0) {
     return Status::InvalidInput(path + ": byte 0: expected the IDX magic 0x0000TTDD, found " +
-                                Hex(BigEndian32(bytes.data()), 8) + " (is this an IDX file?)");
+                                Hex(IdxBigEndian32(bytes.data()), 8) + " (is this an IDX file?)");
   }
   IdxHeader h;
   h.type = bytes[2];
-  h.element_bytes = ElementBytes(h.type);
+  h.element_bytes = IdxElementBytes(h.type);
   if (h.element_bytes == 0) {
     return Status::InvalidInput(path +
                                 ": byte 2: expected an IDX type code (0x08, 0x09, 0x0b, "
@@ -152,10 +154,10 @@ void Decode(uint8_t type, const uint8_t* p, int64_t n, float* out) {
         out[i] = static_cast<int16_t>((p[2 * i] << 8) | p[2 * i + 1]);
         break;
       case 0x0C:
-        out[i] = static_cast<float>(static_cast<int32_t>(BigEndian32(p + 4 * i)));
+        out[i] = static_cast<float>(static_cast<int32_t>(IdxBigEndian32(p + 4 * i)));
         break;
       case 0x0D: {
-        const uint32_t bits = BigEndian32(p + 4 * i);
+        const uint32_t bits = IdxBigEndian32(p + 4 * i);
         std::memcpy(&out[i], &bits, 4);
         break;
       }

@@ -3,6 +3,7 @@
 // (detected by the 0x1f 0x8b magic). Thread safety: free functions, reentrant.
 #pragma once
 
+#include <cstddef>
 #include <cstdint>
 #include <string>
 #include <vector>
@@ -10,6 +11,13 @@
 #include "common/status.h"
 
 namespace chorus {
+
+// Bytes per element of IDX type code `type` (0x08, 0x09: 1; 0x0B: 2; 0x0C, 0x0D: 4; 0x0E: 8), or
+// 0 for an unknown code.
+size_t IdxElementBytes(uint8_t type);
+
+// The big-endian uint32 at p (IDX header fields).
+uint32_t IdxBigEndian32(const uint8_t* p);
 
 struct IdxArray {
   std::vector<int64_t> dims;  // e.g. {60000, 28, 28} for images, {60000} for labels

@@ -6,30 +6,11 @@
 #include <cerrno>
 #include <cstring>
 
+#include "common/idx.h"
+
 namespace chorus {
 namespace {
 
-uint32_t BigEndian32(const uint8_t* p) {
-  return (uint32_t{p[0]} << 24) | (uint32_t{p[1]} << 16) | (uint32_t{p[2]} << 8) | p[3];
-}
-
-// Bytes per element of an IDX type code, 0 for an unknown code.
-size_t ElementBytes(uint8_t type) {
-  switch (type) {
-    case 0x08:
-    case 0x09:
-      return 1;
-    case 0x0B:
-      return 2;
-    case 0x0C:
-    case 0x0D:
-      return 4;
-    case 0x0E:
-      return 8;
-    default:
-      return 0;
-  }
-}
 
 // One big-endian element of IDX type `type` at p, as float (ReadIdx's conversion).
 float DecodeElement(uint8_t type, const uint8_t* p) {
@@ -41,15 +22,15 @@ float DecodeElement(uint8_t type, const uint8_t* p) {
     case 0x0B:
       return static_cast<int16_t>((p[0] << 8) | p[1]);
     case 0x0C:
-      return static_cast<float>(static_cast<int32_t>(BigEndian32(p)));
+      return static_cast<float>(static_cast<int32_t>(IdxBigEndian32(p)));
     case 0x0D: {
-      const uint32_t bits = BigEndian32(p);
+      const uint32_t bits = IdxBigEndian32(p);
       float value;
       std::memcpy(&value, &bits, 4);
       return value;
     }
     default: {  // 0x0E
-      const uint64_t bits = (uint64_t{BigEndian32(p)} << 32) | BigEndian32(p + 4);
+      const uint64_t bits = (uint64_t{IdxBigEndian32(p)} << 32) | IdxBigEndian32(p + 4);
       double value;
       std::memcpy(&value, &bits, 8);
       return static_cast<float>(value);
@@ -93,7 +74,7 @@ Status IdxReader::ReadHeader() {
   uint8_t magic[4];
   CHORUS_RETURN_IF_ERROR(ReadExactly(4, magic, "the 4-byte IDX magic number"));
   type_ = magic[2];
-  element_bytes_ = ElementBytes(type_);
+  element_bytes_ = IdxElementBytes(type_);
   if (magic[0] != 0 || magic[1] != 0 || element_bytes_ == 0 || magic[3] == 0) {
     return Status::InvalidInput(path_ +
                                 ": byte 0: expected the IDX magic 0x0000TTDD with a type "
@@ -102,7 +83,7 @@ Status IdxReader::ReadHeader() {
   std::vector<uint8_t> sizes(4 * size_t{magic[3]});
   CHORUS_RETURN_IF_ERROR(ReadExactly(sizes.size(), sizes.data(), "the header's sizes"));
   for (size_t i = 0; i < magic[3]; ++i) {
-    dims_.push_back(BigEndian32(&sizes[4 * i]));
+    dims_.push_back(IdxBigEndian32(&sizes[4 * i]));
     if (dims_.back() == 0) {
       return Status::InvalidInput(path_ + ": byte " + std::to_string(4 + 4 * i) +
                                   ": expected a size of at least 1 for dimension " +
