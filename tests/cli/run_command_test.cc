@@ -7,12 +7,14 @@
 #include <nlohmann/json.hpp>
 
 #include "tests/testing/process.h"
+#include "tests/testing/run_dir.h"
 #include "tests/testing/reference.h"
 
 namespace chorus {
 namespace {
 
 namespace fs = std::filesystem;
+using testing::JobResults;
 using testing::RunShell;
 
 // A temp dir with small demo data (1200 train / 400 test rows) and a config writer.
@@ -43,27 +45,6 @@ class RunCommandTest : public ::testing::Test {
     return RunShell(testing::BinaryPath("chorus") + " " + args, 300);
   }
 
-  // The only run directory under `out`, or "" if there is not exactly one.
-  static std::string OnlyRunDir(const std::string& out) {
-    std::vector<fs::path> dirs;
-    if (fs::exists(out)) {
-      for (const auto& e : fs::directory_iterator(out)) {
-        if (e.path().filename().string()[0] != '.') dirs.push_back(e.path());  // not the data cache
-      }
-    }
-    return dirs.size() == 1 ? dirs[0].string() : "";
-  }
-
-  static std::map<std::string, std::string> JobResults(const std::string& run_dir) {
-    std::map<std::string, std::string> bytes;
-    for (const auto& e : fs::recursive_directory_iterator(run_dir + "/jobs")) {
-      if (e.path().filename() == "result.pb") {
-        bytes[fs::relative(e.path(), run_dir).string()] = testing::ReadTextFile(e.path().string());
-      }
-    }
-    return bytes;
-  }
-
   std::string dir_;
 };
 
@@ -72,7 +53,7 @@ TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
                                            "ensemble: {members: 3}\n") + " --out " + dir_ + "/runs");
   ASSERT_EQ(r.exit_code, 0) << r.output;
   EXPECT_NE(r.output.find("ensemble, tuned T"), std::string::npos) << r.output;
-  const std::string run = OnlyRunDir(dir_ + "/runs");
+  const std::string run = testing::RunDirUnder(dir_ + "/runs");
   ASSERT_FALSE(run.empty());
   for (const char* f : {"config.yaml", "manifest.json", "events.jsonl", "report.json", "report.html"}) {
     EXPECT_TRUE(fs::exists(run + "/" + f)) << f;
@@ -110,7 +91,7 @@ TEST_F(RunCommandTest, ResultBytesAreIdenticalAcrossRepeatsAndThreadCounts) {
     const std::string out = dir_ + "/runs-" + std::to_string(runs.size());
     const auto r = Chorus("run " + cfg + " --threads " + threads + " --out " + out);
     ASSERT_EQ(r.exit_code, 0) << r.output;
-    runs.push_back(JobResults(OnlyRunDir(out)));
+    runs.push_back(JobResults(testing::RunDirUnder(out)));
   }
   ASSERT_EQ(runs[0].size(), 3u);
   EXPECT_TRUE(runs[0] == runs[1]) << "1 thread vs 2 threads";
@@ -123,7 +104,7 @@ TEST_F(RunCommandTest, DivergingMembersFailWithTheirCauseAndTooFewMeansExitThree
                       " --out " + dir_ + "/runs");
   EXPECT_EQ(r.exit_code, 3) << r.output;
   EXPECT_NE(r.output.find("diverged"), std::string::npos) << r.output;
-  const std::string run = OnlyRunDir(dir_ + "/runs");
+  const std::string run = testing::RunDirUnder(dir_ + "/runs");
   ASSERT_FALSE(run.empty());
   EXPECT_FALSE(fs::exists(run + "/report.json"));
   const auto manifest = nlohmann::json::parse(testing::ReadTextFile(run + "/manifest.json"));
@@ -139,7 +120,7 @@ TEST_F(RunCommandTest, RunGoesOnWhenEnoughMembersSurviveDivergence) {
   const auto enough = Chorus("run " + WriteConfig("some-nan", extra + "ensemble: {members: 6, min_members: 1}\n") +
                              " --out " + dir_ + "/runs-enough");
   ASSERT_EQ(enough.exit_code, 0) << enough.output;
-  const std::string run = OnlyRunDir(dir_ + "/runs-enough");
+  const std::string run = testing::RunDirUnder(dir_ + "/runs-enough");
   const auto report = nlohmann::json::parse(testing::ReadTextFile(run + "/report.json"));
   const auto failed = report["failed_members"];
   ASSERT_GE(failed.size(), 1u);

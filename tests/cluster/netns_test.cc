@@ -16,10 +16,16 @@
 #include <nlohmann/json.hpp>
 
 #include "tests/testing/process.h"
+#include "tests/testing/run_dir.h"
 #include "tests/testing/reference.h"
 
 namespace chorus {
 namespace {
+
+using testing::CountEvents;
+using testing::ReadEvents;
+using testing::RunDirUnder;
+using testing::WaitForCoordinator;
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -109,31 +115,9 @@ class NamespacePair {
   std::vector<std::string> made_;
 };
 
-std::vector<json> Events(const std::string& run_dir) {
-  std::vector<json> events;
-  std::ifstream f(run_dir + "/events.jsonl");
-  for (std::string line; std::getline(f, line);) events.push_back(json::parse(line));
-  return events;
-}
-
-int CountEvents(const std::string& run_dir, const std::string& kind) {
-  int n = 0;
-  for (const json& e : Events(run_dir)) n += e["event"] == kind;
-  return n;
-}
-
-// The first run directory under `out`, or "".
-std::string RunDir(const std::string& out) {
-  std::error_code ec;
-  for (const auto& e : fs::directory_iterator(out, ec)) {
-    if (e.path().filename().string()[0] != '.') return e.path().string();
-  }
-  return "";
-}
-
 // The worker named by the run's first job_leased event, or "".
 std::string FirstLeaseHolder(const std::string& run_dir) {
-  for (const json& e : Events(run_dir)) {
+  for (const json& e : ReadEvents(run_dir)) {
     if (e["event"] == "job_leased") return e["worker"];
   }
   return "";
@@ -175,18 +159,6 @@ class NetnsTest : public ::testing::Test {
     return path;
   }
 
-  // Waits for the coordinator of the run under `out` to publish its address; null on timeout.
-  json WaitForCoordinator(const std::string& out) {
-    json info;
-    WaitFor([&] {
-      const std::string run = RunDir(out);
-      if (run.empty() || !fs::exists(run + "/coordinator.json")) return false;
-      info = json::parse(testing::ReadTextFile(run + "/coordinator.json"));
-      return true;
-    }, 30);
-    return info;
-  }
-
   // A chorus-worker for `address` with its own data cache, exiting once the run is done.
   std::vector<std::string> WorkerArgv(const std::string& address, const std::string& cache) const {
     return {testing::BinaryPath("chorus-worker"), "--coordinator", address, "--token-file",
@@ -209,7 +181,7 @@ TEST_F(NetnsTest, LinkDownMidJobLeaseExpiresAndAnotherWorkerFinishes) {
                                 dir_ + "/coordinator.log");
   const json info = WaitForCoordinator(out);
   ASSERT_FALSE(info.is_null()) << testing::ReadTextFile(dir_ + "/coordinator.log");
-  const std::string address = info["address"], run = RunDir(out);
+  const std::string address = info["address"], run = RunDirUnder(out);
   BackgroundProcess far(net.InB(WorkerArgv(address, dir_ + "/cache-b")), dir_ + "/far.log");
   ASSERT_TRUE(WaitFor([&] {
     return CountEvents(run, "job_leased") >= 1 && HasCachedData(dir_ + "/cache-b");
@@ -221,7 +193,7 @@ TEST_F(NetnsTest, LinkDownMidJobLeaseExpiresAndAnotherWorkerFinishes) {
   EXPECT_EQ(coordinator.Wait(180), 0) << testing::ReadTextFile(dir_ + "/coordinator.log");
   EXPECT_EQ(near.Wait(30), 0) << testing::ReadTextFile(dir_ + "/near.log");
   int finished = 0;
-  for (const json& e : Events(run)) {
+  for (const json& e : ReadEvents(run)) {
     if (e["event"] != "member_finished") continue;
     ++finished;
     EXPECT_NE(e["worker"], far_id) << "the worker behind the dead link cannot have finished a job";

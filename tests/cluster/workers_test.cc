@@ -12,6 +12,7 @@
 #include <nlohmann/json.hpp>
 
 #include "tests/testing/process.h"
+#include "tests/testing/run_dir.h"
 #include "tests/testing/reference.h"
 
 namespace chorus {
@@ -20,7 +21,12 @@ namespace {
 namespace fs = std::filesystem;
 using nlohmann::json;
 using testing::BackgroundProcess;
+using testing::CountEvents;
+using testing::JobResults;
+using testing::ReadEvents;
+using testing::RunDirUnder;
 using testing::WaitFor;
+using testing::WaitForCoordinator;
 
 class WorkersTest : public ::testing::Test {
  protected:
@@ -54,37 +60,6 @@ class WorkersTest : public ::testing::Test {
     return argv;
   }
 
-  static std::string RunDir(const std::string& out) {
-    if (!fs::exists(out)) return "";
-    for (const auto& e : fs::directory_iterator(out)) {
-      if (e.path().filename().string()[0] != '.') return e.path().string();
-    }
-    return "";
-  }
-
-  static std::vector<json> Events(const std::string& run_dir) {
-    std::vector<json> events;
-    std::ifstream f(run_dir + "/events.jsonl");
-    for (std::string line; std::getline(f, line);) events.push_back(json::parse(line));
-    return events;
-  }
-
-  static int CountEvents(const std::string& run_dir, const std::string& kind) {
-    int n = 0;
-    for (const json& e : Events(run_dir)) n += e["event"] == kind;
-    return n;
-  }
-
-  static std::map<std::string, std::string> Results(const std::string& run_dir) {
-    std::map<std::string, std::string> bytes;
-    for (const auto& e : fs::recursive_directory_iterator(run_dir + "/jobs")) {
-      if (e.path().filename() == "result.pb") {
-        bytes[fs::relative(e.path(), run_dir).string()] = testing::ReadTextFile(e.path().string());
-      }
-    }
-    return bytes;
-  }
-
   // The in-process results of the same members: the reference every worker run must match byte
   // for byte (the cluster section changes speed only, not results).
   std::map<std::string, std::string> InProcessResults(const std::string& name, int members, int epochs) {
@@ -93,19 +68,7 @@ class WorkersTest : public ::testing::Test {
     const std::string config = WriteConfig(name, members, epochs, "local_workers: 0");
     const auto r = testing::RunShell(testing::BinaryPath("chorus") + " run " + config + " --out " + out, 300);
     EXPECT_EQ(r.exit_code, 0) << r.output;
-    return Results(RunDir(out));
-  }
-
-  // Waits for the coordinator of the run under `out` to publish its address.
-  json WaitForCoordinator(const std::string& out) {
-    json info;
-    WaitFor([&] {
-      const std::string run = RunDir(out);
-      if (run.empty() || !fs::exists(run + "/coordinator.json")) return false;
-      info = json::parse(testing::ReadTextFile(run + "/coordinator.json"));
-      return true;
-    }, 30);
-    return info;
+    return JobResults(RunDirUnder(out));
   }
 
   std::unique_ptr<BackgroundProcess> StartWorker(const json& coordinator, const std::string& token_file,
@@ -130,8 +93,8 @@ TEST_F(WorkersTest, ResultsAreBitIdenticalWithOneTwoThreeWorkersAndInProcess) {
     const auto r = testing::RunShell(testing::BinaryPath("chorus") + " run " + cfg + " --workers " +
                                      workers + " --out " + out, 300);
     ASSERT_EQ(r.exit_code, 0) << r.output;
-    EXPECT_TRUE(Results(RunDir(out)) == reference);
-    EXPECT_EQ(CountEvents(RunDir(out), "worker_registered"), std::stoi(workers));
+    EXPECT_TRUE(JobResults(RunDirUnder(out)) == reference);
+    EXPECT_EQ(CountEvents(RunDirUnder(out), "worker_registered"), std::stoi(workers));
   }
 }
 
@@ -142,7 +105,7 @@ TEST_F(WorkersTest, KilledWorkersJobIsLeasedAgainAndTheRunCompletesIdentically) 
   BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
   const json info = WaitForCoordinator(out);
   ASSERT_FALSE(info.is_null()) << testing::ReadTextFile(dir_ + "/coordinator.log");
-  const std::string run = RunDir(out);
+  const std::string run = RunDirUnder(out);
   auto doomed = StartWorker(info, info["token_file"]);
   ASSERT_TRUE(WaitFor([&] { return CountEvents(run, "job_leased") >= 1; }, 30));
   doomed->Signal(SIGKILL);
@@ -152,7 +115,7 @@ TEST_F(WorkersTest, KilledWorkersJobIsLeasedAgainAndTheRunCompletesIdentically) 
   EXPECT_GE(CountEvents(run, "lease_expired"), 1);
   EXPECT_EQ(CountEvents(run, "member_finished"), 2);
   EXPECT_EQ(rescuer->Wait(30), 0);
-  EXPECT_TRUE(Results(run) == InProcessResults("kill-worker-reference", 2, 3000));
+  EXPECT_TRUE(JobResults(run) == InProcessResults("kill-worker-reference", 2, 3000));
 }
 
 TEST_F(WorkersTest, KilledCoordinatorResumesWithoutRerunningFinishedJobs) {
@@ -161,24 +124,24 @@ TEST_F(WorkersTest, KilledCoordinatorResumesWithoutRerunningFinishedJobs) {
   {
     BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
     ASSERT_TRUE(WaitFor([&] {
-      const std::string run = RunDir(out);
+      const std::string run = RunDirUnder(out);
       return !run.empty() && fs::exists(run + "/events.jsonl") && CountEvents(run, "member_finished") >= 1;
     }, 120)) << testing::ReadTextFile(dir_ + "/coordinator.log");
     coordinator.Signal(SIGKILL);
     coordinator.Wait(5);
   }
-  const std::string run = RunDir(out);
+  const std::string run = RunDirUnder(out);
   const int finished_before = CountEvents(run, "member_finished");
   ASSERT_LT(finished_before, 4) << "the kill came too late to test anything";
   const auto r = testing::RunShell(testing::BinaryPath("chorus") + " run --resume " + run, 300);
   ASSERT_EQ(r.exit_code, 0) << r.output;
   std::map<int, int> finishes;
-  for (const json& e : Events(run)) {
+  for (const json& e : ReadEvents(run)) {
     if (e["event"] == "member_finished") ++finishes[e["member"].get<int>()];
   }
   ASSERT_EQ(finishes.size(), 4u);
   for (const auto& [member, count] : finishes) EXPECT_EQ(count, 1) << "member " << member << " ran twice";
-  EXPECT_TRUE(Results(run) == InProcessResults("resume-reference", 4, 600));
+  EXPECT_TRUE(JobResults(run) == InProcessResults("resume-reference", 4, 600));
   EXPECT_TRUE(fs::exists(run + "/report.json"));
 }
 
@@ -188,7 +151,7 @@ TEST_F(WorkersTest, WrongTokenIsRefusedAndAWorkerJoiningLateGetsTheJobs) {
   BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
   const json info = WaitForCoordinator(out);
   ASSERT_FALSE(info.is_null());
-  const std::string run = RunDir(out);
+  const std::string run = RunDirUnder(out);
   testing::WriteTextFile(dir_ + "/wrong.token", "not-the-token-at-all\n");
   auto intruder = StartWorker(info, dir_ + "/wrong.token");
   EXPECT_EQ(intruder->Wait(30), 2) << "a refused worker exits with code 2";
@@ -213,7 +176,7 @@ TEST_F(WorkersTest, WorkerThatDoesNotTrustTheServerCertificateCannotConnect) {
   BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
   const json info = WaitForCoordinator(out);
   ASSERT_FALSE(info.is_null());
-  const std::string run = RunDir(out);
+  const std::string run = RunDirUnder(out);
   auto distrustful = StartWorker(info, info["token_file"], {"--tls-ca", dir_ + "/other.pem"});
   std::this_thread::sleep_for(std::chrono::seconds(3));
   EXPECT_EQ(CountEvents(run, "worker_registered"), 0) << "the handshake must fail";

@@ -20,10 +20,13 @@
 #include <sstream>
 
 #include "tests/testing/process.h"
+#include "tests/testing/run_dir.h"
 #include "tests/testing/reference.h"
 
 namespace chorus {
 namespace {
+
+using testing::JobResults;
 
 namespace fs = std::filesystem;
 using testing::BackgroundProcess;
@@ -147,16 +150,6 @@ class SlurmCluster {
   std::string dir_;
   std::unique_ptr<BackgroundProcess> munged_, slurmctld_, slurmd_;
 };
-
-std::map<std::string, std::string> JobResults(const std::string& run_dir) {
-  std::map<std::string, std::string> bytes;
-  for (const auto& e : fs::recursive_directory_iterator(run_dir + "/jobs")) {
-    if (e.path().filename() == "result.pb") {
-      bytes[fs::relative(e.path(), run_dir).string()] = testing::ReadTextFile(e.path().string());
-    }
-  }
-  return bytes;
-}
 
 // The run directory under `out` (`runs/<name>-<time>` or `runs/slurm-<job>/<name>-<time>`).
 std::string RunDirUnder(const std::string& out) {
