@@ -87,6 +87,8 @@ struct BasinConfig {
   int rank = 10;                // gaussian_lowrank: deviation vectors kept, in [2, snapshots]
   int samples = 10;             // weight samples per member, >= 1
   double scale = 1.0;           // multiplies the fitted covariance, > 0
+  bool tune_scale = false;      // "scale: tune": pick the scale on validation from a fixed grid
+                                // (common/basin_scale.h); workers then sample at 1
 };
 
 struct EnsembleConfig {

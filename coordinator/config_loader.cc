@@ -253,7 +253,11 @@ Status LoadBasin(const Section& s, BasinConfig* b) {
   CHORUS_RETURN_IF_ERROR(s.Get<int>("snapshots", &b->snapshots, "a snapshot count", 2, 100000));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("rank", &b->rank, "a rank (at most snapshots)", 2, b->snapshots));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("samples", &b->samples, "a sample count", 1, 10000));
-  return s.Get<double>("scale", &b->scale, "a covariance scale", 1e-12, 1e6);
+  if (s.Has("scale") && s.Node("scale").IsScalar() && s.Node("scale").Scalar() == "tune") {
+    b->tune_scale = true;
+    return Status::Ok();
+  }
+  return s.Get<double>("scale", &b->scale, "tune or a covariance scale", 1e-12, 1e6);
 }
 
 Status LoadEnsemble(const Section& s, EnsembleConfig* e) {
@@ -394,7 +398,10 @@ void EmitBasin(YAML::Emitter& out, const BasinConfig& b) {
       << YAML::Key << "epochs" << YAML::Value << b.epochs << YAML::Key << "lr" << YAML::Value << b.lr
       << YAML::Key << "snapshots" << YAML::Value << b.snapshots << YAML::Key << "rank"
       << YAML::Value << b.rank << YAML::Key << "samples" << YAML::Value << b.samples
-      << YAML::Key << "scale" << YAML::Value << b.scale << YAML::EndMap;
+      << YAML::Key << "scale" << YAML::Value;
+  if (b.tune_scale) out << "tune";
+  else out << b.scale;
+  out << YAML::EndMap;
 }
 
 void EmitCluster(YAML::Emitter& out, const ClusterConfig& c) {

@@ -9,6 +9,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "common/basin_scale.h"
 #include "common/file_util.h"
 #include "common/gemm.h"
 #include "common/log_format.h"
@@ -207,23 +208,31 @@ int Finish(RunDirectory& dir, const Inputs& in, const TrainingOutcome& trained, 
   for (const std::string& f : failures) LogPrintf(stderr, LogLevel::kError, "failed: %s", f.c_str());
   StatusOr<std::vector<MemberResult>> loaded = LoadResults(dir, in);
   if (!loaded.ok()) return Fail(dir, in, loaded.status(), seconds);
-  const std::vector<MemberResult>& members = loaded.value();
+  std::vector<MemberResult>& members = loaded.value();
   if (static_cast<int>(members.size()) < in.config.ensemble.min_members || members.empty()) {
     return Fail(dir, in, Status::Refused(std::to_string(members.size()) + " members finished, fewer than min_members = " +
                                          std::to_string(in.config.ensemble.min_members)), seconds);
   }
-  const EnsembleEvaluation ev = EvaluateEnsemble(in.data, members, in.config.ensemble, in.config.report,
+  // The config as assembled: with basin.scale: tune, the scale chosen on validation.
+  Config assembled = in.config;
+  if (assembled.ensemble.basin.method != BasinMethod::kNone && assembled.ensemble.basin.tune_scale) {
+    assembled.ensemble.basin.scale = TuneBasinScale(in.data, NetworkFor(in.config.model, in.data), members);
+    dir.LogEvent("basin_scale_tuned", {{"scale", assembled.ensemble.basin.scale}});
+  }
+  const EnsembleEvaluation ev = EvaluateEnsemble(in.data, members, assembled.ensemble, in.config.report,
                                                  in.config.run.seed,
                                                  in.true_probabilities ? &*in.true_probabilities : nullptr);
   const RunFacts facts{in.config.run.name, in.data.hash, in.config_hash, in.config.ensemble.members,
                        failures, seconds};
-  const json report = ReportJson(ev, in.data, facts);
-  Status st = WriteFileAtomic(dir.File("report.html"), ReportHtml(report));
-  if (st.ok()) st = WriteFileAtomic(dir.File("report.json"), report.dump(2) + "\n");
+  json report = ReportJson(ev, in.data, facts);
+  if (assembled.ensemble.basin.method != BasinMethod::kNone) report["basin_scale"] = assembled.ensemble.basin.scale;
+  // The manifest first: the report copies it (workers, version) into report.json and the page.
+  Status st = WriteFileAtomic(dir.File("manifest.json"),
+                              Manifest(in, "complete", "", seconds, trained.workers).dump(2));
+  if (st.ok()) st = WriteReportFiles(dir.path(), report);
   if (st.ok()) {
-    st = WriteRunBundle(dir.File("bundle.chorus"), in.config, in.data, members, ev, in.config_hash);
+    st = WriteRunBundle(dir.File("bundle.chorus"), assembled, in.data, members, ev, in.config_hash);
   }
-  if (st.ok()) st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds).dump(2));
   if (!st.ok()) return Fail(dir, in, st, seconds);
   dir.LogEvent("run_finished", {{"members", members.size()}});
   std::printf("%s\nrun directory: %s\n", SummaryTable(ev).c_str(), dir.path().c_str());

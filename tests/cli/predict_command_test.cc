@@ -2,6 +2,7 @@
 // of the invented demo data (tools/demo_data.cc) and on small IDX files.
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdlib>
 #include <filesystem>
@@ -9,6 +10,7 @@
 #include <sstream>
 
 #include "bundle.pb.h"
+#include "common/basin_scale.h"
 #include "common/dataset.h"
 #include "common/predictor.h"
 #include "coordinator/config_loader.h"
@@ -154,6 +156,23 @@ TEST_F(PredictCommandTest, ReproducesTheReportOnTheRunsOwnTestRows) {
       "sklearn_log_loss_csv.py", {dir_ + "/p1.csv", test_csv, "cause"}));
   ASSERT_EQ(reference.count("nll"), 1u);
   EXPECT_NEAR(reference.at("nll")[0], report["ensemble"]["test"]["nll"].get<double>(), 1e-12);
+}
+
+// basin.scale: tune picks a scale from BasinScaleCandidates() on validation and redraws every
+// sample at it; the bundle carries the chosen scale, so predict still reproduces the report.
+TEST_F(PredictCommandTest, TunedBasinScaleIsCarriedIntoTheBundle) {
+  std::string yaml = kClassification;
+  yaml.replace(yaml.find("samples: 2}"), 11, "samples: 2, scale: tune}");
+  const std::string run = Run("tuned", yaml);
+  const json report = Report(run);
+  const double scale = report["basin_scale"].get<double>();
+  const auto& grid = BasinScaleCandidates();
+  EXPECT_NE(std::find(grid.begin(), grid.end(), scale), grid.end()) << scale;
+  const auto r = Chorus("predict " + run + "/bundle.chorus " + dir_ + "/data/alarms_test.csv -o " +
+                        dir_ + "/tuned.csv");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const PreparedData data = RunData("tuned");
+  ExpectScoresEqualReport(Probabilities(ReadTable(dir_ + "/tuned.csv"), data.class_names), data, report);
 }
 
 TEST_F(PredictCommandTest, RegressionReproducesRmseCoverageAndNll) {
