@@ -3,12 +3,14 @@
 #include <fcntl.h>
 #include <unistd.h>
 
-#include <atomic>
 #include <cerrno>
 #include <cstring>
 #include <filesystem>
 #include <fstream>
+#include <memory>
 #include <sstream>
+
+#include "common/atomic_file.h"
 
 namespace chorus {
 namespace {
@@ -44,18 +46,9 @@ StatusOr<std::string> ReadFileToString(const std::string& path, int64_t max_byte
 }
 
 Status WriteFileAtomic(const std::string& path, const std::string& contents) {
-  static std::atomic<uint64_t> counter{0};
-  const std::string tmp = path + ".tmp-" + std::to_string(::getpid()) + "-" + std::to_string(counter++);
-  const int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
-  if (fd < 0) return Status::Io(tmp + ": cannot create: " + Errno());
-  Status st = WriteAll(fd, contents, tmp);
-  if (st.ok() && ::fsync(fd) != 0) st = Status::Io(tmp + ": fsync failed: " + Errno());
-  ::close(fd);
-  if (st.ok() && std::rename(tmp.c_str(), path.c_str()) != 0) {
-    st = Status::Io(path + ": rename failed: " + Errno());
-  }
-  if (!st.ok()) ::unlink(tmp.c_str());
-  return st;
+  CHORUS_ASSIGN_OR_RETURN(std::unique_ptr<AtomicFile> file, AtomicFile::Create(path));
+  CHORUS_RETURN_IF_ERROR(file->Append(contents));
+  return file->Commit();
 }
 
 Status AppendLine(const std::string& path, const std::string& line) {

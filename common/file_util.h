@@ -13,8 +13,9 @@ namespace chorus {
 // than max_bytes are refused before reading.
 StatusOr<std::string> ReadFileToString(const std::string& path, int64_t max_bytes = int64_t{1} << 33);
 
-// Writes `contents` to path.tmp-<pid>-<n>, flushes it to disk, then renames it over `path`, so a
-// reader sees the old file or the new one, never half of one. Errors are kIo naming the path.
+// Writes `contents` through AtomicFile (common/atomic_file.h): a temporary file, flushed to disk,
+// then renamed over `path`, so a reader sees the old file or the new one, never half of one.
+// Errors are kIo naming the path.
 Status WriteFileAtomic(const std::string& path, const std::string& contents);
 
 // Appends one line (a '\n' is added) and flushes; for event logs. Errors are kIo.
