@@ -1,65 +1,185 @@
-// chorus-bench-gemm: single-thread fp32 GEMM rate of the candidate backends on the matrix shapes
-// of training a 784-512-512-10 MLP at batch 128 (forward X W, backward H^T dZ and dZ W^T).
-// Candidates: Eigen's own product (as built, no -march flags) and oneDNN's dnnl_sgemm (runtime
-// CPU dispatch). The winner backs chorus::Gemm (common/gemm.cc).
+// chorus-bench-gemm: the GEMM limit of training a 784-512-512-10 MLP on one thread of this machine.
+//
+// One training step at batch B runs eight fp32 products, row-major, with the transposes
+// common/mlp.cc uses:
+//   forward          Z1 = X W1,      Z2 = H1 W2,     Z3 = H2 W3        (C += A B: onto the bias)
+//   weight gradients dW1 = X^T dZ1,  dW2 = H1^T dZ2, dW3 = H2^T dZ3
+//   input gradients  dH2 = dZ3 W3^T, dH1 = dZ2 W2^T  (the first layer needs no input gradient)
+// 2 x 2 x (784x512 + 512x512 + 512x10) + 2 x (512x512 + 512x10) = 3,209,216 FLOPs per sample.
+// Each backend times each product on its own; the step time is the sum over the eight, and the
+// limit B / step time is the rate a training loop that did nothing but these products would reach.
+// A product's time is the mean over calls filling at least 0.2 s: the same statistic as the
+// training rates (all work over all wall time), so that other work on the machine lowers the
+// limit and the training rates alike and the ratio between them stays meaningful.
+// Backends, each on the calling thread only:
+//   onednn: dnnl_sgemm called directly (OpenMP team of 1), runtime CPU dispatch;
+//   chorus: chorus::Gemm (common/gemm.h), the backend chorus trains with;
+//   eigen:  Eigen's own product, as built (the project's compile flags, no -march).
+// Usage: chorus-bench-gemm [BATCH...]   (default 32 128 512)
+// Output:
+//   gemm-machine gemm=NAME compiler="..." onednn=X.Y.Z
+//   gemm-shape batch=B product=NAME op=NN m=M n=N k=K onednn_gflops=G chorus_gflops=G
+//              eigen_gflops=G
+//   gemm-limit batch=B backend=NAME step_us=T samples_per_s=R gflops=G flops_per_sample=F
 #include <oneapi/dnnl/dnnl.h>
 #include <omp.h>
 
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
+#include <functional>
+#include <string>
+#include <vector>
 
+#include "common/gemm.h"
 #include "common/matrix.h"
 
+namespace chorus {
 namespace {
 
-struct Shape {
-  const char* what;
+using Clock = std::chrono::steady_clock;
+
+struct Product {
+  std::string name;
   bool ta, tb;
-  int m, n, k;
+  int64_t m, n, k;
+  float beta;
 };
 
-// GFLOP/s of f (2 m n k flops per call) over at least 0.5 s after 3 warm-up calls.
-template <typename F>
-double Rate(F f, double flops) {
+// The eight products of one step through widths[0] -> ... -> widths.back() at batch b.
+std::vector<Product> StepProducts(const std::vector<int>& widths, int64_t b) {
+  std::vector<Product> products;
+  const int layers = static_cast<int>(widths.size()) - 1;
+  for (int l = 0; l < layers; ++l) {
+    products.push_back({"Z" + std::to_string(l + 1), false, false, b, widths[l + 1], widths[l], 1});
+  }
+  for (int l = 0; l < layers; ++l) {
+    products.push_back({"dW" + std::to_string(l + 1), true, false, widths[l], widths[l + 1], b, 0});
+  }
+  for (int l = layers - 1; l >= 1; --l) {
+    products.push_back({"dH" + std::to_string(l), false, true, b, widths[l], widths[l + 1], 0});
+  }
+  return products;
+}
+
+double Flops(const Product& p) { return 2.0 * p.m * p.n * p.k; }
+
+// Mean seconds per call of f over calls filling at least 0.2 s, after 3 warm-up calls.
+double SecondsPerCall(const std::function<void()>& f) {
   for (int i = 0; i < 3; ++i) f();
   int calls = 0;
-  const auto start = std::chrono::steady_clock::now();
+  const auto start = Clock::now();
   double seconds = 0;
   do {
     f();
     ++calls;
-    seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-  } while (seconds < 0.5);
-  return flops * calls / seconds / 1e9;
+    seconds = std::chrono::duration<double>(Clock::now() - start).count();
+  } while (seconds < 0.2);
+  return seconds / calls;
+}
+
+// Operands of one product with random contents; A and B are stored as op() expects them.
+struct Operands {
+  Matrix a, b, c;
+  explicit Operands(const Product& p)
+      : a(p.ta ? Matrix::Random(p.k, p.m) : Matrix::Random(p.m, p.k)),
+        b(p.tb ? Matrix::Random(p.n, p.k) : Matrix::Random(p.k, p.n)),
+        c(Matrix::Random(p.m, p.n)) {}
+};
+
+void OneDnn(const Product& p, Operands& o) {
+  const dnnl_status_t st =
+      dnnl_sgemm(p.ta ? 'T' : 'N', p.tb ? 'T' : 'N', p.m, p.n, p.k, 1.0f, o.a.data(),
+                 o.a.outerStride(), o.b.data(), o.b.outerStride(), p.beta, o.c.data(),
+                 o.c.outerStride());
+  if (st != dnnl_success) {
+    std::fprintf(stderr, "dnnl_sgemm failed with status %d\n", static_cast<int>(st));
+    std::exit(1);
+  }
+}
+
+void Chorus(const Product& p, Operands& o) {
+  Gemm(p.ta ? Transpose::kYes : Transpose::kNo, p.tb ? Transpose::kYes : Transpose::kNo, 1.0f,
+       o.a, o.b, p.beta, o.c);
+}
+
+// C = op(A) op(B) when beta is 0, else C += op(A) op(B) (every product here has beta 0 or 1).
+void EigenProduct(const Product& p, Operands& o) {
+  if (p.beta == 0.0f) o.c.setZero();
+  if (p.ta) {
+    o.c.noalias() += o.a.transpose() * o.b;
+  } else if (p.tb) {
+    o.c.noalias() += o.a * o.b.transpose();
+  } else {
+    o.c.noalias() += o.a * o.b;
+  }
+}
+
+struct Backend {
+  const char* name;
+  void (*run)(const Product&, Operands&);
+};
+constexpr Backend kBackends[] = {{"onednn", OneDnn}, {"chorus", Chorus}, {"eigen", EigenProduct}};
+constexpr int kBackendCount = sizeof(kBackends) / sizeof(kBackends[0]);
+
+void MeasureBatch(int64_t batch) {
+  const std::vector<Product> products = StepProducts({784, 512, 512, 10}, batch);
+  double step_seconds[kBackendCount] = {};
+  double step_flops = 0;
+  for (const Product& p : products) {
+    Operands operands(p);
+    step_flops += Flops(p);
+    std::printf("gemm-shape batch=%lld product=%s op=%c%c m=%lld n=%lld k=%lld", (long long)batch,
+                p.name.c_str(), p.ta ? 'T' : 'N', p.tb ? 'T' : 'N', (long long)p.m,
+                (long long)p.n, (long long)p.k);
+    for (int i = 0; i < kBackendCount; ++i) {
+      const double s = SecondsPerCall([&] { kBackends[i].run(p, operands); });
+      step_seconds[i] += s;
+      std::printf(" %s_gflops=%.1f", kBackends[i].name, Flops(p) / s * 1e-9);
+    }
+    std::printf("\n");
+    std::fflush(stdout);
+  }
+  for (int i = 0; i < kBackendCount; ++i) {
+    std::printf(
+        "gemm-limit batch=%lld backend=%s step_us=%.1f samples_per_s=%.0f gflops=%.1f "
+        "flops_per_sample=%.0f\n",
+        (long long)batch, kBackends[i].name, step_seconds[i] * 1e6, batch / step_seconds[i],
+        step_flops / step_seconds[i] * 1e-9, step_flops / batch);
+  }
+  std::fflush(stdout);
+}
+
+std::string Compiler() {
+#if defined(__clang__)
+  return std::string("clang ") + __clang_version__;
+#elif defined(__GNUC__)
+  return std::string("gcc ") + __VERSION__;
+#else
+  return "unknown";
+#endif
+}
+
+int Main(int argc, char** argv) {
+  std::vector<int64_t> batches;
+  for (int i = 1; i < argc; ++i) {
+    const long long b = std::atoll(argv[i]);
+    if (b < 1) {
+      std::fprintf(stderr, "usage: chorus-bench-gemm [BATCH...]   (batch sizes >= 1)\n");
+      return 2;
+    }
+    batches.push_back(b);
+  }
+  if (batches.empty()) batches = {32, 128, 512};
+  omp_set_num_threads(1);
+  const dnnl_version_t* v = dnnl_version();
+  std::printf("gemm-machine gemm=%s compiler=\"%s\" onednn=%d.%d.%d\n", GemmBackendName(),
+              Compiler().c_str(), v->major, v->minor, v->patch);
+  for (int64_t batch : batches) MeasureBatch(batch);
+  return 0;
 }
 
 }  // namespace
+}  // namespace chorus
 
-int main() {
-  omp_set_num_threads(1);
-  const char* coretype = std::getenv("OPENBLAS_CORETYPE");
-  std::printf("threads=1 OPENBLAS_CORETYPE=%s\n", coretype ? coretype : "unset");
-  const Shape shapes[] = {
-      {"forward 1", false, false, 128, 512, 784}, {"forward 2", false, false, 128, 512, 512},
-      {"forward 3", false, false, 128, 10, 512},  {"grad W1", true, false, 784, 512, 128},
-      {"grad W2", true, false, 512, 512, 128},    {"grad H1", false, true, 128, 512, 512}};
-  for (const Shape& s : shapes) {
-    chorus::Matrix a = s.ta ? chorus::Matrix::Random(s.k, s.m) : chorus::Matrix::Random(s.m, s.k);
-    chorus::Matrix b = s.tb ? chorus::Matrix::Random(s.n, s.k) : chorus::Matrix::Random(s.k, s.n);
-    chorus::Matrix c(s.m, s.n);
-    const double flops = 2.0 * s.m * s.n * s.k;
-    const double eigen = Rate([&] {
-      if (s.ta) c.noalias() = a.transpose() * b;
-      else if (s.tb) c.noalias() = a * b.transpose();
-      else c.noalias() = a * b;
-    }, flops);
-    const double onednn = Rate([&] {
-      dnnl_sgemm(s.ta ? 'T' : 'N', s.tb ? 'T' : 'N', s.m, s.n, s.k, 1.0f, a.data(), a.outerStride(),
-                 b.data(), b.outerStride(), 0.0f, c.data(), c.outerStride());
-    }, flops);
-    std::printf("%-9s m=%-4d n=%-4d k=%-4d eigen %6.1f GFLOP/s  onednn %6.1f GFLOP/s\n", s.what, s.m,
-                s.n, s.k, eigen, onednn);
-  }
-  return 0;
-}
+int main(int argc, char** argv) { return chorus::Main(argc, argv); }

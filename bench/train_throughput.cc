@@ -1,7 +1,7 @@
 // chorus-bench-train: training throughput of ensemble members on this machine.
 //
-// Network 784-512-512-10, relu, batch 128, SGD (momentum 0.9, weight decay 5e-4, cosine
-// schedule), on synthetic data: 8192 standard-normal rows with uniformly random labels. Each
+// Network 784-512-512-10, relu, batch B (default 128), SGD (momentum 0.9, weight decay 5e-4,
+// cosine schedule), on synthetic data: 8192 standard-normal rows with uniformly random labels. Each
 // member runs through TrainMember, the same code a worker runs for a job (shuffle, gather,
 // forward, head, backward, schedule, SGD step), single-threaded. Two configurations:
 //   threads=1: one member on a tbb::task_arena of 1;
@@ -9,8 +9,9 @@
 // The first epoch is a warm-up (page faults, caches, frequency ramp). The epoch-end callbacks
 // give the timed window: from the end of each member's first epoch to the end of its last, and
 // the reported rate is all timed samples divided by the union of the members' windows.
+// Usage: chorus-bench-train [BATCH [TIMED_EPOCHS]]   (defaults 128 and 5)
 // Output: one "machine:" line, then per configuration one line
-//   chorus threads=T members=T samples_per_s=R gflops=G flops_per_sample=F
+//   chorus threads=T members=T batch=B samples_per_s=R gflops=G flops_per_sample=F
 #include <sched.h>
 #include <tbb/parallel_for.h>
 #include <tbb/task_arena.h>
@@ -38,7 +39,6 @@ constexpr int64_t kHeldOutRows = 128;  // validation and test rows TrainMember p
 constexpr int kFeatures = 784;
 constexpr int kClasses = 10;
 constexpr int kWarmupEpochs = 1;
-constexpr int kTimedEpochs = 5;
 
 // FLOPs of one training sample through layers in -> out: forward Z = H W (2 in out), weight
 // gradient dW = H^T dZ (2 in out), input gradient dH = dZ W^T (2 in out) for every layer but the
@@ -71,20 +71,20 @@ PreparedData SyntheticData() {
   return data;
 }
 
-MemberSpec BenchSpec(int index) {
+MemberSpec BenchSpec(int index, int batch, int timed_epochs) {
   MemberSpec spec;
   spec.index = index;
   spec.seed = Derive(7, static_cast<uint64_t>(index));
   spec.model.hidden = {512, 512};
   spec.model.activation = Activation::kRelu;
-  spec.train.epochs = kWarmupEpochs + kTimedEpochs;
-  spec.train.batch_size = 128;
+  spec.train.epochs = kWarmupEpochs + timed_epochs;
+  spec.train.batch_size = batch;
   return spec;
 }
 
 // Trains `threads` members at once, one per arena slot; returns samples per second over the union
 // of their timed windows. Exits with a message if a member fails.
-double MeasureSamplesPerSecond(int threads, const PreparedData& data) {
+double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, const PreparedData& data) {
   std::vector<Clock::time_point> first(threads), last(threads);
   tbb::task_arena arena(threads);
   arena.execute([&] {
@@ -93,7 +93,8 @@ double MeasureSamplesPerSecond(int threads, const PreparedData& data) {
         if (p.epoch == kWarmupEpochs) first[m] = Clock::now();
         if (p.epoch == p.epochs) last[m] = Clock::now();
       };
-      const StatusOr<MemberResult> result = TrainMember(BenchSpec(m), data, mark);
+      const StatusOr<MemberResult> result =
+          TrainMember(BenchSpec(m, batch, timed_epochs), data, mark);
       if (!result.ok()) {
         std::fprintf(stderr, "member %d failed: %s\n", m, result.status().ToString().c_str());
         std::exit(1);
@@ -103,7 +104,7 @@ double MeasureSamplesPerSecond(int threads, const PreparedData& data) {
   const auto start = *std::min_element(first.begin(), first.end());
   const auto end = *std::max_element(last.begin(), last.end());
   const double seconds = std::chrono::duration<double>(end - start).count();
-  return static_cast<double>(threads) * kTimedEpochs * kTrainRows / seconds;
+  return static_cast<double>(threads) * timed_epochs * kTrainRows / seconds;
 }
 
 std::string CpuModel() {
@@ -128,15 +129,21 @@ void PrintMachine() {
 }  // namespace
 }  // namespace chorus
 
-int main() {
+int main(int argc, char** argv) {
   using namespace chorus;
+  const int batch = argc > 1 ? std::atoi(argv[1]) : 128;
+  const int timed_epochs = argc > 2 ? std::atoi(argv[2]) : 5;
+  if (argc > 3 || batch < 1 || timed_epochs < 1) {
+    std::fprintf(stderr, "usage: chorus-bench-train [BATCH [TIMED_EPOCHS]]   (both >= 1)\n");
+    return 2;
+  }
   PrintMachine();
   const PreparedData data = SyntheticData();
   const double flops = FlopsPerSample({kFeatures, 512, 512, kClasses});
   for (int threads : {1, 2}) {
-    const double rate = MeasureSamplesPerSecond(threads, data);
-    std::printf("chorus threads=%d members=%d samples_per_s=%.0f gflops=%.2f", threads, threads,
-                rate, rate * flops * 1e-9);
+    const double rate = MeasureSamplesPerSecond(threads, batch, timed_epochs, data);
+    std::printf("chorus threads=%d members=%d batch=%d samples_per_s=%.0f gflops=%.2f", threads,
+                threads, batch, rate, rate * flops * 1e-9);
     std::printf(" flops_per_sample=%.0f\n", flops);
     std::fflush(stdout);
   }

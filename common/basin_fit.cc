@@ -58,6 +58,33 @@ BasinFit FitBasin(const SnapshotMoments& moments, BasinMethod method) {
   return fit;
 }
 
+BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method) {
+  BasinFit fit;
+  fit.method = method;
+  if (method != BasinMethod::kNone) {
+    fit.variance = std::move(moments.m2_);
+    const double inv_n = 1.0 / static_cast<double>(moments.count_);
+    // var_i = M2_i / n, as Variance() computes it (0 before 2 snapshots)
+    for (float& v : fit.variance) v = moments.count_ < 2 ? 0.0f : static_cast<float>(v * inv_n);
+  }
+  if (method == BasinMethod::kGaussianLowRank) {
+    Matrix& ring = moments.ring_;
+    const int64_t rows = std::min<int64_t>(moments.count_, moments.rank_);
+    const int64_t oldest = moments.count_ >= moments.rank_ ? moments.next_row_ : 0;
+    // Deviations(): row r of the fit is ring row (oldest + r) mod rank; a rotation of whole rows.
+    std::rotate(ring.data(), ring.data() + oldest * ring.cols(), ring.data() + ring.size());
+    ring.conservativeResize(rows, ring.cols());
+    fit.deviations = std::move(ring);
+    assert(fit.deviations.rows() >= 2 && "kGaussianLowRank needs at least 2 deviations");
+  }
+  fit.mean = std::move(moments.mean_);
+  moments.mean_.clear();
+  moments.m2_.clear();
+  moments.ring_.resize(0, 0);
+  moments.count_ = moments.next_row_ = 0;
+  return fit;
+}
+
 void DrawBasinSample(const BasinFit& fit, uint64_t seed, double scale, float* out) {
   assert(scale > 0);
   const size_t dim = fit.mean.size();

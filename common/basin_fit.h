@@ -15,6 +15,8 @@
 
 namespace chorus {
 
+struct BasinFit;
+
 class SnapshotMoments {
  public:
   // dim: number of parameters, >= 1; rank: deviation vectors kept, >= 0.
@@ -34,6 +36,8 @@ class SnapshotMoments {
   Matrix Deviations() const;
 
  private:
+  friend BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method);
+
   int64_t count_ = 0;
   int rank_;
   std::vector<float> mean_, m2_;
@@ -54,6 +58,12 @@ struct BasinFit {
 
 // Builds the fit from the moments. kGaussianLowRank needs at least 2 deviations (R >= 2).
 BasinFit FitBasin(const SnapshotMoments& moments, BasinMethod method);
+
+// The same fit, bit for bit, made from the moments' own storage instead of copies: the mean is
+// moved, the variance computed in place of the squared-deviation sums and the ring of deviations
+// rotated in place to oldest-first. Peak memory stays (rank + 2) x parameters floats instead of
+// twice that. `moments` is left empty (count 0, dim 0).
+BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method);
 
 // Writes one weight sample into out (dim floats), a pure function of (fit, seed, scale):
 //   diag:    w = mean + sqrt(scale) * sqrt(variance) .* z1

@@ -72,6 +72,10 @@ struct OptimizerConfig {
 struct TrainConfig {
   int epochs = 20;              // passes over the training split, >= 1
   int batch_size = 128;         // minibatch rows, >= 1; the last short batch of an epoch is used
+  // Parts each minibatch is cut into, their gradients computed side by side when the worker has
+  // idle threads and added in a fixed order (common/training_step.h); in [1, batch_size]. The
+  // result depends on parts, never on the thread count.
+  int parts = 1;
   OptimizerConfig optimizer;
   ScheduleConfig schedule;
 };

@@ -1,51 +1,194 @@
+// Blocked GEMM over the micro-kernels of common/gemm_kernel.h (the BLIS loop order: Van Zee &
+// van de Geijn, ACM TOMS 2015). op(B) is packed a kc x nc panel at a time (sized for L2), op(A)
+// an mc x kc block at a time, into two buffers each thread allocates once, on its first call;
+// later calls allocate nothing. k is cut into equal blocks of at most kKc, so the order of the
+// additions depends only on the shapes and the kernel, never on the thread.
 #include "common/gemm.h"
 
-#include <oneapi/dnnl/dnnl.h>
-#include <omp.h>
-
+#include <algorithm>
 #include <cassert>
-#include <cstdio>
 #include <cstdlib>
+#include <memory>
+
+#include "common/gemm_kernel.h"
 
 namespace chorus {
 namespace {
 
-// oneDNN's sgemm picks its kernel at run time for the CPU it finds (SSE4.1, AVX2, AVX-512...), so
-// one binary runs at full speed on any x86-64 server. Its OpenMP runtime would start a team of
-// all cores on every call; chorus parallelises across members instead, so each calling thread
-// asks for a team of one. Measured in bench/gemm_backends.cc.
-void UseOnlyTheCallingThread() {
-  thread_local bool done = false;
-  if (!done) {
-    omp_set_num_threads(1);
-    done = true;
+constexpr int64_t kKc = 256;  // k per packed block
+constexpr int64_t kMc = 144;  // rows of op(A) per packed block: a multiple of every kernel's mr
+constexpr int64_t kNc = 512;  // columns of op(B) per packed panel: a multiple of every nr
+
+struct FreeDeleter {
+  void operator()(float* p) const { std::free(p); }
+};
+
+// The calling thread's packing buffers, allocated on its first Gemm.
+struct PackBuffers {
+  std::unique_ptr<float, FreeDeleter> a{static_cast<float*>(
+      std::aligned_alloc(64, sizeof(float) * kMc * kKc))};
+  std::unique_ptr<float, FreeDeleter> b{static_cast<float*>(
+      std::aligned_alloc(64, sizeof(float) * kKc * kNc))};
+};
+
+PackBuffers& ThreadPackBuffers() {
+  thread_local PackBuffers buffers;
+  if (!buffers.a || !buffers.b) std::abort();  // out of memory on a few hundred KiB
+  return buffers;
+}
+
+// One strip of op(A): rows [row0, row0 + rows) and k [p0, p0 + kc) as kc x kMr floats, k-major,
+// rows past `rows` zero. kMr is a compile-time constant so the fixed-size copies vectorise.
+template <int kMr>
+void PackAStrip(const GemmKernel& kernel, const float* base, int64_t lda, bool trans, int64_t row0,
+                int rows, int64_t p0, int64_t kc, float* out) {
+  if (trans) {  // op(A)(i, p) = A(p, i): each k step copies `rows` consecutive floats
+    for (int64_t p = 0; p < kc; ++p) {
+      const float* src = base + (p0 + p) * lda + row0;
+      float* dst = out + p * kMr;
+      if (rows == kMr) {
+        for (int r = 0; r < kMr; ++r) dst[r] = src[r];
+      } else {
+        for (int r = 0; r < rows; ++r) dst[r] = src[r];
+        for (int r = rows; r < kMr; ++r) dst[r] = 0.0f;
+      }
+    }
+    return;
+  }
+  // op(A)(i, p) = A(i, p): a transpose of the rows x kc block. A full strip of 12 rows goes as
+  // rows 0-7 and rows 4-11 (the overlap written twice, with the same values), so that the
+  // vectorised transpose sees whole 8-row blocks.
+  const float* src = base + row0 * lda + p0;
+  if (rows == kMr && kMr > 8 && kMr < 16) {
+    kernel.transpose(src, lda, 8, kc, out, kMr);
+    kernel.transpose(src + (kMr - 8) * lda, lda, 8, kc, out + kMr - 8, kMr);
+    return;
+  }
+  kernel.transpose(src, lda, rows, kc, out, kMr);
+  for (int64_t p = 0; p < kc; ++p) {
+    for (int r = rows; r < kMr; ++r) out[p * kMr + r] = 0.0f;
+  }
+}
+
+// op(A)[i0 : i0 + mc, p0 : p0 + kc] into strips of mr rows: strip s holds kc x mr floats, k-major,
+// rows past mc zero.
+template <int kMr>
+void PackAStrips(const GemmKernel& kernel, const ConstMatrixRef& a, bool trans, int64_t i0,
+                 int64_t mc, int64_t p0, int64_t kc, float* out) {
+  for (int64_t s = 0; s < mc; s += kMr, out += kc * kMr) {
+    const int rows = static_cast<int>(std::min<int64_t>(kMr, mc - s));
+    PackAStrip<kMr>(kernel, a.data(), a.outerStride(), trans, i0 + s, rows, p0, kc, out);
+  }
+}
+
+void PackA(const GemmKernel& kernel, const ConstMatrixRef& a, bool trans, int64_t i0, int64_t mc,
+           int64_t p0, int64_t kc, float* out) {
+  switch (kernel.mr) {
+    case 12: return PackAStrips<12>(kernel, a, trans, i0, mc, p0, kc, out);
+    case 6: return PackAStrips<6>(kernel, a, trans, i0, mc, p0, kc, out);
+    case 4: return PackAStrips<4>(kernel, a, trans, i0, mc, p0, kc, out);
+  }
+  std::abort();  // a kernel with a tile height not listed above
+}
+
+// op(B)[p0 : p0 + kc, j0 : j0 + nc] into strips of nr columns: strip s holds kc x nr floats,
+// k-major, columns past nc zero. Starts at column `from` (a multiple of nr).
+void PackB(const GemmKernel& kernel, const ConstMatrixRef& b, bool trans, int64_t p0, int64_t kc,
+           int64_t j0, int64_t nc, int64_t from, float* out) {
+  const int nr = kernel.nr;
+  const int64_t ldb = b.outerStride();
+  const float* base = b.data();
+  out += (from / nr) * kc * nr;
+  for (int64_t s = from; s < nc; s += nr, out += kc * nr) {
+    const int cols = static_cast<int>(std::min<int64_t>(nr, nc - s));
+    if (trans) {  // op(B)(p, j) = B(j, p): a transpose of the cols x kc block of B
+      kernel.transpose(base + (j0 + s) * ldb + p0, ldb, cols, kc, out, nr);
+      for (int64_t p = 0; p < kc; ++p) {
+        for (int j = cols; j < nr; ++j) out[p * nr + j] = 0.0f;
+      }
+    } else {  // op(B)(p, j) = B(p, j): each k step reads `cols` consecutive floats
+      for (int64_t p = 0; p < kc; ++p) {
+        const float* src = base + (p0 + p) * ldb + j0 + s;
+        float* dst = out + p * nr;
+        for (int j = 0; j < cols; ++j) dst[j] = src[j];
+        for (int j = cols; j < nr; ++j) dst[j] = 0.0f;
+      }
+    }
   }
 }
 
 }  // namespace
 
-void Gemm(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
-          const ConstMatrixRef& b, float beta, MatrixRef c) {
+void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans_b, float alpha,
+                    const ConstMatrixRef& a, const ConstMatrixRef& b, float beta, MatrixRef c,
+                    const SgdUpdate* sgd) {
   const bool ta = trans_a == Transpose::kYes, tb = trans_b == Transpose::kYes;
   const int64_t m = c.rows(), n = c.cols(), k = ta ? a.rows() : a.cols();
   assert((ta ? a.cols() : a.rows()) == m && (tb ? b.rows() : b.cols()) == n &&
          (tb ? b.cols() : b.rows()) == k);
   if (m == 0 || n == 0) return;
+  assert(sgd == nullptr || beta == 0.0f);
   if (k == 0) {
     if (beta == 0.0f) c.setZero();
     else c *= beta;
+    if (sgd != nullptr) {  // G = 0: the step still decays and moves the weights
+      for (int64_t i = 0; i < m; ++i) {
+        SgdEntries(*sgd, c.data() + i * c.outerStride(), sgd->w + i * sgd->ld, sgd->v + i * sgd->ld, n);
+      }
+    }
     return;
   }
-  UseOnlyTheCallingThread();
-  const dnnl_status_t st = dnnl_sgemm(ta ? 'T' : 'N', tb ? 'T' : 'N', m, n, k, alpha, a.data(),
-                                      a.outerStride(), b.data(), b.outerStride(), beta, c.data(),
-                                      c.outerStride());
-  if (st != dnnl_success) {
-    std::fprintf(stderr, "chorus: dnnl_sgemm failed with status %d\n", static_cast<int>(st));
-    std::abort();
+  PackBuffers& buffers = ThreadPackBuffers();
+  const int mr = kernel.mr, nr = kernel.nr;
+  const int64_t ldc = c.outerStride();
+  const int64_t k_blocks = (k + kKc - 1) / kKc;
+  const int64_t kc_full = (k + k_blocks - 1) / k_blocks;  // equal blocks: no short tail block
+  for (int64_t j0 = 0; j0 < n; j0 += kNc) {
+    const int64_t nc = std::min(kNc, n - j0);
+    for (int64_t p0 = 0; p0 < k; p0 += kc_full) {
+      const int64_t kc = std::min(kc_full, k - p0);
+      const float beta_here = p0 == 0 ? beta : 1.0f;
+      const bool last_k = p0 + kc >= k;
+      // A non-transposed op(B) is read in place, ldb apart, except a last partial strip.
+      const int64_t packed_from = tb ? 0 : nc - nc % nr;
+      if (packed_from < nc) PackB(kernel, b, tb, p0, kc, j0, nc, packed_from, buffers.b.get());
+      for (int64_t i0 = 0; i0 < m; i0 += kMc) {
+        const int64_t mc = std::min(kMc, m - i0);
+        PackA(kernel, a, ta, i0, mc, p0, kc, buffers.a.get());
+        for (int64_t jr = 0; jr < nc; jr += nr) {
+          const int cols = static_cast<int>(std::min<int64_t>(nr, nc - jr));
+          const bool in_place = jr < packed_from;
+          const float* bp = in_place ? b.data() + p0 * b.outerStride() + j0 + jr
+                                     : buffers.b.get() + (jr / nr) * kc * nr;
+          const int64_t ldb = in_place ? b.outerStride() : nr;
+          for (int64_t ir = 0; ir < mc; ir += mr) {
+            const int rows = static_cast<int>(std::min<int64_t>(mr, mc - ir));
+            SgdUpdate tile_sgd;
+            if (sgd != nullptr && last_k) {
+              tile_sgd = *sgd;
+              tile_sgd.w += (i0 + ir) * sgd->ld + j0 + jr;
+              tile_sgd.v += (i0 + ir) * sgd->ld + j0 + jr;
+            }
+            kernel.tile(kc, buffers.a.get() + (ir / mr) * kc * mr, bp, ldb, alpha, beta_here,
+                        c.data() + (i0 + ir) * ldc + j0 + jr, ldc, rows, cols,
+                        sgd != nullptr && last_k ? &tile_sgd : nullptr);
+          }
+        }
+      }
+    }
   }
 }
 
-const char* GemmBackendName() { return "onednn-sgemm"; }
+void Gemm(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
+          const ConstMatrixRef& b, float beta, MatrixRef c) {
+  GemmWithKernel(BestGemmKernel(), trans_a, trans_b, alpha, a, b, beta, c);
+}
+
+void GemmSgdUpdate(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
+                   const ConstMatrixRef& b, const SgdUpdate& update, MatrixRef scratch) {
+  GemmWithKernel(BestGemmKernel(), trans_a, trans_b, alpha, a, b, 0.0f, scratch, &update);
+}
+
+const char* GemmBackendName() { return BestGemmKernel().name; }
 
 }  // namespace chorus

@@ -1,6 +1,8 @@
 // The one interface every matrix product in chorus goes through, so the backend can be chosen by
-// measurement without touching model code. Backend: oneDNN's sgemm (runtime CPU dispatch),
-// chosen over Eigen's product by bench/gemm_backends.cc.
+// measurement without touching model code. Backend: chorus's own blocked GEMM with AVX-512,
+// AVX2 and portable micro-kernels chosen at run time (common/gemm_kernel.h); measured against
+// oneDNN's sgemm and Eigen's product by bench/gemm_backends.cc. After a thread's first call,
+// calls allocate no memory.
 // Shapes: op(A) is m x k, op(B) is k x n, C is m x n; all row-major (common/matrix.h).
 // Thread safety: reentrant; the function uses only the calling thread. Deterministic for a given
 // instruction set: the same inputs give the same bits.
@@ -17,7 +19,27 @@ enum class Transpose { kNo, kYes };
 void Gemm(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
           const ConstMatrixRef& b, float beta, MatrixRef c);
 
-// Name of the backend compiled in, for benchmark and manifest output.
+// An SGD step with momentum applied to a product instead of storing it (common/sgd.h's formula,
+// computed with the same float operations, so the same bits as SgdStep on the stored product):
+//   d = G + weight_decay W;  V <- momentum V + d;  W <- W - lr (nesterov ? d + momentum V : V).
+// w and v are laid out like the product (row-major, ld floats apart).
+struct SgdUpdate {
+  float* w;
+  float* v;
+  int64_t ld;
+  float lr, momentum, weight_decay;
+  bool nesterov;
+};
+
+// G = alpha * op(A) * op(B), applied to `update` as an SGD step tile by tile while each tile of G
+// is still in registers: G itself is never written out, except that `scratch` (m x n) holds
+// partial sums when k is longer than one packed block. Fuses the weight-gradient product of
+// backpropagation with the optimizer step, saving a pass over the gradient.
+void GemmSgdUpdate(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
+                   const ConstMatrixRef& b, const SgdUpdate& update, MatrixRef scratch);
+
+// Name of the micro-kernel this CPU runs ("avx512", "avx2", "portable"), for benchmark and
+// manifest output.
 const char* GemmBackendName();
 
 }  // namespace chorus

@@ -4,9 +4,10 @@
 
 namespace chorus {
 
-double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, MatrixRef grad) {
-  const int64_t rows = logits.rows();
-  const float inv_b = 1.0f / static_cast<float>(rows);
+double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, MatrixRef grad,
+                           int64_t batch_rows) {
+  const int64_t rows = logits.rows(), b = batch_rows > 0 ? batch_rows : rows;
+  const float inv_b = 1.0f / static_cast<float>(b);
   double loss = 0.0;
   for (int64_t i = 0; i < rows; ++i) {
     const float m = logits.row(i).maxCoeff();
@@ -17,13 +18,14 @@ double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, 
     g *= inv_b / sum;
     g(labels[i]) -= inv_b;
   }
-  return loss / static_cast<double>(rows);
+  return loss / static_cast<double>(b);
 }
 
-double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRef grad) {
+double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRef grad,
+                   int64_t batch_rows) {
   constexpr double kLog2Pi = 1.8378770664093453;
-  const int64_t rows = outputs.rows();
-  const float inv_b = 1.0f / static_cast<float>(rows);
+  const int64_t rows = outputs.rows(), b = batch_rows > 0 ? batch_rows : rows;
+  const float inv_b = 1.0f / static_cast<float>(b);
   double loss = 0.0;
   for (int64_t i = 0; i < rows; ++i) {
     const float mu = outputs(i, 0), s = outputs(i, 1);
@@ -33,7 +35,7 @@ double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRe
     grad(i, 0) = -r * precision * inv_b;
     grad(i, 1) = 0.5f * (1.0f - r * r * precision) * inv_b;
   }
-  return loss / static_cast<double>(rows);
+  return loss / static_cast<double>(b);
 }
 
 MatrixD Softmax(const ConstMatrixRef& logits, double temperature) {

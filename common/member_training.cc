@@ -5,7 +5,6 @@
 #include <numeric>
 #include <string>
 
-#include "common/heads.h"
 #include "common/rng.h"
 #include "common/sgd.h"
 
@@ -24,13 +23,13 @@ void ShuffleForEpoch(uint64_t seed, int epoch, std::vector<int64_t>& order) {
 // State of one member's SGD run; buffers are allocated once.
 class SgdRun {
  public:
-  SgdRun(const MemberSpec& spec, const PreparedData& data)
-      : spec_(spec), data_(data), net_(NetworkFor(spec.model, data)),
+  SgdRun(const MemberSpec& spec, const PreparedData& data, const ParallelFor* parallel)
+      : spec_(spec), data_(data), parallel_(parallel), net_(NetworkFor(spec.model, data)),
         batch_(std::min<int64_t>(spec.train.batch_size, data.train.rows())),
-        params_(net_.ParameterCount()), grad_(net_.ParameterCount()),
-        velocity_(net_.ParameterCount(), 0.0f), ws_(net_.MakeWorkspace(batch_)),
-        xb_(batch_, data.features()), grad_out_(batch_, net_.widths().back()),
-        labels_(batch_), targets_(batch_), order_(data.train.rows()) {
+        params_(net_.ParameterCount()),
+        step_(net_, data.task, spec.train.optimizer, batch_,
+              static_cast<int>(std::min<int64_t>(spec.train.parts, batch_))),
+        xb_(batch_, data.features()), labels_(batch_), targets_(batch_), order_(data.train.rows()) {
     net_.Initialize(Derive(spec.seed, "init"), params_.data());
   }
 
@@ -45,7 +44,8 @@ class SgdRun {
     for (int64_t start = 0; start < n; start += batch_, ++steps) {
       const int64_t rows = std::min(batch_, n - start);
       Gather(start, rows);
-      const double loss = Step(rows, static_cast<float>(lr_at(steps)));
+      const double loss = step_.Run(xb_.topRows(rows), labels_.data(), targets_.data(),
+                                    static_cast<float>(lr_at(steps)), params_.data(), parallel_);
       if (!std::isfinite(loss)) {
         return Status::Diverged("epoch " + std::to_string(epoch + 1) + ", step " +
                                 std::to_string(steps + 1) + ": training loss is " + std::to_string(loss));
@@ -71,29 +71,14 @@ class SgdRun {
     }
   }
 
-  double Step(int64_t rows, float lr) {
-    auto x = xb_.topRows(rows);
-    auto out = net_.Forward(params_.data(), x, ws_);
-    auto g_out = grad_out_.topRows(rows);
-    const double loss = data_.task == Task::kClassification
-                            ? SoftmaxCrossEntropy(out, labels_.data(), g_out)
-                            : GaussianNll(out, targets_.data(), g_out);
-    if (!std::isfinite(loss)) return loss;
-    net_.Backward(params_.data(), x, g_out, ws_, grad_.data());
-    const int64_t p = net_.ParameterCount();
-    const OptimizerConfig& opt = spec_.train.optimizer;
-    ClipGradientNorm(grad_.data(), p, opt.clip_norm);
-    SgdStep(opt, lr, p, grad_.data(), params_.data(), velocity_.data());
-    return loss;
-  }
-
   const MemberSpec& spec_;
   const PreparedData& data_;
+  const ParallelFor* parallel_;
   Mlp net_;
   int64_t batch_;
-  std::vector<float> params_, grad_, velocity_;
-  Mlp::Workspace ws_;
-  Matrix xb_, grad_out_;
+  std::vector<float> params_;
+  TrainingStep step_;
+  Matrix xb_;
   std::vector<int32_t> labels_;
   std::vector<float> targets_;
   std::vector<int64_t> order_;
@@ -190,10 +175,11 @@ bool AllFinite(const MemberResult& r) {
 }  // namespace
 
 StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
-                                   const ProgressFn& progress, const std::atomic<bool>* cancel) {
+                                   const ProgressFn& progress, const std::atomic<bool>* cancel,
+                                   const ParallelFor* parallel) {
   const std::string where = "member " + std::to_string(spec.index);
   if (data.train.rows() == 0) return Status::InvalidInput(where + ": no training rows");
-  SgdRun run(spec, data);
+  SgdRun run(spec, data, parallel);
   MemberResult result;
   result.index = spec.index;
   result.seed = spec.seed;

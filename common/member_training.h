@@ -15,6 +15,7 @@
 #include "common/matrix.h"
 #include "common/mlp.h"
 #include "common/status.h"
+#include "common/training_step.h"
 
 namespace chorus {
 
@@ -64,10 +65,12 @@ Mlp NetworkFor(const ModelConfig& model, const PreparedData& data);
 // collecting snapshots, fits the basin and predicts with every sample). Fails with kDiverged ("epoch E, step S: training loss is nan") if a
 // minibatch loss or a final output is not finite. `progress` (may be empty) is called after each
 // epoch from the calling thread. If `cancel` (may be null) becomes true, training stops at the
-// next epoch boundary with kCancelled.
+// next epoch boundary with kCancelled. With spec.train.parts > 1 the parts of each minibatch run
+// through `parallel` (null: one after another on the calling thread); the result is the same.
 StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
                                    const ProgressFn& progress,
-                                   const std::atomic<bool>* cancel = nullptr);
+                                   const std::atomic<bool>* cancel = nullptr,
+                                   const ParallelFor* parallel = nullptr);
 
 // Network outputs for every row of x, computed in batches of `batch_rows` to bound memory.
 Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef& x,

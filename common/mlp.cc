@@ -5,6 +5,7 @@
 
 #include "common/gemm.h"
 #include "common/rng.h"
+#include "common/sgd.h"
 
 namespace chorus {
 namespace {
@@ -55,48 +56,90 @@ MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& 
     Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
     Eigen::Map<const Eigen::RowVectorXf> b(params + BiasOffset(l), widths_[l + 1]);
     auto z = ws.pre[l].topRows(rows);
-    // Z_l = 1 b^T + H_{l-1} W_l
-    z.rowwise() = b;
-    if (l == 0) {
-      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, x, w, 1.0f, z);
+    // Z_l = H_{l-1} W_l + 1 b^T, then H_l = act(Z_l) in the same pass as the bias
+    const ConstMatrixRef input = l == 0 ? x : ConstMatrixRef(ws.post[l - 1].topRows(rows));
+    Gemm(Transpose::kNo, Transpose::kNo, 1.0f, input, w, 0.0f, z);
+    if (l + 1 < layers()) {
+      AddBiasAndActivate(activation_, params + BiasOffset(l), z, ws.post[l].topRows(rows));
     } else {
-      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, ws.post[l - 1].topRows(rows), w, 1.0f, z);
+      z.rowwise() += b;
     }
-    if (l + 1 < layers()) ApplyActivation(activation_, z, ws.post[l].topRows(rows));
   }
   return ws.pre.back().topRows(rows);
 }
 
 void Mlp::Backward(const float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
                    Workspace& ws, float* grad) const {
+  // Without an optimizer nothing writes through the pointer.
+  BackwardImpl(const_cast<float*>(params), x, grad_output, ws, grad, nullptr, 0.0f, nullptr);
+}
+
+void Mlp::BackwardWithSgd(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
+                          Workspace& ws, float* grad, const OptimizerConfig& optimizer, float lr,
+                          float* velocity) const {
+  BackwardImpl(params, x, grad_output, ws, grad, &optimizer, lr, velocity);
+}
+
+void Mlp::BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
+                       Workspace& ws, float* grad, const OptimizerConfig* optimizer, float lr,
+                       float* velocity) const {
   const int64_t rows = x.rows();
   ws.grad.back().topRows(rows) = grad_output;
   for (int l = layers() - 1; l >= 0; --l) {
     auto dz = ws.grad[l].topRows(rows);
     Eigen::Map<Matrix> dw(grad + WeightOffset(l), widths_[l], widths_[l + 1]);
     Eigen::Map<Eigen::RowVectorXf> db(grad + BiasOffset(l), widths_[l + 1]);
-    // dW_l = H_{l-1}^T dZ_l ; db_l = 1^T dZ_l
-    if (l == 0) {
-      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, x, dz, 0.0f, dw);
-    } else {
-      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, ws.post[l - 1].topRows(rows), dz, 0.0f, dw);
+    if (l > 0) {
+      // dZ_{l-1} = (dZ_l W_l^T) * act'(Z_{l-1}), before W_l is updated.
+      Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
+      auto dprev = ws.grad[l - 1].topRows(rows);
+      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev);
+      MultiplyActivationDerivative(activation_, ws.pre[l - 1].topRows(rows), dprev);
     }
+    // dW_l = H_{l-1}^T dZ_l ; db_l = 1^T dZ_l
+    const ConstMatrixRef input = l == 0 ? x : ConstMatrixRef(ws.post[l - 1].topRows(rows));
     db = dz.colwise().sum();
-    if (l == 0) break;
-    // dZ_{l-1} = (dZ_l W_l^T) * act'(Z_{l-1})
-    Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
-    auto dprev = ws.grad[l - 1].topRows(rows);
-    Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev);
-    MultiplyActivationDerivative(activation_, ws.pre[l - 1].topRows(rows), dprev);
+    if (optimizer == nullptr) {
+      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, 0.0f, dw);
+      continue;
+    }
+    const SgdUpdate update{params + WeightOffset(l), velocity + WeightOffset(l), widths_[l + 1], lr,
+                           static_cast<float>(optimizer->momentum),
+                           static_cast<float>(optimizer->weight_decay), optimizer->nesterov};
+    GemmSgdUpdate(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, update, dw);
+    SgdStep(*optimizer, lr, widths_[l + 1], grad + BiasOffset(l), params + BiasOffset(l),
+            velocity + BiasOffset(l));
   }
 }
 
-void ApplyActivation(Activation a, const Eigen::Ref<const Matrix>& z, Eigen::Ref<Matrix> h) {
+namespace {
+
+template <typename Act>
+void AddBiasAndApply(const float* bias, Eigen::Ref<Matrix> z, Eigen::Ref<Matrix> h, Act act) {
+  const int64_t cols = z.cols();
+  for (int64_t i = 0; i < z.rows(); ++i) {
+    float* zr = z.row(i).data();
+    float* hr = h.row(i).data();
+    for (int64_t j = 0; j < cols; ++j) {
+      const float v = zr[j] + bias[j];
+      zr[j] = v;
+      hr[j] = act(v);
+    }
+  }
+}
+
+}  // namespace
+
+void AddBiasAndActivate(Activation a, const float* bias, Eigen::Ref<Matrix> z, Eigen::Ref<Matrix> h) {
   switch (a) {
-    case Activation::kRelu: h = z.cwiseMax(0.0f); break;
-    case Activation::kTanh: h = z.array().tanh().matrix(); break;
+    case Activation::kRelu:
+      AddBiasAndApply(bias, z, h, [](float v) { return v > 0.0f ? v : 0.0f; });
+      break;
+    case Activation::kTanh:
+      AddBiasAndApply(bias, z, h, [](float v) { return std::tanh(v); });
+      break;
     case Activation::kGelu:
-      h = z.unaryExpr([](float v) { return v * NormalCdf(v); });
+      AddBiasAndApply(bias, z, h, [](float v) { return v * NormalCdf(v); });
       break;
   }
 }

@@ -48,17 +48,32 @@ class Mlp {
   void Backward(const float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
                 Workspace& ws, float* grad) const;
 
+  // Backward with the SGD step (common/sgd.h, at rate lr, no clipping) fused in: each layer's
+  // weights and biases are updated as soon as their gradient is known, after they have served the
+  // gradient of the layer below; the weight gradient is never written out (common/gemm.h,
+  // GemmSgdUpdate). Same bits as Backward followed by SgdStep. grad: ParameterCount floats of
+  // scratch; velocity: the momentum, Mlp layout.
+  void BackwardWithSgd(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
+                       Workspace& ws, float* grad, const OptimizerConfig& optimizer, float lr,
+                       float* velocity) const;
+
  private:
+  // Backward, and with optimizer non-null the fused update of BackwardWithSgd.
+  void BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
+                    Workspace& ws, float* grad, const OptimizerConfig* optimizer, float lr,
+                    float* velocity) const;
+
   std::vector<int> widths_;
   Activation activation_;
   std::vector<int64_t> offsets_;
   int64_t parameter_count_ = 0;
 };
 
-// Element-wise activation kernels, exposed for tests.
+// Element-wise activation kernels.
 // relu(z) = max(z, 0); tanh; gelu(z) = z * Phi(z) = 0.5 z (1 + erf(z / sqrt 2)) (Hendrycks &
 // Gimpel 2016, the exact form PyTorch uses by default).
-void ApplyActivation(Activation a, const Eigen::Ref<const Matrix>& z, Eigen::Ref<Matrix> h);
+// z <- z + 1 bias^T and h <- act(z), in one pass over z (bias: z.cols() floats; h shaped as z).
+void AddBiasAndActivate(Activation a, const float* bias, Eigen::Ref<Matrix> z, Eigen::Ref<Matrix> h);
 // dh <- dh * act'(z), in place.
 void MultiplyActivationDerivative(Activation a, const Eigen::Ref<const Matrix>& z, Eigen::Ref<Matrix> dh);
 

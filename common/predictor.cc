@@ -1,5 +1,7 @@
 #include "common/predictor.h"
 
+#include <algorithm>
+#include <cassert>
 #include <cmath>
 
 #include "common/assembly.h"
@@ -80,6 +82,18 @@ Matrix Predictor::ComponentOutputs(int64_t c, const ConstMatrixRef& x) const {
   return PredictOutputs(net_, samples_[static_cast<size_t>(c)].data(), x, kBatchRows);
 }
 
+// The loop of PredictOutputs (common/member_training.cc) over the caller's buffers: the same
+// Forward on the same row ranges, so the same bits.
+void Predictor::ComponentOutputsInto(int64_t c, const ConstMatrixRef& x, Mlp::Workspace& ws,
+                                     MatrixRef out) const {
+  assert(out.rows() == x.rows() && out.cols() == Outputs());
+  const float* params = samples_[static_cast<size_t>(c)].data();
+  for (int64_t start = 0; start < x.rows(); start += kBatchRows) {
+    const int64_t rows = std::min(kBatchRows, x.rows() - start);
+    out.middleRows(start, rows) = net_.Forward(params, x.middleRows(start, rows), ws);
+  }
+}
+
 Prediction Predictor::Combine(const std::vector<Matrix>& outputs) const {
   Prediction p;
   if (task() == Task::kClassification) {
@@ -91,8 +105,9 @@ Prediction Predictor::Combine(const std::vector<Matrix>& outputs) const {
 }
 
 Prediction Predictor::Predict(const ConstMatrixRef& x) const {
-  std::vector<Matrix> outputs;
-  for (int64_t c = 0; c < Components(); ++c) outputs.push_back(ComponentOutputs(c, x));
+  Mlp::Workspace ws = MakeWorkspace();
+  std::vector<Matrix> outputs(static_cast<size_t>(Components()), Matrix(x.rows(), Outputs()));
+  for (int64_t c = 0; c < Components(); ++c) ComponentOutputsInto(c, x, ws, outputs[c]);
   return Combine(outputs);
 }
 

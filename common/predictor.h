@@ -78,6 +78,17 @@ class Predictor {
   // target, computed in batches of kBatchRows from row 0. Uses only the calling thread.
   Matrix ComponentOutputs(int64_t c, const ConstMatrixRef& x) const;
 
+  // Activations for forward passes of up to kBatchRows rows, for ComponentOutputsInto. Allocated
+  // once; one per thread.
+  Mlp::Workspace MakeWorkspace() const { return net_.MakeWorkspace(kBatchRows); }
+  int64_t Outputs() const { return net_.widths().back(); }
+
+  // ComponentOutputs(c, x), bit for bit, written into `out` (x.rows() x Outputs(), the caller's)
+  // with the activations in `ws` (from MakeWorkspace): allocates nothing, so a caller that keeps
+  // `out` and `ws` from batch to batch runs at the matrix products' speed.
+  void ComponentOutputsInto(int64_t c, const ConstMatrixRef& x, Mlp::Workspace& ws,
+                            MatrixRef out) const;
+
   // The calibrated predictive from every component's outputs on the same rows (outputs[c] from
   // ComponentOutputs(c, x)). Requires outputs.size() == Components().
   Prediction Combine(const std::vector<Matrix>& outputs) const;

@@ -226,9 +226,11 @@ Status LoadSchedule(const Section& t, ScheduleConfig* sc) {
 }
 
 Status LoadTrain(const Section& s, TrainConfig* t) {
-  CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "optimizer", "schedule"}));
+  CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "parts", "optimizer", "schedule"}));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &t->epochs, "an epoch count", 1, 1000000));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("batch_size", &t->batch_size, "a batch size", 1, 1 << 20));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("parts", &t->parts, "a part count (at most batch_size)", 1,
+                                    t->batch_size));
   CHORUS_RETURN_IF_ERROR(LoadSchedule(s, &t->schedule));
   if (!s.Has("optimizer")) return Status::Ok();
   Section o = s.Child("optimizer");
@@ -378,6 +380,7 @@ void EmitTrain(YAML::Emitter& out, const TrainConfig& t) {
   out << YAML::Key << "train" << YAML::Value << YAML::BeginMap;
   out << YAML::Key << "epochs" << YAML::Value << t.epochs;
   out << YAML::Key << "batch_size" << YAML::Value << t.batch_size;
+  out << YAML::Key << "parts" << YAML::Value << t.parts;
   out << YAML::Key << "optimizer" << YAML::Value << YAML::Flow << YAML::BeginMap
       << YAML::Key << "kind" << YAML::Value << "sgd" << YAML::Key << "lr" << YAML::Value << o.lr
       << YAML::Key << "momentum" << YAML::Value << o.momentum << YAML::Key << "nesterov"

@@ -1,11 +1,22 @@
 #include "proto/data_codec.h"
 
+#include <google/protobuf/io/coded_stream.h>
+#include <google/protobuf/io/zero_copy_stream_impl_lite.h>
+#include <google/protobuf/wire_format_lite.h>
+
+#include <climits>
 #include <cstring>
 
 #include "data.pb.h"
 
 namespace chorus {
 namespace {
+
+using google::protobuf::internal::WireFormatLite;
+using google::protobuf::io::CodedInputStream;
+using WireType = WireFormatLite::WireType;
+
+constexpr int64_t kMaxCols = int64_t{1} << 24;
 
 void SplitToWire(const Split& s, wire::SplitData* out) {
   out->set_rows(s.x.rows());
@@ -16,21 +27,168 @@ void SplitToWire(const Split& s, wire::SplitData* out) {
   out->mutable_targets()->Add(s.targets.begin(), s.targets.end());
 }
 
-StatusOr<Split> SplitFromWire(const wire::SplitData& w, const std::string& what) {
-  const bool shape_ok = w.rows() >= 0 && w.cols() >= 0 && w.cols() < (int64_t{1} << 24) &&
-                        static_cast<uint64_t>(w.features().size()) ==
-                            static_cast<uint64_t>(w.rows()) * w.cols() * sizeof(float);
-  if (!shape_ok) return Status::InvalidInput(what + ": feature bytes do not match the shape");
-  if ((w.labels_size() != 0 && w.labels_size() != w.rows()) ||
-      (w.targets_size() != 0 && w.targets_size() != w.rows())) {
+// rows x cols float32 is exactly `bytes` bytes (and the shape is one the decoder accepts).
+bool ShapeMatches(int64_t rows, int64_t cols, uint64_t bytes) {
+  if (rows < 0 || cols < 0 || cols >= kMaxCols || rows > (int64_t{1} << 40)) return false;
+  return static_cast<uint64_t>(rows) * static_cast<uint64_t>(cols) * sizeof(float) == bytes;
+}
+
+// A repeated int32 field occurrence, packed (one length-delimited run of varints) or not.
+bool ReadInt32s(CodedInputStream& in, WireType type, std::vector<int32_t>* out) {
+  uint32_t v = 0;
+  if (type == WireFormatLite::WIRETYPE_VARINT) {
+    if (!in.ReadVarint32(&v)) return false;
+    out->push_back(static_cast<int32_t>(v));
+    return true;
+  }
+  int length = 0;
+  if (!in.ReadVarintSizeAsInt(&length)) return false;
+  const CodedInputStream::Limit limit = in.PushLimit(length);
+  while (in.BytesUntilLimit() > 0) {
+    if (!in.ReadVarint32(&v)) return false;
+    out->push_back(static_cast<int32_t>(v));
+  }
+  in.PopLimit(limit);
+  return true;
+}
+
+// A repeated float field occurrence, packed (little-endian float32 run) or not.
+bool ReadFloats(CodedInputStream& in, WireType type, std::vector<float>* out) {
+  uint32_t bits = 0;
+  if (type == WireFormatLite::WIRETYPE_FIXED32) {
+    if (!in.ReadLittleEndian32(&bits)) return false;
+    float f;
+    std::memcpy(&f, &bits, sizeof f);
+    out->push_back(f);
+    return true;
+  }
+  int length = 0;
+  if (!in.ReadVarintSizeAsInt(&length) || length % 4 != 0) return false;
+  const size_t old = out->size();
+  out->resize(old + static_cast<size_t>(length) / 4);
+  return in.ReadRaw(out->data() + old, length);
+}
+
+// Decodes one SplitData message (its length prefix first). The feature bytes go straight into
+// s->x when the shape read so far fits them (the encoder writes rows and cols first); otherwise
+// they wait in a string and are copied once the shape is known.
+class SplitReader {
+ public:
+  bool Read(CodedInputStream& in, Split* s) {
+    int length = 0;
+    if (!in.ReadVarintSizeAsInt(&length)) return false;
+    const CodedInputStream::Limit limit = in.PushLimit(length);
+    while (const uint32_t tag = in.ReadTag()) {
+      if (!Field(in, tag, s)) return false;
+    }
+    if (!in.ConsumedEntireMessage()) return false;
+    in.PopLimit(limit);
+    return true;
+  }
+
+  // After Read: gives s->x the decoded shape. False if the feature bytes do not fit it.
+  bool Finish(Split* s) {
+    if (!ShapeMatches(rows_, cols_, feature_bytes_)) return false;
+    if (!pending_ && s->x.rows() == rows_ && s->x.cols() == cols_) return true;
+    Matrix x(rows_, cols_);
+    const void* from = pending_ ? static_cast<const void*>(pending_bytes_.data()) : s->x.data();
+    if (feature_bytes_ > 0) std::memcpy(x.data(), from, feature_bytes_);
+    s->x = std::move(x);
+    return true;
+  }
+
+ private:
+  bool Field(CodedInputStream& in, uint32_t tag, Split* s) {
+    const WireType type = WireFormatLite::GetTagWireType(tag);
+    uint64_t v = 0;
+    switch (WireFormatLite::GetTagFieldNumber(tag)) {
+      case 1:
+        if (type != WireFormatLite::WIRETYPE_VARINT) break;
+        if (!in.ReadVarint64(&v)) return false;
+        rows_ = static_cast<int64_t>(v);
+        return true;
+      case 2:
+        if (type != WireFormatLite::WIRETYPE_VARINT) break;
+        if (!in.ReadVarint64(&v)) return false;
+        cols_ = static_cast<int64_t>(v);
+        return true;
+      case 3:
+        if (type != WireFormatLite::WIRETYPE_LENGTH_DELIMITED) break;
+        return Features(in, s);
+      case 4:
+        if (type != WireFormatLite::WIRETYPE_VARINT && type != WireFormatLite::WIRETYPE_LENGTH_DELIMITED) break;
+        return ReadInt32s(in, type, &s->labels);
+      case 5:
+        if (type != WireFormatLite::WIRETYPE_FIXED32 && type != WireFormatLite::WIRETYPE_LENGTH_DELIMITED) break;
+        return ReadFloats(in, type, &s->targets);
+      default:
+        break;
+    }
+    return WireFormatLite::SkipField(&in, tag);
+  }
+
+  bool Features(CodedInputStream& in, Split* s) {
+    int length = 0;
+    if (!in.ReadVarintSizeAsInt(&length)) return false;
+    feature_bytes_ = static_cast<uint64_t>(length);
+    pending_bytes_.clear();
+    pending_ = !ShapeMatches(rows_, cols_, feature_bytes_);
+    if (pending_) return in.ReadString(&pending_bytes_, length);
+    s->x.resize(rows_, cols_);
+    return in.ReadRaw(s->x.data(), length);
+  }
+
+  int64_t rows_ = 0, cols_ = 0;
+  uint64_t feature_bytes_ = 0;  // length of the last features field (proto3: the last one wins)
+  bool pending_ = false;        // the last features field is in pending_bytes_, not in s->x
+  std::string pending_bytes_;
+};
+
+Status ReadSplit(CodedInputStream& in, const std::string& what, Split* s) {
+  *s = Split();
+  SplitReader reader;
+  if (!reader.Read(in, s)) return Status::InvalidInput(what + ": truncated or not a prepared data set");
+  if (!reader.Finish(s)) return Status::InvalidInput(what + ": feature bytes do not match the shape");
+  const auto rows = static_cast<size_t>(s->x.rows());
+  if ((!s->labels.empty() && s->labels.size() != rows) ||
+      (!s->targets.empty() && s->targets.size() != rows)) {
     return Status::InvalidInput(what + ": label or target count does not match the rows");
   }
-  Split s;
-  s.x.resize(w.rows(), w.cols());
-  std::memcpy(s.x.data(), w.features().data(), w.features().size());
-  s.labels.assign(w.labels().begin(), w.labels().end());
-  s.targets.assign(w.targets().begin(), w.targets().end());
-  return s;
+  return Status::Ok();
+}
+
+// Decodes the PreparedDataSet fields into d; version and task land in the out-parameters.
+Status ReadDataSet(CodedInputStream& in, const std::string& source, PreparedData* d,
+                   uint32_t* version, std::string* task) {
+  const Status not_data = Status::InvalidInput(source + ": not a prepared data set");
+  while (const uint32_t tag = in.ReadTag()) {
+    const int field = WireFormatLite::GetTagFieldNumber(tag);
+    const bool len = WireFormatLite::GetTagWireType(tag) == WireFormatLite::WIRETYPE_LENGTH_DELIMITED;
+    const bool fixed32 = WireFormatLite::GetTagWireType(tag) == WireFormatLite::WIRETYPE_FIXED32;
+    bool ok = true;
+    if (field == 1 && WireFormatLite::GetTagWireType(tag) == WireFormatLite::WIRETYPE_VARINT) {
+      ok = in.ReadVarint32(version);
+    } else if (field == 2 && len) {
+      ok = WireFormatLite::ReadString(&in, task);
+    } else if (field == 3 && len) {
+      ok = WireFormatLite::ReadString(&in, &d->hash);
+    } else if ((field == 4 || field == 5) && len) {
+      std::vector<std::string>& names = field == 4 ? d->class_names : d->feature_names;
+      names.emplace_back();
+      ok = WireFormatLite::ReadString(&in, &names.back());
+    } else if ((field == 6 || field == 7) && fixed32) {
+      ok = WireFormatLite::ReadPrimitive<float, WireFormatLite::TYPE_FLOAT>(
+          &in, field == 6 ? &d->target_mean : &d->target_scale);
+    } else if (field >= 8 && field <= 10 && len) {
+      const char* names[] = {"train", "validation", "test"};
+      Split* splits[] = {&d->train, &d->validation, &d->test};
+      CHORUS_RETURN_IF_ERROR(ReadSplit(in, source + ": " + names[field - 8], splits[field - 8]));
+    } else {
+      ok = WireFormatLite::SkipField(&in, tag);
+    }
+    if (!ok) return not_data;
+  }
+  return in.ConsumedEntireMessage() ? Status::Ok() : not_data;
 }
 
 }  // namespace
@@ -52,30 +210,43 @@ std::string EncodePreparedData(const PreparedData& data) {
 
 StatusOr<PreparedData> DecodePreparedData(const std::string& bytes, const std::string& source,
                                           const std::string& expected_hash) {
-  wire::PreparedDataSet msg;
-  if (!msg.ParseFromString(bytes)) return Status::InvalidInput(source + ": not a prepared data set");
-  if (msg.format_version() != kDataFormatVersion) {
-    return Status::InvalidInput(source + ": data format version " + std::to_string(msg.format_version()));
+  if (bytes.size() > static_cast<size_t>(INT_MAX)) {
+    return Status::InvalidInput(source + ": not a prepared data set (over 2 GiB)");
   }
-  if (!expected_hash.empty() && msg.hash() != expected_hash) {
-    return Status::InvalidInput(source + ": data hash " + msg.hash() + ", expected " + expected_hash);
-  }
-  const std::optional<Task> task = ParseTask(msg.task());
-  if (!task) return Status::InvalidInput(source + ": unknown task \"" + msg.task() + "\"");
+  google::protobuf::io::ArrayInputStream in(bytes.data(), static_cast<int>(bytes.size()));
+  return DecodePreparedData(&in, source, expected_hash);
+}
+
+StatusOr<PreparedData> DecodePreparedData(google::protobuf::io::ZeroCopyInputStream* stream,
+                                          const std::string& source,
+                                          const std::string& expected_hash) {
+  CodedInputStream in(stream);
   PreparedData d;
+  uint32_t version = 0;
+  std::string task_name;
+  CHORUS_RETURN_IF_ERROR(ReadDataSet(in, source, &d, &version, &task_name));
+  if (version != kDataFormatVersion) {
+    return Status::InvalidInput(source + ": data format version " + std::to_string(version));
+  }
+  if (!expected_hash.empty() && d.hash != expected_hash) {
+    return Status::InvalidInput(source + ": data hash " + d.hash + ", expected " + expected_hash);
+  }
+  const std::optional<Task> task = ParseTask(task_name);
+  if (!task) return Status::InvalidInput(source + ": unknown task \"" + task_name + "\"");
   d.task = *task;
-  d.hash = msg.hash();
-  d.class_names.assign(msg.class_names().begin(), msg.class_names().end());
-  d.feature_names.assign(msg.feature_names().begin(), msg.feature_names().end());
-  d.target_mean = msg.target_mean();
-  d.target_scale = msg.target_scale();
-  CHORUS_ASSIGN_OR_RETURN(d.train, SplitFromWire(msg.train(), source + ": train"));
-  CHORUS_ASSIGN_OR_RETURN(d.validation, SplitFromWire(msg.validation(), source + ": validation"));
-  CHORUS_ASSIGN_OR_RETURN(d.test, SplitFromWire(msg.test(), source + ": test"));
   if (d.validation.x.cols() != d.train.x.cols() || d.test.x.cols() != d.train.x.cols()) {
     return Status::InvalidInput(source + ": splits have different feature counts");
   }
   return d;
+}
+
+int64_t PreparedDataBytes(const PreparedData& data) {
+  int64_t bytes = 0;
+  for (const Split* s : {&data.train, &data.validation, &data.test}) {
+    bytes += static_cast<int64_t>(s->x.size()) * static_cast<int64_t>(sizeof(float)) +
+             static_cast<int64_t>(s->labels.size() * sizeof(int32_t) + s->targets.size() * sizeof(float));
+  }
+  return bytes;
 }
 
 }  // namespace chorus

@@ -4,10 +4,15 @@
 // Thread safety: free functions, reentrant.
 #pragma once
 
+#include <cstdint>
 #include <string>
 
 #include "common/dataset.h"
 #include "common/status.h"
+
+namespace google::protobuf::io {
+class ZeroCopyInputStream;
+}
 
 namespace chorus {
 
@@ -19,5 +24,17 @@ std::string EncodePreparedData(const PreparedData& data);
 // match, a hash other than `expected_hash` (when non-empty).
 StatusOr<PreparedData> DecodePreparedData(const std::string& bytes, const std::string& source,
                                           const std::string& expected_hash);
+
+// The same decoding, reading the encoded bytes from `in` as they come (a network stream, a file)
+// and copying each split's feature bytes straight into its matrix: memory is the decoded data
+// plus the stream's own buffer, never the whole encoded set besides. Reads `in` to its end (or
+// to the first error). The same errors as above; a stream that ends early is "not a data set".
+StatusOr<PreparedData> DecodePreparedData(google::protobuf::io::ZeroCopyInputStream* in,
+                                          const std::string& source,
+                                          const std::string& expected_hash);
+
+// Bytes the decoded data occupies in memory: every split's features (rows x features float32)
+// plus its labels (int32) and targets (float32). Names and the hash are not counted.
+int64_t PreparedDataBytes(const PreparedData& data);
 
 }  // namespace chorus

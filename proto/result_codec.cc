@@ -2,17 +2,174 @@
 
 #include <google/protobuf/io/coded_stream.h>
 #include <google/protobuf/io/zero_copy_stream_impl_lite.h>
+#include <google/protobuf/wire_format_lite.h>
 
 #include "job.pb.h"
 
 namespace chorus {
 namespace {
 
-void ToWire(const Matrix& m, wire::FloatMatrix* out) {
-  out->set_rows(m.rows());
-  out->set_cols(m.cols());
-  out->mutable_values()->Add(m.data(), m.data() + m.size());
+namespace io = google::protobuf::io;
+using google::protobuf::internal::WireFormatLite;
+
+// Field numbers of proto/job.proto.
+enum MatrixField { kRows = 1, kCols = 2, kValues = 3 };
+enum BasinField { kMethod = 1, kMean = 2, kVariance = 3, kDeviations = 4 };
+enum ResultField {
+  kFormatVersion = 1, kMemberIndex = 2, kSeed = 3, kDataHash = 4, kConfigHash = 5, kWidths = 6,
+  kParameters = 7, kEpochLoss = 8, kValidationOutputs = 9, kTestOutputs = 10, kBasin = 11,
+  kSampleSeeds = 12, kSampleValidationOutputs = 13, kSampleTestOutputs = 14
+};
+
+uint32_t Tag(int field, WireFormatLite::WireType type) {
+  return static_cast<uint32_t>(field) << 3 | static_cast<uint32_t>(type);
 }
+
+size_t VarintSize(uint64_t v) { return io::CodedOutputStream::VarintSize64(v); }
+
+// Bytes of a length-delimited field with a payload of `payload` bytes: tag, length, payload.
+size_t DelimitedSize(int field, size_t payload) {
+  return VarintSize(Tag(field, WireFormatLite::WIRETYPE_LENGTH_DELIMITED)) + VarintSize(payload) + payload;
+}
+
+// The same, but proto3 leaves out an empty packed field or string entirely.
+size_t PackedSize(int field, size_t payload) { return payload == 0 ? 0 : DelimitedSize(field, payload); }
+
+void WriteDelimitedHeader(io::CodedOutputStream& out, int field, size_t payload) {
+  out.WriteTag(Tag(field, WireFormatLite::WIRETYPE_LENGTH_DELIMITED));
+  out.WriteVarint64(payload);
+}
+
+// A packed run of fixed-size little-endian values (float, double): left out when empty.
+template <typename T>
+void WritePacked(io::CodedOutputStream& out, int field, const T* values, size_t n) {
+  if (n == 0) return;
+  WriteDelimitedHeader(out, field, n * sizeof(T));
+  out.WriteRaw(values, static_cast<int>(n * sizeof(T)));
+}
+
+// A varint field (proto3: left out when zero).
+void WriteVarintField(io::CodedOutputStream& out, int field, uint64_t v) {
+  if (v == 0) return;
+  out.WriteTag(Tag(field, WireFormatLite::WIRETYPE_VARINT));
+  out.WriteVarint64(v);
+}
+
+void WriteStringField(io::CodedOutputStream& out, int field, const std::string& s) {
+  if (s.empty()) return;
+  WriteDelimitedHeader(out, field, s.size());
+  out.WriteRaw(s.data(), static_cast<int>(s.size()));
+}
+
+// FloatMatrix {rows, cols, values}: the payload's size, and the payload.
+size_t MatrixPayloadSize(const Matrix& m) {
+  const auto rows = static_cast<uint64_t>(m.rows()), cols = static_cast<uint64_t>(m.cols());
+  return (rows != 0 ? 1 + VarintSize(rows) : 0) + (cols != 0 ? 1 + VarintSize(cols) : 0) +
+         PackedSize(kValues, static_cast<size_t>(m.size()) * sizeof(float));
+}
+
+// A FloatMatrix field; always present (as a set sub-message is, even when empty).
+void WriteMatrixField(io::CodedOutputStream& out, int field, const Matrix& m) {
+  WriteDelimitedHeader(out, field, MatrixPayloadSize(m));
+  WriteVarintField(out, kRows, static_cast<uint64_t>(m.rows()));
+  WriteVarintField(out, kCols, static_cast<uint64_t>(m.cols()));
+  WritePacked(out, kValues, m.data(), static_cast<size_t>(m.size()));
+}
+
+// Writes a MemberResult as the JobResult message libprotobuf would serialise: fields in number
+// order, proto3 defaults (zero, empty) left out, repeated scalars packed, set sub-messages always
+// written. Size() is the byte count Write produces.
+class JobResultWriter {
+ public:
+  JobResultWriter(const MemberResult& r, const std::vector<int>& widths,
+                  const std::string& data_hash, const std::string& config_hash)
+      : r_(r), widths_(widths), data_hash_(data_hash), config_hash_(config_hash),
+        basin_(r.basin.method != BasinMethod::kNone),
+        method_(basin_ ? BasinMethodName(r.basin.method) : "") {}
+
+  size_t Size() const {
+    size_t n = 1 + VarintSize(kJobResultFormatVersion) + VarintFieldSize(static_cast<uint64_t>(
+        static_cast<int64_t>(r_.index))) + VarintFieldSize(r_.seed) +
+        PackedSize(kDataHash, data_hash_.size()) + PackedSize(kConfigHash, config_hash_.size()) +
+        PackedSize(kWidths, WidthsPayloadSize()) +
+        PackedSize(kParameters, r_.parameters.size() * sizeof(float)) +
+        PackedSize(kEpochLoss, r_.epoch_loss.size() * sizeof(double)) +
+        DelimitedSize(kValidationOutputs, MatrixPayloadSize(r_.validation_outputs)) +
+        DelimitedSize(kTestOutputs, MatrixPayloadSize(r_.test_outputs));
+    if (!basin_) return n;
+    n += DelimitedSize(kBasin, BasinPayloadSize()) + PackedSize(kSampleSeeds, SeedsPayloadSize());
+    for (const Matrix& m : r_.sample_validation_outputs) n += DelimitedSize(kSampleValidationOutputs, MatrixPayloadSize(m));
+    for (const Matrix& m : r_.sample_test_outputs) n += DelimitedSize(kSampleTestOutputs, MatrixPayloadSize(m));
+    return n;
+  }
+
+  void Write(io::CodedOutputStream& out) const {
+    WriteVarintField(out, kFormatVersion, kJobResultFormatVersion);
+    WriteVarintField(out, kMemberIndex, static_cast<uint64_t>(static_cast<int64_t>(r_.index)));
+    WriteVarintField(out, kSeed, r_.seed);
+    WriteStringField(out, kDataHash, data_hash_);
+    WriteStringField(out, kConfigHash, config_hash_);
+    if (!widths_.empty()) {
+      WriteDelimitedHeader(out, kWidths, WidthsPayloadSize());
+      for (int w : widths_) out.WriteVarint32SignExtended(w);
+    }
+    WritePacked(out, kParameters, r_.parameters.data(), r_.parameters.size());
+    WritePacked(out, kEpochLoss, r_.epoch_loss.data(), r_.epoch_loss.size());
+    WriteMatrixField(out, kValidationOutputs, r_.validation_outputs);
+    WriteMatrixField(out, kTestOutputs, r_.test_outputs);
+    if (!basin_) return;
+    WriteDelimitedHeader(out, kBasin, BasinPayloadSize());
+    WriteStringField(out, kMethod, method_);
+    WritePacked(out, kMean, r_.basin.mean.data(), r_.basin.mean.size());
+    WritePacked(out, kVariance, r_.basin.variance.data(), r_.basin.variance.size());
+    WriteMatrixField(out, kDeviations, r_.basin.deviations);
+    if (!r_.sample_seeds.empty()) {
+      WriteDelimitedHeader(out, kSampleSeeds, SeedsPayloadSize());
+      for (uint64_t s : r_.sample_seeds) out.WriteVarint64(s);
+    }
+    for (const Matrix& m : r_.sample_validation_outputs) WriteMatrixField(out, kSampleValidationOutputs, m);
+    for (const Matrix& m : r_.sample_test_outputs) WriteMatrixField(out, kSampleTestOutputs, m);
+  }
+
+ private:
+  static size_t VarintFieldSize(uint64_t v) { return v == 0 ? 0 : 1 + VarintSize(v); }
+
+  size_t WidthsPayloadSize() const {
+    size_t n = 0;
+    for (int w : widths_) n += io::CodedOutputStream::VarintSize32SignExtended(w);
+    return n;
+  }
+  size_t SeedsPayloadSize() const {
+    size_t n = 0;
+    for (uint64_t s : r_.sample_seeds) n += VarintSize(s);
+    return n;
+  }
+  size_t BasinPayloadSize() const {
+    return PackedSize(kMethod, method_.size()) +
+           PackedSize(kMean, r_.basin.mean.size() * sizeof(float)) +
+           PackedSize(kVariance, r_.basin.variance.size() * sizeof(float)) +
+           DelimitedSize(kDeviations, MatrixPayloadSize(r_.basin.deviations));
+  }
+
+  const MemberResult& r_;
+  const std::vector<int>& widths_;
+  const std::string& data_hash_;
+  const std::string& config_hash_;
+  const bool basin_;
+  const std::string method_;
+};
+
+// Hands each full buffer of a CopyingOutputStreamAdaptor to a ByteSink.
+class SinkStream : public io::CopyingOutputStream {
+ public:
+  explicit SinkStream(const ByteSink& sink) : sink_(sink) {}
+  bool Write(const void* buffer, int size) override {
+    return sink_(static_cast<const char*>(buffer), static_cast<size_t>(size));
+  }
+
+ private:
+  const ByteSink& sink_;
+};
 
 StatusOr<Matrix> FromWire(const wire::FloatMatrix& w, const std::string& what) {
   if (w.rows() < 0 || w.cols() < 0 || w.rows() * w.cols() != w.values_size()) {
@@ -23,18 +180,6 @@ StatusOr<Matrix> FromWire(const wire::FloatMatrix& w, const std::string& what) {
   Matrix m(w.rows(), w.cols());
   std::copy(w.values().begin(), w.values().end(), m.data());
   return m;
-}
-
-void BasinToWire(const MemberResult& r, wire::JobResult* msg) {
-  if (r.basin.method == BasinMethod::kNone) return;
-  wire::BasinFit* b = msg->mutable_basin();
-  b->set_method(BasinMethodName(r.basin.method));
-  b->mutable_mean()->Add(r.basin.mean.begin(), r.basin.mean.end());
-  b->mutable_variance()->Add(r.basin.variance.begin(), r.basin.variance.end());
-  ToWire(r.basin.deviations, b->mutable_deviations());
-  msg->mutable_sample_seeds()->Add(r.sample_seeds.begin(), r.sample_seeds.end());
-  for (const Matrix& m : r.sample_validation_outputs) ToWire(m, msg->add_sample_validation_outputs());
-  for (const Matrix& m : r.sample_test_outputs) ToWire(m, msg->add_sample_test_outputs());
 }
 
 Status BasinFromWire(const wire::JobResult& msg, const std::string& source, MemberResult& r) {
@@ -67,25 +212,27 @@ Status BasinFromWire(const wire::JobResult& msg, const std::string& source, Memb
 
 std::string EncodeJobResult(const MemberResult& result, const std::vector<int>& widths,
                             const std::string& data_hash, const std::string& config_hash) {
-  wire::JobResult msg;
-  msg.set_format_version(kJobResultFormatVersion);
-  msg.set_member_index(result.index);
-  msg.set_seed(result.seed);
-  msg.set_data_hash(data_hash);
-  msg.set_config_hash(config_hash);
-  msg.mutable_widths()->Add(widths.begin(), widths.end());
-  msg.mutable_parameters()->Add(result.parameters.begin(), result.parameters.end());
-  msg.mutable_epoch_loss()->Add(result.epoch_loss.begin(), result.epoch_loss.end());
-  ToWire(result.validation_outputs, msg.mutable_validation_outputs());
-  ToWire(result.test_outputs, msg.mutable_test_outputs());
-  BasinToWire(result, &msg);
   std::string bytes;
-  google::protobuf::io::StringOutputStream stream(&bytes);
-  google::protobuf::io::CodedOutputStream coded(&stream);
-  coded.SetSerializationDeterministic(true);
-  msg.SerializeToCodedStream(&coded);
-  coded.Trim();
+  bytes.reserve(JobResultWriter(result, widths, data_hash, config_hash).Size());
+  WriteJobResult(result, widths, data_hash, config_hash, [&bytes](const char* data, size_t n) {
+    bytes.append(data, n);
+    return true;
+  });
   return bytes;
+}
+
+bool WriteJobResult(const MemberResult& result, const std::vector<int>& widths,
+                    const std::string& data_hash, const std::string& config_hash,
+                    const ByteSink& sink) {
+  SinkStream copying(sink);
+  io::CopyingOutputStreamAdaptor stream(&copying, static_cast<int>(kResultPieceBytes));
+  {
+    io::CodedOutputStream coded(&stream);
+    JobResultWriter(result, widths, data_hash, config_hash).Write(coded);
+    coded.Trim();
+    if (coded.HadError()) return false;
+  }
+  return stream.Flush();
 }
 
 StatusOr<MemberResult> DecodeJobResult(const std::string& bytes, const std::string& source,

@@ -10,6 +10,7 @@ void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
   const TrainConfig& t = spec.train;
   out->set_epochs(t.epochs);
   out->set_batch_size(t.batch_size);
+  out->set_parts(t.parts);
   out->set_lr(t.optimizer.lr);
   out->set_momentum(t.optimizer.momentum);
   out->set_nesterov(t.optimizer.nesterov);
@@ -35,7 +36,8 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   if (!activation || !schedule || !basin) {
     return Status::InvalidInput("job spec: unknown activation, schedule or basin method");
   }
-  const bool sizes_ok = w.epochs() >= 1 && w.batch_size() >= 1 && w.lr() > 0 && w.hidden_size() <= 64 &&
+  const bool sizes_ok = w.epochs() >= 1 && w.batch_size() >= 1 && w.parts() >= 1 &&
+                        w.parts() <= w.batch_size() && w.lr() > 0 && w.hidden_size() <= 64 &&
                         w.step_every_epochs() >= 1 && w.basin_snapshots() >= 2 &&
                         w.basin_rank() >= 2 && w.basin_rank() <= w.basin_snapshots() &&
                         w.basin_samples() >= 1 && w.basin_epochs() >= 1 && w.basin_lr() > 0;
@@ -50,6 +52,7 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   s.model.activation = *activation;
   s.train.epochs = w.epochs();
   s.train.batch_size = w.batch_size();
+  s.train.parts = w.parts();
   s.train.optimizer = {w.lr(), w.momentum(), w.nesterov(), w.weight_decay(), w.clip_norm()};
   s.train.schedule = {*schedule, w.step_every_epochs(), w.step_factor()};
   s.basin = {*basin, w.basin_epochs(), w.basin_lr(), w.basin_snapshots(), w.basin_rank(),

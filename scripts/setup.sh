@@ -13,9 +13,11 @@ build_packages=(cmake make g++ pkg-config libtbb-dev libeigen3-dev libprotobuf-d
   zlib1g-dev libgtest-dev libdnnl-dev)
 # Reference libraries and open data the tests check against (scikit-learn, SciPy, PyTorch,
 # Fashion-MNIST), headless Chromium for the report.html check, and for the deploy/ checks a real
-# one-node Slurm cluster (slurm-wlm, munge), systemd-analyze (systemd) and PyYAML.
+# one-node Slurm cluster (slurm-wlm, munge), systemd-analyze (systemd) and PyYAML. OpenBLAS
+# (libopenblas0-pthread) becomes PyTorch's BLAS in place of the reference BLAS, so that bench/run
+# compares chorus with a peer at full speed.
 test_packages=(python3 python3-numpy python3-scipy python3-sklearn python3-torch dataset-fashion-mnist
-  iproute2 openssl chromium slurm-wlm munge systemd python3-yaml)
+  iproute2 openssl chromium slurm-wlm munge systemd python3-yaml libopenblas0-pthread)
 wanted=("${build_packages[@]}")
 [ "$mode" = test ] && wanted+=("${test_packages[@]}")
 

@@ -6,9 +6,15 @@
 #include <functional>
 #include <memory>
 #include <string>
+#include <string_view>
 
 #include "common/status.h"
+#include "proto/result_codec.h"
 #include "service.grpc.pb.h"
+
+namespace google::protobuf::io {
+class ZeroCopyInputStream;
+}
 
 namespace chorus {
 
@@ -33,12 +39,25 @@ class CoordinatorClient {
   Status ReportFailure(const wire::FailureRequest& request);
   Status ReturnLease(const wire::ReturnLeaseRequest& request);
 
-  // Streams the data set with `hash`; checks size and SHA-256. Bounded by `max_bytes`.
-  StatusOr<std::string> FetchData(const std::string& hash, int64_t max_bytes);
+  // Streams the data set with `hash` without holding it whole: `consume` reads the bytes, in
+  // order and as they arrive, from the stream it is given (to the stream's end, or until it
+  // fails); `on_bytes` (may be empty) sees every chunk of them first, e.g. to write a cache file.
+  // The first chunk announces the size (at most `max_bytes`, else kInvalidInput) and SHA-256 of
+  // the whole; if the bytes received do not match them (kUnavailable) or the call failed (its
+  // status), FetchData fails whatever `consume` returned, so anything `consume` built must then
+  // be dropped. Otherwise returns the first error of `on_bytes`, else `consume`'s status.
+  using ConsumeFn = std::function<Status(google::protobuf::io::ZeroCopyInputStream* bytes)>;
+  using BytesFn = std::function<Status(std::string_view bytes)>;
+  Status FetchData(const std::string& hash, int64_t max_bytes, const ConsumeFn& consume,
+                   const BytesFn& on_bytes);
 
-  // Streams a result's bytes in chunks of at most 1 MiB.
+  // Streams a result in chunks of at most kResultPieceBytes: `write` produces its bytes (exactly
+  // `total_bytes` of them, with SHA-256 hex `sha256`) in order through the sink it is given, and
+  // returns false if the sink refused a piece (the upload failed; its error is returned).
+  using WriteResultFn = std::function<bool(const ByteSink& sink)>;
   Status UploadResult(const std::string& worker_id, const std::string& job_id, uint64_t lease_id,
-                      const std::string& bytes, wire::UploadReply* reply);
+                      int64_t total_bytes, const std::string& sha256, const WriteResultFn& write,
+                      wire::UploadReply* reply);
 
  private:
   CoordinatorClient(std::unique_ptr<wire::Coordinator::Stub> stub, std::string token)

@@ -1,17 +1,47 @@
 #include "worker/data_cache.h"
 
+#include <fcntl.h>
+#include <google/protobuf/io/zero_copy_stream_impl.h>
+#include <unistd.h>
+
 #include <filesystem>
 
+#include "common/atomic_file.h"
 #include "common/file_util.h"
+#include "common/log_format.h"
 #include "proto/data_codec.h"
 
 namespace chorus {
 namespace {
 
 constexpr int64_t kMaxDataBytes = int64_t{16} << 30;
+constexpr int kFileBlockBytes = 1 << 20;
 
 bool IsHexHash(const std::string& h) {
   return h.size() == 64 && h.find_first_not_of("0123456789abcdef") == std::string::npos;
+}
+
+// Decodes a cache file as it is read, so that memory is the decoded data plus one block.
+StatusOr<PreparedData> ReadCacheFile(const std::string& path, const std::string& hash) {
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) return Status::Io(path + ": cannot open");
+  google::protobuf::io::FileInputStream in(fd, kFileBlockBytes);
+  in.SetCloseOnDelete(true);
+  return DecodePreparedData(&in, path, hash);
+}
+
+// Says which data set a job trains on and how much memory it takes (bench/worker_memory.sh reads
+// data_bytes from this line).
+void LogReady(const PreparedData& d, const std::string& from) {
+  const int64_t bytes = PreparedDataBytes(d);
+  const int64_t rows = d.train.rows() + d.validation.rows() + d.test.rows();
+  char text[200];
+  std::snprintf(text, sizeof text, "chorus-worker: data set %.12s from %s: %lld rows x %lld features, %.1f MiB",
+                d.hash.c_str(), from.c_str(), static_cast<long long>(rows),
+                static_cast<long long>(d.features()), static_cast<double>(bytes) / 1048576.0);
+  LogLine(stderr, LogLevel::kInfo, text,
+          {{"data_hash", d.hash}, {"source", from}, {"rows", rows}, {"features", d.features()},
+           {"data_bytes", bytes}});
 }
 
 }  // namespace
@@ -29,19 +59,27 @@ StatusOr<std::shared_ptr<const PreparedData>> DataCache::Load(const std::string&
   if (!IsHexHash(hash)) return Status::InvalidInput("data hash is not a SHA-256 hex string");
   const std::string path = cache_dir_.empty() ? "" : cache_dir_ + "/" + hash + ".data";
   if (!path.empty() && std::filesystem::exists(path)) {
-    StatusOr<std::string> bytes = ReadFileToString(path, kMaxDataBytes);
-    if (bytes.ok()) {
-      StatusOr<PreparedData> data = DecodePreparedData(bytes.value(), path, hash);
-      if (data.ok()) return std::make_shared<const PreparedData>(std::move(data).value());
+    StatusOr<PreparedData> data = ReadCacheFile(path, hash);  // a bad file is fetched again
+    if (data.ok()) {
+      LogReady(data.value(), "the disk cache");
+      return std::make_shared<const PreparedData>(std::move(data).value());
     }
   }
-  CHORUS_ASSIGN_OR_RETURN(std::string bytes, client_->FetchData(hash, kMaxDataBytes));
-  CHORUS_ASSIGN_OR_RETURN(PreparedData data, DecodePreparedData(bytes, "fetched data", hash));
+  std::unique_ptr<AtomicFile> file;
   if (!path.empty()) {
     CHORUS_RETURN_IF_ERROR(MakeDirectories(cache_dir_));
-    CHORUS_RETURN_IF_ERROR(WriteFileAtomic(path, bytes));
+    CHORUS_ASSIGN_OR_RETURN(file, AtomicFile::Create(path));
   }
-  return std::make_shared<const PreparedData>(std::move(data));
+  StatusOr<PreparedData> data = Status::Internal("FetchData did not decode");
+  const auto decode = [&](google::protobuf::io::ZeroCopyInputStream* bytes) {
+    data = DecodePreparedData(bytes, "fetched data", hash);
+    return data.status();
+  };
+  const auto keep = [&](std::string_view bytes) { return file ? file->Append(bytes) : Status::Ok(); };
+  CHORUS_RETURN_IF_ERROR(client_->FetchData(hash, kMaxDataBytes, decode, keep));
+  if (file) CHORUS_RETURN_IF_ERROR(file->Commit());
+  LogReady(data.value(), "the coordinator");
+  return std::make_shared<const PreparedData>(std::move(data).value());
 }
 
 }  // namespace chorus

@@ -5,6 +5,8 @@
 
 #include <mutex>
 
+#include "worker/tbb_parallel_for.h"
+
 namespace chorus {
 
 std::vector<StatusOr<MemberResult>> TrainMembersLocally(const std::vector<MemberSpec>& specs,
@@ -20,10 +22,11 @@ std::vector<StatusOr<MemberResult>> TrainMembersLocally(const std::vector<Member
       progress(p);
     };
   }
+  const TbbParallelFor parallel;  // a member's minibatch parts, on threads no member is using
   tbb::task_arena arena(threads > 0 ? threads : tbb::task_arena::automatic);
   arena.execute([&] {
     tbb::parallel_for(size_t{0}, specs.size(), [&](size_t i) {
-      results[i] = TrainMember(specs[i], data, serialised_progress);
+      results[i] = TrainMember(specs[i], data, serialised_progress, nullptr, &parallel);
       if (done) {
         std::lock_guard<std::mutex> lock(callback_mutex);
         done(specs[i], results[i]);

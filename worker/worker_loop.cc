@@ -1,5 +1,6 @@
 #include "worker/worker_loop.h"
 
+#include <tbb/task_arena.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -12,9 +13,11 @@
 
 #include "common/log_format.h"
 #include "common/member_training.h"
+#include "common/sha256.h"
 #include "proto/result_codec.h"
 #include "proto/spec_codec.h"
 #include "worker/data_cache.h"
+#include "worker/tbb_parallel_for.h"
 
 namespace chorus {
 namespace {
@@ -93,7 +96,30 @@ struct Shared {
   DataCache* cache;
   std::string worker_id;
   double lease_seconds;
+  // Training runs in one arena of `slots` threads: a member's minibatch parts (train.parts) can
+  // use the threads of idle slots, and never more threads than slots.
+  tbb::task_arena* arena;
+  const ParallelFor* parallel;
 };
+
+// Sends a result without a second copy of it in memory: one encoding pass for its size and
+// SHA-256 (which the protocol's first chunk carries), a second straight into the upload stream.
+Status Upload(const Shared& s, const wire::LeaseReply& lease, const std::vector<int>& widths,
+              const MemberResult& result) {
+  const auto write = [&](const ByteSink& sink) {
+    return WriteJobResult(result, widths, lease.data_hash(), lease.config_hash(), sink);
+  };
+  Sha256 sha;
+  int64_t total = 0;
+  write([&](const char* bytes, size_t n) {
+    sha.Update(bytes, n);
+    total += static_cast<int64_t>(n);
+    return true;
+  });
+  wire::UploadReply reply;
+  return s.client->UploadResult(s.worker_id, lease.job_id(), lease.lease_id(), total,
+                                sha.FinishHex(), write, &reply);
+}
 
 // Trains one leased job and reports its outcome.
 void RunJob(const Shared& s, const wire::LeaseReply& lease) {
@@ -117,14 +143,13 @@ void RunJob(const Shared& s, const wire::LeaseReply& lease) {
       heartbeat.Update(p, rows * p.epoch / std::max(secs, 1e-9));
       if (s.stop.load()) cancel.store(true);
     };
-    result = TrainMember(spec.value(), *data.value(), progress, &cancel);
+    s.arena->execute(
+        [&] { result = TrainMember(spec.value(), *data.value(), progress, &cancel, s.parallel); });
     heartbeat.Stop();
   }
   if (result.ok()) {
-    const Mlp net = NetworkFor(spec.value().model, *data.value());
-    const std::string bytes = EncodeJobResult(result.value(), net.widths(), data_hash, lease.config_hash());
-    wire::UploadReply reply;
-    const Status st = s.client->UploadResult(s.worker_id, lease.job_id(), lease.lease_id(), bytes, &reply);
+    const Status st = Upload(s, lease, NetworkFor(spec.value().model, *data.value()).widths(),
+                             result.value());
     if (!st.ok()) {
       LogLine(stderr, LogLevel::kError, "chorus-worker: upload of job " + lease.job_id() + " failed: " +
               st.ToString(), {{"job", lease.job_id()}, {"cause", st.ToString()}});
@@ -203,7 +228,10 @@ Status RunWorker(const WorkerOptions& options, const std::atomic<bool>& stop) {
   if (registered.code() == Status::Code::kCancelled) return Status::Ok();
   CHORUS_RETURN_IF_ERROR(registered);
   DataCache cache(client.get(), options.cache_dir);
-  const Shared shared{options, stop, client.get(), &cache, reg.worker_id(), reg.lease_seconds()};
+  tbb::task_arena arena(options.slots);
+  const TbbParallelFor parallel;
+  const Shared shared{options, stop,           client.get(), &cache, reg.worker_id(),
+                      reg.lease_seconds(), &arena, &parallel};
   std::vector<Status> outcomes(static_cast<size_t>(options.slots));
   std::vector<std::thread> slots;
   for (int i = 0; i < options.slots; ++i) {

@@ -7,6 +7,8 @@
 #include <csignal>
 #include <cstdio>
 #include <cstdlib>
+#include <fstream>
+#include <string>
 
 #include "common/file_util.h"
 #include "common/log_format.h"
@@ -22,6 +24,28 @@ std::string DefaultCacheDir() {
   if (const char* xdg = std::getenv("XDG_CACHE_HOME"); xdg != nullptr && *xdg) return std::string(xdg) + "/chorus";
   if (const char* home = std::getenv("HOME"); home != nullptr && *home) return std::string(home) + "/.cache/chorus";
   return "";
+}
+
+// The most memory this process has had resident at once, in bytes: VmHWM of /proc/self/status,
+// or -1 if it cannot be read. (Not getrusage's ru_maxrss: Linux carries that across execve, so a
+// worker spawned by `chorus run` would report its parent's peak when that is larger.)
+long long PeakResidentBytes() {
+  std::ifstream status("/proc/self/status");
+  for (std::string line; std::getline(status, line);) {
+    if (line.rfind("VmHWM:", 0) == 0) return std::atoll(line.c_str() + 6) * 1024;  // "VmHWM: N kB"
+  }
+  return -1;
+}
+
+// The last line a worker logs: how it ended and its peak resident set, so that memory use can be
+// measured from the log (bench/worker_memory.sh reads it).
+void LogExit(int exit_code) {
+  const long long peak = PeakResidentBytes();
+  char text[160];
+  std::snprintf(text, sizeof text, "chorus-worker: exiting with code %d; peak resident set %.1f MiB",
+                exit_code, static_cast<double>(peak) / 1048576.0);
+  chorus::LogLine(stderr, exit_code == 0 ? chorus::LogLevel::kInfo : chorus::LogLevel::kError, text,
+                  {{"exit_code", exit_code}, {"peak_rss_bytes", peak}});
 }
 
 }  // namespace
@@ -76,5 +100,6 @@ int main(int argc, char** argv) {
   if (!st.ok()) {
     chorus::LogPrintf(stderr, chorus::LogLevel::kError, "chorus-worker: %s", st.ToString().c_str());
   }
+  LogExit(st.ExitCode());
   return st.ExitCode();
 }

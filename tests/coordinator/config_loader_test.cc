@@ -90,6 +90,8 @@ TEST(ConfigLoaderTest, BadConfigsAreRejectedWithTheirPlace) {
       BadConfig{"RankAboveSnapshots",
                 "data: {train: a, test: b, target: y}\nensemble: {basin: {snapshots: 4, rank: 5}}\n",
                 "ensemble.basin.rank: expected a rank (at most snapshots) in [2, 4]"},
+      BadConfig{"PartsAboveBatch", "data: {train: a, test: b, target: y}\ntrain: {batch_size: 8, parts: 9}\n",
+                "train.parts: expected a part count (at most batch_size) in [1, 8]"},
       BadConfig{"MissingTarget", "data: {train: a, test: b}\n", "data.target: required"},
       BadConfig{"MissingData", "run: {seed: 1}\n", "data: required"},
       BadConfig{"NotYaml", "data: [unclosed\n", "cfg.yaml:"},

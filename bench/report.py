@@ -1,0 +1,288 @@
+"""Tables of one bench/run measurement beside the issue-6 targets; optionally writes them into
+BENCHMARKS.md, replacing what lies between its markers (BEGIN and END below).
+
+Input: the lines bench/run recorded, one measurement each: a kind, then KEY=VALUE fields (a value
+with spaces in double quotes), every line ending in load_before=L load_after=L (1-minute load
+averages around it). Kinds read here: machine, gemm-machine, gemm-limit, chorus, torch,
+chorus-predict, worker-memory; every line also goes into the raw listing at the end.
+Every "met" is computed from the figures; a figure the run did not produce reads "not measured".
+Usage: report.py RAW_FILE [--markdown BENCHMARKS.md]
+"""
+import argparse
+import shlex
+import sys
+
+BEGIN = "<!-- bench/run:begin -->"
+END = "<!-- bench/run:end -->"
+# chorus-bench-predict's bundle (bench/predict_throughput.cc): 8 members x 10 basin samples, so
+# each input row costs 80 network evaluations, "member-sample-rows".
+PREDICT_NETWORKS_PER_ROW = 80
+
+
+def parse(lines):
+    """[(kind, fields, line)] for the non-empty lines."""
+    records = []
+    for line in lines:
+        line = line.strip()
+        if not line:
+            continue
+        try:
+            words = shlex.split(line)
+        except ValueError:  # an unbalanced quote in a free-text line: keep it as plain words
+            words = line.split()
+        fields = dict(w.split("=", 1) for w in words[1:] if "=" in w)
+        records.append((words[0], fields, line))
+    return records
+
+
+def select(records, kind, **match):
+    return [f for k, f, _ in records
+            if k == kind and all(f.get(key) == str(v) for key, v in match.items())]
+
+
+def num(fields, key):
+    return float(fields[key]) if fields and key in fields else None
+
+
+def union_rate(runs):
+    """All timed samples over the union of the timed windows of processes run at once."""
+    if not runs:
+        return None
+    samples = sum(float(r["samples"]) for r in runs)
+    start = min(float(r["start"]) for r in runs)
+    end = max(float(r["end"]) for r in runs)
+    return samples / (end - start)
+
+
+def loads(*groups):
+    values = [float(f[k]) for g in groups for f in g
+              for k in ("load_before", "load_after") if k in f]
+    if not values:
+        return "?"
+    lo, hi = min(values), max(values)
+    return f"{lo:.2f}" if lo == hi else f"{lo:.2f}-{hi:.2f}"
+
+
+def rate(x):
+    return "not measured" if x is None else f"{x:,.0f}"
+
+
+def ratio(a, b):
+    return None if a is None or b is None else a / b
+
+
+def times(x):
+    return "not measured" if x is None else f"{x:.2f}x"
+
+
+def table(header, rows):
+    out = ["| " + " | ".join(header) + " |", "|" + " --- |" * len(header)]
+    out += ["| " + " | ".join(str(c) for c in row) + " |" for row in rows]
+    return "\n".join(out)
+
+
+class Report:
+    def __init__(self, records):
+        self.records = records
+        self.machine = (select(records, "machine") or [{}])[0]
+        self.gemm_machine = (select(records, "gemm-machine") or [{}])[0]
+        self.batches = sorted({int(f["batch"]) for f in select(records, "gemm-limit")} |
+                              {int(f["batch"]) for f in select(records, "chorus")})
+        self.targets = []  # (what, measured text, required text, met: True / False / None)
+
+    def target(self, what, value, required, fmt):
+        """Records a target (value >= required) and returns the figure with it, for a cell."""
+        met = None if value is None else value >= required
+        verdict = {None: "not measured", True: "met", False: "**not met**"}[met]
+        self.targets.append((what, "not measured" if value is None else fmt(value),
+                             f">= {fmt(required)}", verdict))
+        shown = "not measured" if value is None else fmt(value)
+        return f"{shown} (target {fmt(required)}: {verdict})" if value is not None else shown
+
+    # --- figures ---
+
+    def gemm(self, batch):
+        """{backend: gemm-limit fields} at this batch."""
+        return {f["backend"]: f for f in select(self.records, "gemm-limit", batch=batch)}
+
+    def limit(self, batch):
+        """The GEMM limit: the fastest backend measured on the step's products; (rate, backend)."""
+        best = max(self.gemm(batch).values(), key=lambda f: float(f["samples_per_s"]),
+                   default=None)
+        return (None, None) if best is None else (float(best["samples_per_s"]), best["backend"])
+
+    def chorus(self, batch, threads):
+        found = select(self.records, "chorus", batch=batch, threads=threads)
+        return (num(found[0], "samples_per_s") if found else None), found
+
+    def torch(self, batch, malloc, procs):
+        found = select(self.records, "torch", batch=batch, group=f"b{batch}-{malloc}-{procs}")
+        return union_rate(found), found
+
+    def duration(self):
+        words = [line.split() for kind, _, line in self.records if kind == "measured"]
+        return f"measured in {words[0][2]} s" if words else "duration not recorded"
+
+    def last_load(self):
+        return self.records[-1][1].get("load_after", "?") if self.records else "?"
+
+    # --- sections ---
+
+    def machine_section(self):
+        m, g = self.machine, self.gemm_machine
+        torch = (select(self.records, "torch") or [{}])[0]
+        flags = [k for k, v in m.items() if v in ("yes", "no")]
+        present = [k for k in flags if m[k] == "yes"]
+        v4 = all(m.get(k) == "yes" for k in ("avx512f", "avx512bw", "avx512dq", "avx512cd",
+                                               "avx512vl"))
+        v3 = all(m.get(k) == "yes" for k in ("avx2", "fma"))
+        level = "x86-64-v4 (AVX-512)" if v4 else "x86-64-v3 (AVX2)" if v3 else "below x86-64-v3"
+        absent = [k for k in flags if m[k] == "no"]
+        rows = [
+            ("CPU", f"{m.get('cpu', '?')}, {m.get('nproc', '?')} CPUs available"),
+            ("ISA", f"{level}; present: {' '.join(present) or 'none'}"
+                    + (f"; absent: {' '.join(absent)}" if absent else "")),
+            ("threads, chorus", "one thread per member (chorus::Gemm uses only the calling "
+                                "thread); 2 members at once on a 2-slot arena"),
+            ("threads, PyTorch", "torch.set_num_threads(1) (reported "
+                                 f"{torch.get('torch_threads', '?')}), "
+                                 f"{m.get('peer_env', '?')}; OpenBLAS reported "
+                                 f"{torch.get('openblas_threads', '?')} thread(s); 2 at once = "
+                                 "two processes"),
+            ("caller's environment", f"OMP_NUM_THREADS={m.get('OMP_NUM_THREADS', '?')}, "
+                                     f"OPENBLAS_NUM_THREADS={m.get('OPENBLAS_NUM_THREADS', '?')}"),
+            ("OPENBLAS_CORETYPE", f"{m.get('OPENBLAS_CORETYPE', '?')} (recorded, not changed)"),
+            ("chorus GEMM kernel", g.get("gemm", "?")),
+            ("compiler", g.get("compiler", "?")),
+            ("oneDNN", g.get("onednn", "?")),
+            ("PyTorch", f"{torch.get('torch', '?')}, BLAS mapped: {torch.get('blas', '?')}"),
+            ("run", f"{m.get('date', '?')}, commit {m.get('commit', '?')}, {self.duration()}, "
+                    f"1-minute load average {m.get('load_before', '?')} at the start, "
+                    f"{self.last_load()} at the end"),
+        ]
+        return "### Machine\n\n" + table(("", ""), rows)
+
+    def gemm_section(self):
+        rows = []
+        for b in self.batches:
+            g = self.gemm(b)
+
+            def cell(name):
+                f = g.get(name)
+                return "not measured" if f is None else \
+                    f"{float(f['samples_per_s']):,.0f} ({float(f['gflops']):.0f} GFLOP/s)"
+            lim, backend = self.limit(b)
+            rows.append((b, cell("onednn"), cell("chorus"), cell("eigen"),
+                         f"{rate(lim)} ({backend})", loads(g.values())))
+        return ("### GEMM limit (samples/s, one thread)\n\n"
+                "The eight products of one training step, each timed alone, summed; limit = "
+                "batch / that sum, from the fastest backend.\n\n"
+                + table(("batch", "oneDNN dnnl_sgemm", "chorus::Gemm", "Eigen (as built)",
+                         "limit", "load"), rows))
+
+    def training_section(self):
+        one, two = [], []
+        for b in self.batches:
+            lim, _ = self.limit(b)
+            c1, c1f = self.chorus(b, 1)
+            c2, c2f = self.chorus(b, 2)
+            t1d, t1df = self.torch(b, "default", 1)
+            t1t, t1tf = self.torch(b, "tuned", 1)
+            t2d, t2df = self.torch(b, "default", 2)
+            t2t, t2tf = self.torch(b, "tuned", 2)
+            t1 = max((x for x in (t1d, t1t) if x is not None), default=None)
+            t2 = max((x for x in (t2d, t2t) if x is not None), default=None)
+            pct, r1, r2, scaling = ratio(c1, lim), ratio(c1, t1), ratio(c2, t2), ratio(c2, c1)
+            required = 1.3 if b == 128 else 1.5
+            if b == 128:
+                pct_cell = self.target("batch 128, 1 thread: chorus / GEMM limit", pct, 0.85,
+                                       lambda x: f"{x:.1%}")
+            else:
+                pct_cell = "not measured" if pct is None else f"{pct:.1%}"
+            r1_cell = self.target(f"batch {b}, 1 thread: chorus / best PyTorch", r1, required,
+                                  lambda x: f"{x:.2f}x")
+            r2_cell = self.target(f"batch {b}, 2 at once: chorus / best PyTorch", r2, required,
+                                  lambda x: f"{x:.2f}x")
+            scaling_cell = self.target(f"batch {b}: chorus 2 members at once / 1", scaling, 1.9,
+                                       lambda x: f"{x:.2f}x")
+            one.append((b, rate(lim), rate(c1), pct_cell, rate(t1d), rate(t1t), r1_cell,
+                        loads(c1f, t1df, t1tf)))
+            two.append((b, rate(c2), scaling_cell, rate(t2d), rate(t2t), r2_cell,
+                        loads(c2f, t2df, t2tf)))
+        return ("### Training, one thread (samples/s)\n\n"
+                + table(("batch", "GEMM limit", "chorus, 1 member", "% of limit",
+                         "PyTorch, default malloc", "PyTorch, tuned malloc",
+                         "chorus / best PyTorch", "load"), one)
+                + "\n\n### Training, two at once (samples/s)\n\n"
+                + table(("batch", "chorus, 2 members", "chorus 2 vs 1",
+                         "PyTorch 2 processes, default malloc", "PyTorch 2 processes, tuned malloc",
+                         "chorus / best PyTorch", "load"), two))
+
+    def predict_section(self):
+        rows = []
+        for f in select(self.records, "chorus-predict"):
+            t = int(f["threads"])
+            threads = f"{t} thread" + ("s" if t > 1 else "")
+            per_core = num(f, "rows_per_s_steady") * PREDICT_NETWORKS_PER_ROW / t
+            per_cpu_s = num(f, "rows_per_cpu_s_steady")
+            cell = self.target(f"predict, {threads}: member-sample-rows/s per core", per_core,
+                               1e6, lambda x: f"{x:,.0f}")
+            rows.append((f"`chorus predict`, {threads}",
+                         f"{num(f, 'rows_per_s_steady'):,.0f} rows/s steady, so {cell} "
+                         "member-sample-rows/s per core"
+                         + ("" if per_cpu_s is None else
+                            f" ({per_cpu_s * PREDICT_NETWORKS_PER_ROW:,.0f} per CPU-second)")
+                         + f"; peak RSS {num(f, 'peak_rss_mib'):.0f} MiB", loads([f])))
+        if not rows:
+            self.target("predict: member-sample-rows/s per core", None, 1e6, lambda x: f"{x:,.0f}")
+        memory = select(self.records, "worker-memory")
+        for f in memory:
+            peak, bound = num(f, "peak_rss_mib"), num(f, "bound_mib")
+            verdict = "met" if peak <= bound else "**not met**"
+            rows.append(("worker peak memory",
+                         f"{peak:,.1f} MiB (target <= {bound:,.1f} MiB: {verdict})", loads([f])))
+            self.targets.append(("worker peak memory within the bound", f"{peak:,.1f} MiB",
+                                 f"<= {bound:,.1f} MiB", verdict))
+        if not memory:
+            self.targets.append(("worker peak memory within the bound", "not measured", "",
+                                 "not measured"))
+        if not rows:
+            return "### Predict and worker memory\n\nNot measured in this run."
+        return "### Predict and worker memory\n\n" + table(("figure", "value", "load"), rows)
+
+    def render(self):
+        sections = [self.machine_section(), self.gemm_section(), self.training_section(),
+                    self.predict_section()]
+        sections.append("### Targets (issue 6)\n\n"
+                        + table(("target", "measured", "required", "met"), self.targets))
+        raw = "\n".join(line for _, _, line in self.records)
+        sections.append("<details><summary>Raw output of this run</summary>\n\n```\n" + raw
+                        + "\n```\n\n</details>")
+        return "\n\n".join(sections)
+
+
+def write_markdown(path, text):
+    with open(path) as f:
+        old = f.read()
+    if BEGIN not in old or END not in old or old.index(BEGIN) > old.index(END):
+        sys.exit(f"report.py: {path} lacks the markers {BEGIN} ... {END}")
+    head, rest = old.split(BEGIN, 1)
+    tail = rest.split(END, 1)[1]
+    with open(path, "w") as f:
+        f.write(f"{head}{BEGIN}\n{text}\n{END}{tail}")
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("raw")
+    parser.add_argument("--markdown", help="file whose generated part to replace")
+    args = parser.parse_args()
+    with open(args.raw) as f:
+        text = Report(parse(f)).render()
+    print(text)
+    if args.markdown:
+        write_markdown(args.markdown, text)
+
+
+if __name__ == "__main__":
+    main()

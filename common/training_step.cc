@@ -1,0 +1,85 @@
+#include "common/training_step.h"
+
+#include <algorithm>
+#include <cassert>
+#include <cmath>
+
+#include "common/heads.h"
+#include "common/sgd.h"
+
+namespace chorus {
+
+struct TrainingStep::PartJob {
+  TrainingStep* step;
+  const ConstMatrixRef* x;
+  const int32_t* labels;
+  const float* targets;
+  float* params;
+  int64_t rows;
+  float lr;
+  bool fused;  // one part and no clipping: the update happens inside the backward pass
+};
+
+TrainingStep::TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer,
+                           int64_t max_rows, int parts)
+    : net_(net), task_(task), optimizer_(optimizer), velocity_(net.ParameterCount(), 0.0f) {
+  assert(parts >= 1 && parts <= max_rows);
+  for (int s = 0; s < parts; ++s) {
+    const int64_t part_rows = (s + 1) * max_rows / parts - s * max_rows / parts;
+    parts_.push_back(Part{net.MakeWorkspace(part_rows), Matrix(part_rows, net.widths().back()),
+                          std::vector<float>(net.ParameterCount()), 0.0});
+  }
+}
+
+void TrainingStep::RunPart(void* context, int s) {
+  const PartJob& job = *static_cast<const PartJob*>(context);
+  TrainingStep& self = *job.step;
+  Part& part = self.parts_[s];
+  const int64_t parts = static_cast<int64_t>(self.parts_.size());
+  const int64_t begin = s * job.rows / parts, rows = (s + 1) * job.rows / parts - begin;
+  if (rows == 0) {  // a minibatch smaller than the number of parts
+    part.loss = 0.0;
+    std::fill(part.grad.begin(), part.grad.end(), 0.0f);
+    return;
+  }
+  const auto x = job.x->middleRows(begin, rows);
+  const auto out = self.net_.Forward(job.params, x, part.workspace);
+  auto grad_out = part.grad_output.topRows(rows);
+  part.loss = self.task_ == Task::kClassification
+                  ? SoftmaxCrossEntropy(out, job.labels + begin, grad_out, job.rows)
+                  : GaussianNll(out, job.targets + begin, grad_out, job.rows);
+  if (!std::isfinite(part.loss)) return;
+  if (job.fused) {
+    self.net_.BackwardWithSgd(job.params, x, grad_out, part.workspace, part.grad.data(),
+                              self.optimizer_, job.lr, self.velocity_.data());
+  } else {
+    self.net_.Backward(job.params, x, grad_out, part.workspace, part.grad.data());
+  }
+}
+
+double TrainingStep::Run(const ConstMatrixRef& x, const int32_t* labels, const float* targets,
+                         float lr, float* params, const ParallelFor* parallel) {
+  const int parts = static_cast<int>(parts_.size());
+  const bool fused = parts == 1 && !(optimizer_.clip_norm > 0.0);
+  PartJob job{this, &x, labels, targets, params, x.rows(), lr, fused};
+  if (parallel != nullptr && parts > 1) {
+    parallel->Run(parts, &TrainingStep::RunPart, &job);
+  } else {
+    for (int s = 0; s < parts; ++s) RunPart(&job, s);
+  }
+  double loss = 0.0;
+  for (const Part& part : parts_) loss += part.loss;  // in part order
+  if (!std::isfinite(loss) || fused) return loss;
+
+  const int64_t n = net_.ParameterCount();
+  float* grad = parts_[0].grad.data();
+  for (int s = 1; s < parts; ++s) {  // in part order: the sum does not depend on the threads
+    const float* g = parts_[s].grad.data();
+    for (int64_t i = 0; i < n; ++i) grad[i] += g[i];
+  }
+  if (optimizer_.clip_norm > 0.0) ClipGradientNorm(grad, n, optimizer_.clip_norm);
+  SgdStep(optimizer_, lr, n, grad, params, velocity_.data());
+  return loss;
+}
+
+}  // namespace chorus

@@ -1,0 +1,61 @@
+// One minibatch SGD step of an Mlp: forward, head loss and gradient, backward, gradient clipping
+// and the update, over buffers allocated once at construction; a step allocates nothing.
+// Parts: with parts > 1 the minibatch's rows are cut into that many contiguous parts (part s
+// holds rows [s * B / parts, (s + 1) * B / parts)), each part's gradient is computed on its own,
+// possibly at the same time as the others, and the gradients are added in part order. The
+// result depends on the number of parts (train.parts in the config), never on the threads.
+// With one part and no clipping the update is fused into the backward pass (Mlp::BackwardWithSgd),
+// which gives the same bits as the separate gradient, SgdStep sequence and saves a pass over the
+// gradient.
+// Thread safety: a TrainingStep belongs to one member; Run must not be called concurrently.
+#pragma once
+
+#include <cstdint>
+#include <vector>
+
+#include "common/config.h"
+#include "common/matrix.h"
+#include "common/mlp.h"
+
+namespace chorus {
+
+// Runs body(context, i) for i in [0, count), in any order and possibly in parallel; returns when
+// all calls have returned. common/ owns no threads: the worker supplies one over its thread pool.
+class ParallelFor {
+ public:
+  virtual ~ParallelFor() = default;
+  virtual void Run(int count, void (*body)(void* context, int i), void* context) const = 0;
+};
+
+class TrainingStep {
+ public:
+  // max_rows: the largest minibatch Run will see; parts in [1, max_rows].
+  TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer, int64_t max_rows,
+               int parts);
+
+  // x: rows x inputs (1 <= rows <= max_rows); labels (classification) or targets (regression) of
+  // those rows, the other may be null. Updates params (ParameterCount floats) and the momentum
+  // buffer at learning rate lr, and returns the minibatch's mean loss; if that is not finite,
+  // returns it and leaves params and momentum untouched. parallel may be null (one part after
+  // another on the calling thread).
+  double Run(const ConstMatrixRef& x, const int32_t* labels, const float* targets, float lr,
+             float* params, const ParallelFor* parallel);
+
+ private:
+  struct Part {
+    Mlp::Workspace workspace;
+    Matrix grad_output;        // dL/dZ_L of the part's rows
+    std::vector<float> grad;   // dL/dparams from the part's rows
+    double loss = 0.0;         // the part's share of the minibatch's mean loss
+  };
+  struct PartJob;  // what one call of the parallel body needs
+  static void RunPart(void* job, int part);
+
+  const Mlp& net_;
+  Task task_;
+  OptimizerConfig optimizer_;
+  std::vector<Part> parts_;
+  std::vector<float> velocity_;
+};
+
+}  // namespace chorus

@@ -1,0 +1,203 @@
+// chorus's GEMM (common/gemm.h, common/gemm_kernel.h), every micro-kernel this CPU can run:
+// - against a double-precision product, within the forward error bound of a float inner
+//   product of length k, |fl(x.y) - x.y| <= gamma_k |x|.|y| with gamma_k = k u / (1 - k u),
+//   u = 2^-24 (Higham, Accuracy and Stability of Numerical Algorithms, 2nd ed. 2002, eq. 3.5);
+// - against oneDNN's sgemm (Debian libdnnl-dev), an independent implementation, on the shapes
+//   of training a 784-512-512-10 network;
+// - for the BLAS conventions of alpha, beta and beta == 0 (C not read);
+// - for bit-identical results on repeated calls and on another thread.
+#include <gtest/gtest.h>
+#include <oneapi/dnnl/dnnl.h>
+#include <omp.h>
+
+#include <cmath>
+#include <limits>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "common/gemm.h"
+#include "common/gemm_kernel.h"
+#include "common/rng.h"
+#include "common/sgd.h"
+
+namespace chorus {
+namespace {
+
+std::vector<const GemmKernel*> KernelsHere() {
+  std::vector<const GemmKernel*> kernels;
+  if (Avx512Kernel() != nullptr) kernels.push_back(Avx512Kernel());
+  if (Avx2Kernel() != nullptr) kernels.push_back(Avx2Kernel());
+  kernels.push_back(&PortableKernel());
+  return kernels;
+}
+
+Matrix RandomMatrix(int64_t rows, int64_t cols, Philox& rng) {
+  Matrix m(rows, cols);
+  for (int64_t i = 0; i < rows; ++i) {
+    for (int64_t j = 0; j < cols; ++j) m(i, j) = static_cast<float>(rng.NextNormal());
+  }
+  return m;
+}
+
+struct Case {
+  int64_t m, n, k;
+  bool ta, tb;
+  float alpha, beta;
+};
+
+// Checks kernel on one case, with each operand a view into a larger matrix (row stride larger
+// than its width), against the double product and Higham's bound.
+void CheckAgainstDouble(const GemmKernel& kernel, const Case& c, Philox& rng) {
+  const std::string what = std::string(kernel.name) + " m=" + std::to_string(c.m) + " n=" +
+                           std::to_string(c.n) + " k=" + std::to_string(c.k) + " ta=" +
+                           std::to_string(c.ta) + " tb=" + std::to_string(c.tb);
+  const Matrix a_big = RandomMatrix((c.ta ? c.k : c.m) + 2, (c.ta ? c.m : c.k) + 3, rng);
+  const Matrix b_big = RandomMatrix((c.tb ? c.n : c.k) + 1, (c.tb ? c.k : c.n) + 5, rng);
+  Matrix c_big = RandomMatrix(c.m + 2, c.n + 7, rng);
+  const auto a = a_big.block(1, 2, c.ta ? c.k : c.m, c.ta ? c.m : c.k);
+  const auto b = b_big.block(1, 3, c.tb ? c.n : c.k, c.tb ? c.k : c.n);
+  const Matrix c_before = c_big;
+  GemmWithKernel(kernel, c.ta ? Transpose::kYes : Transpose::kNo,
+                 c.tb ? Transpose::kYes : Transpose::kNo, c.alpha, a, b, c.beta,
+                 c_big.block(1, 4, c.m, c.n));
+
+  const MatrixD op_a = c.ta ? MatrixD(a.cast<double>().transpose()) : MatrixD(a.cast<double>());
+  const MatrixD op_b = c.tb ? MatrixD(b.cast<double>().transpose()) : MatrixD(b.cast<double>());
+  const MatrixD exact = op_a * op_b;
+  const MatrixD magnitude = op_a.cwiseAbs() * op_b.cwiseAbs();
+  const double u = std::ldexp(1.0, -24), gamma = c.k * u / (1 - c.k * u);
+  for (int64_t i = 0; i < c.m; ++i) {
+    for (int64_t j = 0; j < c.n; ++j) {
+      const double c0 = c_before(1 + i, 4 + j);
+      const double want = c.alpha * exact(i, j) + c.beta * c0;
+      // The product's bound, scaled by alpha, plus one rounding for each of the scaling and the
+      // addition of beta C.
+      const double bound = std::abs(c.alpha) * gamma * magnitude(i, j) +
+                           3 * u * (std::abs(c.alpha * exact(i, j)) + std::abs(c.beta * c0)) + 1e-30;
+      ASSERT_LE(std::abs(c_big(1 + i, 4 + j) - want), bound) << what << " at " << i << "," << j;
+    }
+  }
+  // Nothing outside the C view was touched.
+  for (int64_t i = 0; i < c_big.rows(); ++i) {
+    for (int64_t j = 0; j < c_big.cols(); ++j) {
+      const bool inside = i >= 1 && i < 1 + c.m && j >= 4 && j < 4 + c.n;
+      if (!inside) {
+        ASSERT_EQ(c_big(i, j), c_before(i, j)) << what << " wrote outside C at " << i << "," << j;
+      }
+    }
+  }
+}
+
+TEST(GemmTest, EveryKernelMatchesTheDoubleProductWithinHighamsBound) {
+  Philox rng(11);
+  // Edges of every tile and block size: 1, below/at/above mr (4, 6, 12), nr (16, 32), the k block
+  // (256) and the row and column blocks (144, 512).
+  const int64_t ms[] = {1, 5, 12, 13, 145};
+  const int64_t ns[] = {1, 10, 16, 33, 520};
+  const int64_t ks[] = {1, 7, 256, 300};
+  for (const GemmKernel* kernel : KernelsHere()) {
+    for (int64_t m : ms) {
+      for (int64_t n : ns) {
+        for (int64_t k : ks) {
+          for (int t = 0; t < 4; ++t) {
+            CheckAgainstDouble(*kernel, {m, n, k, (t & 1) != 0, (t & 2) != 0, 1.0f, 0.0f}, rng);
+          }
+        }
+      }
+    }
+    CheckAgainstDouble(*kernel, {37, 70, 300, false, true, -0.5f, 1.0f}, rng);
+    CheckAgainstDouble(*kernel, {37, 70, 300, true, false, 2.0f, 0.25f}, rng);
+  }
+}
+
+TEST(GemmTest, BetaZeroDoesNotReadC) {
+  Philox rng(12);
+  const Matrix a = RandomMatrix(20, 30, rng), b = RandomMatrix(30, 40, rng);
+  for (const GemmKernel* kernel : KernelsHere()) {
+    Matrix c = Matrix::Constant(20, 40, std::numeric_limits<float>::quiet_NaN());
+    GemmWithKernel(*kernel, Transpose::kNo, Transpose::kNo, 1.0f, a, b, 0.0f, c);
+    EXPECT_TRUE(c.allFinite()) << kernel->name;
+  }
+}
+
+TEST(GemmTest, EmptyInnerDimensionScalesC) {
+  const Matrix a(3, 0), b(0, 4);
+  Matrix c = Matrix::Constant(3, 4, 2.0f);
+  Gemm(Transpose::kNo, Transpose::kNo, 1.0f, a, b, 0.5f, c);
+  EXPECT_EQ(c, Matrix::Constant(3, 4, 1.0f));
+  Gemm(Transpose::kNo, Transpose::kNo, 1.0f, a, b, 0.0f, c);
+  EXPECT_EQ(c, Matrix::Zero(3, 4));
+}
+
+// oneDNN's sgemm on the eight products of one training step of 784-512-512-10 at batch 128:
+// two float implementations agree to a few units in the last place of the magnitudes involved.
+TEST(GemmTest, AgreesWithOneDnnOnTrainingShapes) {
+  omp_set_num_threads(1);
+  struct Shape { bool ta, tb; int m, n, k; };
+  const Shape shapes[] = {{false, false, 128, 512, 784}, {false, false, 128, 512, 512},
+                          {false, false, 128, 10, 512},  {true, false, 784, 512, 128},
+                          {true, false, 512, 512, 128},  {true, false, 512, 10, 128},
+                          {false, true, 128, 512, 10},   {false, true, 128, 512, 512}};
+  Philox rng(13);
+  for (const Shape& s : shapes) {
+    const Matrix a = s.ta ? RandomMatrix(s.k, s.m, rng) : RandomMatrix(s.m, s.k, rng);
+    const Matrix b = s.tb ? RandomMatrix(s.n, s.k, rng) : RandomMatrix(s.k, s.n, rng);
+    Matrix ours(s.m, s.n), theirs(s.m, s.n);
+    Gemm(s.ta ? Transpose::kYes : Transpose::kNo, s.tb ? Transpose::kYes : Transpose::kNo, 1.0f,
+         a, b, 0.0f, ours);
+    ASSERT_EQ(dnnl_sgemm(s.ta ? 'T' : 'N', s.tb ? 'T' : 'N', s.m, s.n, s.k, 1.0f, a.data(),
+                         a.outerStride(), b.data(), b.outerStride(), 0.0f, theirs.data(),
+                         theirs.outerStride()),
+              dnnl_success);
+    // Entries are sums of k products of standard normals: magnitude about sqrt(k).
+    const double tolerance = 8 * std::ldexp(1.0, -24) * s.k * std::sqrt(static_cast<double>(s.k));
+    EXPECT_LE((ours - theirs).cwiseAbs().maxCoeff(), tolerance)
+        << "m=" << s.m << " n=" << s.n << " k=" << s.k;
+  }
+}
+
+// The fused SGD step (GemmSgdUpdate) against the product stored and then stepped entry by entry
+// with common/sgd.cc's SgdStep: the same bits, for every kernel, at tile edges and with k longer
+// than one packed block (partial sums through the scratch).
+TEST(GemmTest, FusedSgdStepGivesTheSameBitsAsProductThenSgdStep) {
+  Philox rng(15);
+  for (const GemmKernel* kernel : KernelsHere()) {
+    for (bool nesterov : {false, true}) {
+      for (int64_t k : {int64_t{40}, int64_t{600}}) {
+        const int64_t m = 45, n = 70;
+        const Matrix a = RandomMatrix(k, m, rng), b = RandomMatrix(k, n, rng);
+        const Matrix w0 = RandomMatrix(m, n, rng), v0 = RandomMatrix(m, n, rng);
+        OptimizerConfig opt;
+        opt.nesterov = nesterov;
+        const float lr = 0.03f;
+        // Separate: G stored, then SgdStep over it.
+        Matrix g(m, n), w_sep = w0, v_sep = v0;
+        GemmWithKernel(*kernel, Transpose::kYes, Transpose::kNo, 0.5f, a, b, 0.0f, g);
+        SgdStep(opt, lr, m * n, g.data(), w_sep.data(), v_sep.data());
+        // Fused.
+        Matrix scratch(m, n), w_fused = w0, v_fused = v0;
+        const SgdUpdate update{w_fused.data(), v_fused.data(), n, lr,
+                               static_cast<float>(opt.momentum),
+                               static_cast<float>(opt.weight_decay), opt.nesterov};
+        GemmWithKernel(*kernel, Transpose::kYes, Transpose::kNo, 0.5f, a, b, 0.0f, scratch, &update);
+        EXPECT_EQ(w_fused, w_sep) << kernel->name << " k=" << k << " nesterov " << nesterov;
+        EXPECT_EQ(v_fused, v_sep) << kernel->name << " k=" << k << " nesterov " << nesterov;
+      }
+    }
+  }
+}
+
+TEST(GemmTest, SameBitsOnRepeatAndOnAnotherThread) {
+  Philox rng(14);
+  const Matrix a = RandomMatrix(130, 600, rng), b = RandomMatrix(520, 600, rng);
+  Matrix first(130, 520), again(130, 520), elsewhere(130, 520);
+  Gemm(Transpose::kNo, Transpose::kYes, 1.0f, a, b, 0.0f, first);
+  Gemm(Transpose::kNo, Transpose::kYes, 1.0f, a, b, 0.0f, again);
+  std::thread([&] { Gemm(Transpose::kNo, Transpose::kYes, 1.0f, a, b, 0.0f, elsewhere); }).join();
+  EXPECT_EQ(first, again);
+  EXPECT_EQ(first, elsewhere);
+}
+
+}  // namespace
+}  // namespace chorus

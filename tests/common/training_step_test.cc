@@ -1,0 +1,108 @@
+// common/training_step.h: cutting a minibatch into parts changes only the rounding of the
+// gradient (the parts' gradients add up to the batch's: the loss is a sum over rows), the result
+// for a given number of parts does not depend on the threads that run them, and a non-finite
+// loss leaves the parameters alone.
+#include <gtest/gtest.h>
+#include <tbb/task_arena.h>
+
+#include <cmath>
+#include <limits>
+#include <vector>
+
+#include "common/mlp.h"
+#include "common/rng.h"
+#include "common/training_step.h"
+#include "worker/tbb_parallel_for.h"
+
+namespace chorus {
+namespace {
+
+constexpr int64_t kRows = 50;
+
+struct Batch {
+  Matrix x = Matrix(kRows, 20);
+  std::vector<int32_t> labels = std::vector<int32_t>(kRows);
+};
+
+Batch RandomBatch(uint64_t seed) {
+  Batch b;
+  Philox rng(seed);
+  for (int64_t i = 0; i < kRows; ++i) {
+    for (int64_t j = 0; j < b.x.cols(); ++j) b.x(i, j) = static_cast<float>(rng.NextNormal());
+    b.labels[i] = static_cast<int32_t>(rng.NextBelow(4));
+  }
+  return b;
+}
+
+const Mlp& Net() {
+  static const Mlp net({20, 32, 16, 4}, Activation::kTanh);
+  return net;
+}
+
+// Parameters after `steps` steps on fresh random batches, and the last step's loss.
+std::vector<float> Train(int parts, const ParallelFor* parallel, int steps, double* loss = nullptr,
+                         const OptimizerConfig& optimizer = OptimizerConfig{}) {
+  std::vector<float> params(Net().ParameterCount());
+  Net().Initialize(3, params.data());
+  TrainingStep step(Net(), Task::kClassification, optimizer, kRows, parts);
+  for (int s = 0; s < steps; ++s) {
+    const Batch b = RandomBatch(100 + s);
+    const double l = step.Run(b.x, b.labels.data(), nullptr, 0.1f, params.data(), parallel);
+    if (loss != nullptr) *loss = l;
+  }
+  return params;
+}
+
+TEST(TrainingStepTest, PartsAddUpToTheWholeBatchUpToRounding) {
+  double loss_whole = 0, loss_parts = 0;
+  const std::vector<float> whole = Train(1, nullptr, 1, &loss_whole);
+  const std::vector<float> parts = Train(4, nullptr, 1, &loss_parts);
+  EXPECT_NEAR(loss_parts, loss_whole, 1e-12 * std::abs(loss_whole) + 1e-12);
+  std::vector<float> start(Net().ParameterCount());
+  Net().Initialize(3, start.data());
+  double moved = 0, differ = 0;
+  for (size_t i = 0; i < whole.size(); ++i) {
+    moved = std::max(moved, static_cast<double>(std::abs(whole[i] - start[i])));
+    differ = std::max(differ, static_cast<double>(std::abs(whole[i] - parts[i])));
+  }
+  EXPECT_GT(moved, 1e-4);            // the step did something
+  EXPECT_LT(differ, 1e-5 * moved);   // and both ways did the same thing up to float rounding
+}
+
+TEST(TrainingStepTest, ResultDependsOnPartsNotOnThreads) {
+  const std::vector<float> serial = Train(3, nullptr, 4);
+  const TbbParallelFor parallel;
+  for (int threads : {1, 2, 4}) {
+    tbb::task_arena arena(threads);
+    std::vector<float> threaded;
+    arena.execute([&] { threaded = Train(3, &parallel, 4); });
+    EXPECT_EQ(threaded, serial) << threads << " threads";
+  }
+}
+
+// One part and no clipping takes the fused path (the update inside the backward pass); a clipping
+// threshold the gradient never reaches takes the separate one. Both must give the same bits.
+TEST(TrainingStepTest, FusedUpdateGivesTheSameBitsAsTheSeparateOne) {
+  for (bool nesterov : {false, true}) {
+    OptimizerConfig fused;
+    fused.nesterov = nesterov;
+    OptimizerConfig separate = fused;
+    separate.clip_norm = 1e30;
+    EXPECT_EQ(Train(1, nullptr, 5, nullptr, fused), Train(1, nullptr, 5, nullptr, separate))
+        << "nesterov " << nesterov;
+  }
+}
+
+TEST(TrainingStepTest, NonFiniteLossLeavesParametersAlone) {
+  std::vector<float> params(Net().ParameterCount());
+  Net().Initialize(3, params.data());
+  const std::vector<float> before = params;
+  Batch b = RandomBatch(7);
+  b.x(kRows - 1, 0) = std::numeric_limits<float>::quiet_NaN();
+  TrainingStep step(Net(), Task::kClassification, OptimizerConfig{}, kRows, 2);
+  EXPECT_FALSE(std::isfinite(step.Run(b.x, b.labels.data(), nullptr, 0.1f, params.data(), nullptr)));
+  EXPECT_EQ(params, before);
+}
+
+}  // namespace
+}  // namespace chorus
