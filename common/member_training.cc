@@ -4,6 +4,7 @@
 #include <cmath>
 #include <numeric>
 #include <string>
+#include <utility>
 
 #include "common/rng.h"
 #include "common/sgd.h"
@@ -148,7 +149,7 @@ Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& prog
     if (progress) progress({spec.index, spec.train.epochs + e + 1, epochs, loss.value()});
     if (cancel != nullptr && cancel->load()) return Status::Cancelled("stopped on request");
   }
-  result.basin = FitBasin(moments, b.method);
+  result.basin = FitBasin(std::move(moments), b.method);
   return Status::Ok();
 }
 
