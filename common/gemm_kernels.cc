@@ -7,6 +7,8 @@
 #include <immintrin.h>
 
 #include <algorithm>
+#include <array>
+#include <utility>
 
 #include "common/gemm_kernel.h"
 
@@ -199,52 +201,32 @@ void TilePortable(int64_t kc, const float* ap, const float* bp, int64_t ldb, flo
   }
 }
 
-// Row-count dispatch: the templates keep every accumulator in a register.
-template <int R>
-void TileAvx512Wide(int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha,
-                    float beta, float* c, int64_t ldc, int cols, const SgdUpdate* sgd) {
-  TileAvx512<R, true>(kc, ap, bp, ldb, alpha, beta, c, ldc, cols, sgd);
-}
-template <int R>
-void TileAvx512Narrow(int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha,
-                      float beta, float* c, int64_t ldc, int cols, const SgdUpdate* sgd) {
-  TileAvx512<R, false>(kc, ap, bp, ldb, alpha, beta, c, ldc, cols, sgd);
-}
+// Row-count dispatch: one instantiation per tile height keeps every accumulator in a register.
+using TileFn = void (*)(int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha,
+                        float beta, float* c, int64_t ldc, int cols, const SgdUpdate* sgd);
 
-#define CHORUS_ROW_CASE(N) \
-  case N: return Fn<N>(kc, ap, bp, ldb, alpha, beta, c, ldc, cols, sgd);
+template <bool kWide, size_t... kRows>
+constexpr std::array<TileFn, sizeof...(kRows)> Avx512Tiles(std::index_sequence<kRows...>) {
+  return {&TileAvx512<static_cast<int>(kRows) + 1, kWide>...};
+}
+template <size_t... kRows>
+constexpr std::array<TileFn, sizeof...(kRows)> Avx2Tiles(std::index_sequence<kRows...>) {
+  return {&TileAvx2<static_cast<int>(kRows) + 1>...};
+}
+constexpr auto kAvx512Wide = Avx512Tiles<true>(std::make_index_sequence<kMr512>{});
+constexpr auto kAvx512Narrow = Avx512Tiles<false>(std::make_index_sequence<kMr512>{});
+constexpr auto kAvx2 = Avx2Tiles(std::make_index_sequence<kMr256>{});
 
 void DispatchAvx512(int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha,
                     float beta, float* c, int64_t ldc, int rows, int cols, const SgdUpdate* sgd) {
-  if (cols <= 16) {
-    switch (rows) {
-#define Fn TileAvx512Narrow
-      CHORUS_ROW_CASE(1) CHORUS_ROW_CASE(2) CHORUS_ROW_CASE(3) CHORUS_ROW_CASE(4)
-      CHORUS_ROW_CASE(5) CHORUS_ROW_CASE(6) CHORUS_ROW_CASE(7) CHORUS_ROW_CASE(8)
-      CHORUS_ROW_CASE(9) CHORUS_ROW_CASE(10) CHORUS_ROW_CASE(11) CHORUS_ROW_CASE(12)
-#undef Fn
-    }
-    return;
-  }
-  switch (rows) {
-#define Fn TileAvx512Wide
-    CHORUS_ROW_CASE(1) CHORUS_ROW_CASE(2) CHORUS_ROW_CASE(3) CHORUS_ROW_CASE(4)
-    CHORUS_ROW_CASE(5) CHORUS_ROW_CASE(6) CHORUS_ROW_CASE(7) CHORUS_ROW_CASE(8)
-    CHORUS_ROW_CASE(9) CHORUS_ROW_CASE(10) CHORUS_ROW_CASE(11) CHORUS_ROW_CASE(12)
-#undef Fn
-  }
+  const auto& tiles = cols <= 16 ? kAvx512Narrow : kAvx512Wide;
+  tiles[rows - 1](kc, ap, bp, ldb, alpha, beta, c, ldc, cols, sgd);
 }
 
 void DispatchAvx2(int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha,
                   float beta, float* c, int64_t ldc, int rows, int cols, const SgdUpdate* sgd) {
-  switch (rows) {
-#define Fn TileAvx2
-    CHORUS_ROW_CASE(1) CHORUS_ROW_CASE(2) CHORUS_ROW_CASE(3)
-    CHORUS_ROW_CASE(4) CHORUS_ROW_CASE(5) CHORUS_ROW_CASE(6)
-#undef Fn
-  }
+  kAvx2[rows - 1](kc, ap, bp, ldb, alpha, beta, c, ldc, cols, sgd);
 }
-#undef CHORUS_ROW_CASE
 
 }  // namespace
 
