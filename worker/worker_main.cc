@@ -60,7 +60,10 @@ int main(int argc, char** argv) {
   o.cache_dir = DefaultCacheDir();
   app.add_option("--coordinator", o.connection.target, "HOST:PORT of the coordinator")->required();
   app.add_option("--token-file", token_file, "file holding the shared token (first line)")->required();
-  app.add_option("--slots", o.slots, "jobs to run at once")->check(CLI::Range(1, 1024))->capture_default_str();
+  app.add_option("--slots", o.slots,
+                 "jobs to run at once; also the threads a job's train.parts may use")
+      ->check(CLI::Range(1, 1024))
+      ->capture_default_str();
   app.add_option("--cache-dir", o.cache_dir, "where fetched data sets are cached by hash ('' = none)")
       ->capture_default_str();
   app.add_option("--tls-ca", o.connection.tls_ca, "PEM CA certificate to trust (enables TLS)");
