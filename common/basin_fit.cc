@@ -29,33 +29,20 @@ void SnapshotMoments::Add(const float* w) {
 }
 
 std::vector<float> SnapshotMoments::Variance() const {
-  std::vector<float> var(mean_.size(), 0.0f);
-  if (count_ < 2) return var;
-  const double inv_n = 1.0 / static_cast<double>(count_);
-  // var_i = M2_i / n
-  for (size_t i = 0; i < var.size(); ++i) var[i] = static_cast<float>(m2_[i] * inv_n);
+  std::vector<float> var(m2_.size());
+  for (size_t i = 0; i < var.size(); ++i) var[i] = VarianceFrom(m2_[i]);
   return var;
 }
 
 Matrix SnapshotMoments::Deviations() const {
-  const int64_t rows = std::min<int64_t>(count_, rank_);
-  const int64_t oldest = count_ >= rank_ ? next_row_ : 0;
+  const int64_t rows = HeldRows(), oldest = OldestRow();
   Matrix out(rows, ring_.cols());
   for (int64_t r = 0; r < rows; ++r) out.row(r) = ring_.row((oldest + r) % rank_);
   return out;
 }
 
 BasinFit FitBasin(const SnapshotMoments& moments, BasinMethod method) {
-  BasinFit fit;
-  fit.method = method;
-  fit.mean = moments.mean();
-  if (method == BasinMethod::kNone) return fit;
-  fit.variance = moments.Variance();
-  if (method == BasinMethod::kGaussianLowRank) {
-    fit.deviations = moments.Deviations();
-    assert(fit.deviations.rows() >= 2 && "kGaussianLowRank needs at least 2 deviations");
-  }
-  return fit;
+  return FitBasin(SnapshotMoments(moments), method);
 }
 
 BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method) {
@@ -63,15 +50,12 @@ BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method) {
   fit.method = method;
   if (method != BasinMethod::kNone) {
     fit.variance = std::move(moments.m2_);
-    const double inv_n = 1.0 / static_cast<double>(moments.count_);
-    // var_i = M2_i / n, as Variance() computes it (0 before 2 snapshots)
-    for (float& v : fit.variance) v = moments.count_ < 2 ? 0.0f : static_cast<float>(v * inv_n);
+    for (float& v : fit.variance) v = moments.VarianceFrom(v);
   }
   if (method == BasinMethod::kGaussianLowRank) {
     Matrix& ring = moments.ring_;
-    const int64_t rows = std::min<int64_t>(moments.count_, moments.rank_);
-    const int64_t oldest = moments.count_ >= moments.rank_ ? moments.next_row_ : 0;
-    // Deviations(): row r of the fit is ring row (oldest + r) mod rank; a rotation of whole rows.
+    const int64_t rows = moments.HeldRows(), oldest = moments.OldestRow();
+    // As Deviations(): row r of the fit is ring row (oldest + r) mod rank; a rotation of rows.
     std::rotate(ring.data(), ring.data() + oldest * ring.cols(), ring.data() + ring.size());
     ring.conservativeResize(rows, ring.cols());
     fit.deviations = std::move(ring);

@@ -7,6 +7,7 @@
 // DrawBasinSample is reentrant.
 #pragma once
 
+#include <algorithm>
 #include <cstdint>
 #include <vector>
 
@@ -38,6 +39,13 @@ class SnapshotMoments {
  private:
   friend BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method);
 
+  // var_i = M2_i / count, 0 before 2 snapshots.
+  float VarianceFrom(float m2) const {
+    return count_ < 2 ? 0.0f : static_cast<float>(m2 * (1.0 / static_cast<double>(count_)));
+  }
+  int64_t HeldRows() const { return std::min<int64_t>(count_, rank_); }
+  int64_t OldestRow() const { return count_ >= rank_ ? next_row_ : 0; }
+
   int64_t count_ = 0;
   int rank_;
   std::vector<float> mean_, m2_;
@@ -56,14 +64,13 @@ struct BasinFit {
   Matrix deviations;            // R x dim; empty unless kGaussianLowRank
 };
 
-// Builds the fit from the moments. kGaussianLowRank needs at least 2 deviations (R >= 2).
-BasinFit FitBasin(const SnapshotMoments& moments, BasinMethod method);
-
-// The same fit, bit for bit, made from the moments' own storage instead of copies: the mean is
-// moved, the variance computed in place of the squared-deviation sums and the ring of deviations
-// rotated in place to oldest-first. Peak memory stays (rank + 2) x parameters floats instead of
-// twice that. `moments` is left empty (count 0, dim 0).
+// Builds the fit from the moments' own storage instead of copies: the mean is moved, the variance
+// computed in place of the squared-deviation sums and the ring of deviations rotated in place to
+// oldest-first, so peak memory stays (rank + 2) x parameters floats. `moments` is left empty
+// (count 0, dim 0). kGaussianLowRank needs at least 2 deviations (R >= 2).
 BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method);
+// The same fit from a copy of the moments.
+BasinFit FitBasin(const SnapshotMoments& moments, BasinMethod method);
 
 // Writes one weight sample into out (dim floats), a pure function of (fit, seed, scale):
 //   diag:    w = mean + sqrt(scale) * sqrt(variance) .* z1

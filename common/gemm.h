@@ -9,6 +9,7 @@
 #pragma once
 
 #include "common/matrix.h"
+#include "common/sgd.h"
 
 namespace chorus {
 
@@ -18,18 +19,6 @@ enum class Transpose { kNo, kYes };
 // (NaN in C does not propagate). Requires matching shapes (debug-asserted) and C not aliasing A/B.
 void Gemm(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
           const ConstMatrixRef& b, float beta, MatrixRef c);
-
-// An SGD step with momentum applied to a product instead of storing it (common/sgd.h's formula,
-// computed with the same float operations, so the same bits as SgdStep on the stored product):
-//   d = G + weight_decay W;  V <- momentum V + d;  W <- W - lr (nesterov ? d + momentum V : V).
-// w and v are laid out like the product (row-major, ld floats apart).
-struct SgdUpdate {
-  float* w;
-  float* v;
-  int64_t ld;
-  float lr, momentum, weight_decay;
-  bool nesterov;
-};
 
 // G = alpha * op(A) * op(B), applied to `update` as an SGD step tile by tile while each tile of G
 // is still in registers: G itself is never written out, except that `scratch` (m x n) holds

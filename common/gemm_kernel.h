@@ -28,18 +28,6 @@ struct GemmKernel {
                     int64_t ld_dst);
 };
 
-// The SGD step of common/gemm.h on `count` consecutive entries of gradient g, weights w and
-// momentum v, in scalar float arithmetic (the project builds with -ffp-contract=off, so these are
-// the same operations as SgdStep's and as the vector kernels').
-inline void SgdEntries(const SgdUpdate& u, const float* g, float* w, float* v, int64_t count) {
-  for (int64_t j = 0; j < count; ++j) {
-    const float d = g[j] + u.weight_decay * w[j];
-    const float nv = u.momentum * v[j] + d;
-    v[j] = nv;
-    w[j] -= u.lr * (u.nesterov ? d + u.momentum * nv : nv);
-  }
-}
-
 // nullptr when this CPU lacks the instructions (AVX-512F; AVX2 with FMA).
 const GemmKernel* Avx512Kernel();
 const GemmKernel* Avx2Kernel();

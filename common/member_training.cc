@@ -98,11 +98,16 @@ Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef&
                       int64_t batch_rows) {
   Matrix out(x.rows(), net.widths().back());
   Mlp::Workspace ws = net.MakeWorkspace(std::min<int64_t>(batch_rows, std::max<int64_t>(x.rows(), 1)));
+  PredictOutputsInto(net, params, x, batch_rows, ws, out);
+  return out;
+}
+
+void PredictOutputsInto(const Mlp& net, const float* params, const ConstMatrixRef& x,
+                        int64_t batch_rows, Mlp::Workspace& ws, MatrixRef out) {
   for (int64_t start = 0; start < x.rows(); start += batch_rows) {
     const int64_t rows = std::min(batch_rows, x.rows() - start);
     out.middleRows(start, rows) = net.Forward(params, x.middleRows(start, rows), ws);
   }
-  return out;
 }
 
 std::vector<const Matrix*> MemberResult::ValidationSamples() const {

@@ -75,5 +75,9 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
 // Network outputs for every row of x, computed in batches of `batch_rows` to bound memory.
 Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef& x,
                       int64_t batch_rows = 1024);
+// The same into the caller's buffers, allocating nothing: out is x.rows() x outputs, ws holds
+// activations for at least batch_rows rows.
+void PredictOutputsInto(const Mlp& net, const float* params, const ConstMatrixRef& x,
+                        int64_t batch_rows, Mlp::Workspace& ws, MatrixRef out);
 
 }  // namespace chorus

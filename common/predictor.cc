@@ -1,6 +1,5 @@
 #include "common/predictor.h"
 
-#include <algorithm>
 #include <cassert>
 #include <cmath>
 
@@ -82,16 +81,10 @@ Matrix Predictor::ComponentOutputs(int64_t c, const ConstMatrixRef& x) const {
   return PredictOutputs(net_, samples_[static_cast<size_t>(c)].data(), x, kBatchRows);
 }
 
-// The loop of PredictOutputs (common/member_training.cc) over the caller's buffers: the same
-// Forward on the same row ranges, so the same bits.
 void Predictor::ComponentOutputsInto(int64_t c, const ConstMatrixRef& x, Mlp::Workspace& ws,
                                      MatrixRef out) const {
   assert(out.rows() == x.rows() && out.cols() == Outputs());
-  const float* params = samples_[static_cast<size_t>(c)].data();
-  for (int64_t start = 0; start < x.rows(); start += kBatchRows) {
-    const int64_t rows = std::min(kBatchRows, x.rows() - start);
-    out.middleRows(start, rows) = net_.Forward(params, x.middleRows(start, rows), ws);
-  }
+  PredictOutputsInto(net_, samples_[static_cast<size_t>(c)].data(), x, kBatchRows, ws, out);
 }
 
 Prediction Predictor::Combine(const std::vector<Matrix>& outputs) const {

@@ -4,25 +4,20 @@
 
 namespace chorus {
 
+void SgdEntries(const SgdUpdate& u, const float* g, float* w, float* v, int64_t count) {
+  for (int64_t j = 0; j < count; ++j) {
+    const float d = g[j] + u.weight_decay * w[j];
+    const float nv = u.momentum * v[j] + d;
+    v[j] = nv;
+    w[j] -= u.lr * (u.nesterov ? d + u.momentum * nv : nv);
+  }
+}
+
 void SgdStep(const OptimizerConfig& opt, float lr, int64_t n, const float* g, float* w,
              float* velocity) {
-  const float wd = static_cast<float>(opt.weight_decay), mu = static_cast<float>(opt.momentum);
-  // Two loops rather than a branch per element, so each vectorises.
-  if (opt.nesterov) {
-    for (int64_t i = 0; i < n; ++i) {
-      const float d = g[i] + wd * w[i];
-      const float v = mu * velocity[i] + d;
-      velocity[i] = v;
-      w[i] -= lr * (d + mu * v);
-    }
-  } else {
-    for (int64_t i = 0; i < n; ++i) {
-      const float d = g[i] + wd * w[i];
-      const float v = mu * velocity[i] + d;
-      velocity[i] = v;
-      w[i] -= lr * v;
-    }
-  }
+  const SgdUpdate u{w, velocity, n, lr, static_cast<float>(opt.momentum),
+                    static_cast<float>(opt.weight_decay), opt.nesterov};
+  SgdEntries(u, g, w, velocity, n);
 }
 
 double ClipGradientNorm(float* g, int64_t n, double max_norm) {

@@ -8,6 +8,23 @@
 
 namespace chorus {
 
+// An SGD step with momentum at given rates, on weights W and momentum V laid out row-major, ld
+// floats apart (GemmSgdUpdate applies it to a product's tiles, common/gemm.h):
+//   d = G + weight_decay W;  V <- momentum V + d;  W <- W - lr (nesterov ? d + momentum V : V).
+// w and v are laid out like the product (row-major, ld floats apart).
+struct SgdUpdate {
+  float* w;
+  float* v;
+  int64_t ld;
+  float lr, momentum, weight_decay;
+  bool nesterov;
+};
+
+// The step of SgdUpdate on `count` consecutive entries of gradient g, weights w and momentum v
+// (u.w, u.v and u.ld are not used). The one loop every SGD update in chorus runs; the project
+// builds with -ffp-contract=off, so the vector kernels' multiplies and adds give the same bits.
+void SgdEntries(const SgdUpdate& u, const float* g, float* w, float* v, int64_t count);
+
 // One update of n parameters, PyTorch's SGD convention (torch.optim.SGD, v1.13):
 //   d = g + wd * w;  v <- mu * v + d;  step = nesterov ? d + mu * v : v;  w <- w - lr * step.
 // velocity starts at zero. g is the (already clipped) gradient.
