@@ -176,17 +176,26 @@ std::string TunedName(const json& report, const char* symbol) {
   return std::string("tuned ") + symbol + " = " + FormatFixed(report["temperature"], 3);
 }
 
-std::string ReliabilityFigures(const json& report) {
-  const json& r = report["reliability"];
+// A calibration chart on the unit square: observed against nominal, the diagonal as the ideal,
+// before and after the tuned temperature or scale.
+LineChartSpec CalibrationChart(std::string title, std::string x_label, std::string y_label,
+                               LineSeries before, LineSeries after) {
   LineChartSpec spec;
-  spec.title = "Reliability diagram of the ensemble on test";
-  spec.x_label = "mean top-label confidence in bin";
-  spec.y_label = "accuracy in bin";
+  spec.title = std::move(title);
+  spec.x_label = std::move(x_label);
+  spec.y_label = std::move(y_label);
   spec.x_range = spec.y_range = std::make_pair(0.0, 1.0);
   spec.identity_label = "perfectly calibrated";
-  spec.series = {
-      ReliabilitySeries(r["uncalibrated"], "T = 1", kUncalibratedColour, true),
-      ReliabilitySeries(r["calibrated"], TunedName(report, "T"), kCalibratedColour, false)};
+  spec.series = {std::move(before), std::move(after)};
+  return spec;
+}
+
+std::string ReliabilityFigures(const json& report) {
+  const json& r = report["reliability"];
+  const LineChartSpec spec = CalibrationChart(
+      "Reliability diagram of the ensemble on test", "mean top-label confidence in bin",
+      "accuracy in bin", ReliabilitySeries(r["uncalibrated"], "T = 1", kUncalibratedColour, true),
+      ReliabilitySeries(r["calibrated"], TunedName(report, "T"), kCalibratedColour, false));
   BarChartSpec counts;
   counts.title = "Test predictions per confidence bin";
   counts.x_label = "top-label confidence";
@@ -218,15 +227,11 @@ LineSeries CoverageSeries(const json& levels, std::string name, const char* colo
 
 std::string IntervalCoverageFigure(const json& report) {
   const json& c = report["interval_coverage"];
-  LineChartSpec spec;
-  spec.title = "Coverage of central predictive intervals on test";
-  spec.x_label = "nominal coverage of the central interval";
-  spec.y_label = "observed share of test targets inside";
-  spec.x_range = spec.y_range = std::make_pair(0.0, 1.0);
-  spec.identity_label = "perfectly calibrated";
-  spec.series = {
+  const LineChartSpec spec = CalibrationChart(
+      "Coverage of central predictive intervals on test", "nominal coverage of the central interval",
+      "observed share of test targets inside",
       CoverageSeries(c["uncalibrated"], "scale 1", kUncalibratedColour, true),
-      CoverageSeries(c["calibrated"], TunedName(report, "scale"), kCalibratedColour, false)};
+      CoverageSeries(c["calibrated"], TunedName(report, "scale"), kCalibratedColour, false));
   return Figure(
       LineChart(spec),
       "<strong>Interval calibration</strong> (the regression counterpart of a reliability "
