@@ -42,17 +42,15 @@ __attribute__((target("avx512f"))) void TileAvx512(int64_t kc, const float* ap, 
                                                    int64_t ldb, float alpha, float beta, float* c,
                                                    int64_t ldc, int cols, const SgdUpdate* sgd) {
   if (sgd != nullptr) {
-    // The weights and momentum this tile will update: fetched while the k loop runs, as nothing
-    // streams them in order the way a separate SGD pass would.
+    // The weights and momentum of the next tile in these rows (the driver walks update tiles
+    // along rows): fetched while this tile's k loop runs.
     for (int r = 0; r < R; ++r) {
-      const float* w = sgd->w + r * sgd->ld;
-      const float* v = sgd->v + r * sgd->ld;
+      const float* w = sgd->w + r * sgd->ld + kNr512;
+      const float* v = sgd->v + r * sgd->ld + kNr512;
       _mm_prefetch(reinterpret_cast<const char*>(w), _MM_HINT_T0);
       _mm_prefetch(reinterpret_cast<const char*>(v), _MM_HINT_T0);
-      if (kWide) {
-        _mm_prefetch(reinterpret_cast<const char*>(w + 16), _MM_HINT_T0);
-        _mm_prefetch(reinterpret_cast<const char*>(v + 16), _MM_HINT_T0);
-      }
+      _mm_prefetch(reinterpret_cast<const char*>(w + 16), _MM_HINT_T0);
+      _mm_prefetch(reinterpret_cast<const char*>(v + 16), _MM_HINT_T0);
     }
   }
   __m512 acc0[R], acc1[R];
