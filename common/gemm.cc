@@ -55,15 +55,8 @@ void PackAStrip(const GemmKernel& kernel, const float* base, int64_t lda, bool t
     }
     return;
   }
-  // op(A)(i, p) = A(i, p): a transpose of the rows x kc block. A full strip of 12 rows goes as
-  // rows 0-7 and rows 4-11 (the overlap written twice, with the same values), so that the
-  // vectorised transpose sees whole 8-row blocks.
+  // op(A)(i, p) = A(i, p): a transpose of the rows x kc block.
   const float* src = base + row0 * lda + p0;
-  if (rows == kMr && kMr > 8 && kMr < 16) {
-    kernel.transpose(src, lda, 8, kc, out, kMr);
-    kernel.transpose(src + (kMr - 8) * lda, lda, 8, kc, out + kMr - 8, kMr);
-    return;
-  }
   kernel.transpose(src, lda, rows, kc, out, kMr);
   for (int64_t p = 0; p < kc; ++p) {
     for (int r = rows; r < kMr; ++r) out[p * kMr + r] = 0.0f;

@@ -111,6 +111,29 @@ TEST(GemmTest, EveryKernelMatchesTheDoubleProductWithinHighamsBound) {
   }
 }
 
+// The packing transposes (8 x 8 and 4 x 8 blocks, element-wise edges) against the definition,
+// dst[q * ld_dst + r] = src[r * ld_src + q], on every row count up to 17 and column counts around
+// the block width; entries of dst outside the transposed block stay untouched.
+TEST(GemmTest, EveryKernelsTransposeMatchesTheDefinition) {
+  Philox rng(13);
+  const Matrix src = RandomMatrix(17, 40, rng);
+  for (const GemmKernel* kernel : KernelsHere()) {
+    for (int rows = 1; rows <= 17; ++rows) {
+      for (int64_t cols : {1, 7, 8, 9, 16, 31, 33}) {
+        Matrix dst = Matrix::Constant(cols + 1, 20, -1.0f);
+        kernel->transpose(src.data(), src.cols(), rows, cols, dst.data(), dst.cols());
+        for (int64_t q = 0; q <= cols; ++q) {
+          for (int r = 0; r < 20; ++r) {
+            const float want = q < cols && r < rows ? src(r, q) : -1.0f;
+            ASSERT_EQ(dst(q, r), want) << kernel->name << " rows=" << rows << " cols=" << cols
+                                       << " at (" << q << ", " << r << ")";
+          }
+        }
+      }
+    }
+  }
+}
+
 TEST(GemmTest, BetaZeroDoesNotReadC) {
   Philox rng(12);
   const Matrix a = RandomMatrix(20, 30, rng), b = RandomMatrix(30, 40, rng);
