@@ -3,13 +3,17 @@ BENCHMARKS.md, replacing what lies between its markers (BEGIN and END below).
 
 Input: the lines bench/run recorded, one measurement each: a kind, then KEY=VALUE fields (a value
 with spaces in double quotes), every line ending in load_before=L load_after=L (1-minute load
-averages around it). Kinds read here: machine, gemm-machine, gemm-limit, chorus, torch,
-chorus-predict, worker-memory; every line also goes into the raw listing at the end.
+averages around it). Kinds read here: machine, gemm-machine, gemm-limit, gemm-sequence, chorus,
+torch, chorus-predict, worker-memory; every line also goes into the raw listing at the end.
+GEMM-limit and chorus lines may carry round=R: bench/run measures that pair several times, and
+each figure is the median over rounds, each ratio of the two the median of the within-round ratios
+(a line without a round is round 1).
 Every "met" is computed from the figures; a figure the run did not produce reads "not measured".
 Usage: report.py RAW_FILE [--markdown BENCHMARKS.md]
 """
 import argparse
 import shlex
+import statistics
 import sys
 
 BEGIN = "<!-- bench/run:begin -->"
@@ -71,6 +75,23 @@ def ratio(a, b):
     return None if a is None or b is None else a / b
 
 
+def median(values):
+    values = [v for v in values if v is not None]
+    return statistics.median(values) if values else None
+
+
+def spread(values):
+    """' (lo-hi over N rounds)' for more than one value, else ''."""
+    values = [v for v in values if v is not None]
+    if len(values) < 2:
+        return ""
+    return f" ({min(values):,.0f}-{max(values):,.0f} over {len(values)} rounds)"
+
+
+def round_of(fields):
+    return fields.get("round", "1")
+
+
 def times(x):
     return "not measured" if x is None else f"{x:.2f}x"
 
@@ -101,19 +122,54 @@ class Report:
 
     # --- figures ---
 
-    def gemm(self, batch):
-        """{backend: gemm-limit fields} at this batch."""
-        return {f["backend"]: f for f in select(self.records, "gemm-limit", batch=batch)}
+    def sequence(self, batch):
+        """{backend: median over rounds of the back-to-back rate} at this batch."""
+        out = {}
+        for f in select(self.records, "gemm-sequence", batch=batch):
+            out.setdefault(f["backend"], []).append(float(f["samples_per_s"]))
+        return {name: median(rates) for name, rates in out.items()}
 
-    def limit(self, batch):
-        """The GEMM limit: the fastest backend measured on the step's products; (rate, backend)."""
-        best = max(self.gemm(batch).values(), key=lambda f: float(f["samples_per_s"]),
-                   default=None)
+    def sequence_in(self, batch, rnd):
+        """The faster back-to-back rate of one round, or None."""
+        return max((float(f["samples_per_s"]) for f in select(self.records, "gemm-sequence",
+                                                                batch=batch)
+                    if round_of(f) == rnd), default=None)
+
+    def rounds(self, batch):
+        return sorted({round_of(f) for kind in ("gemm-limit", "chorus")
+                       for f in select(self.records, kind, batch=batch)}, key=int)
+
+    def gemm(self, batch, rnd=None):
+        """{backend: [gemm-limit fields, one per round]} at this batch (one round if rnd given)."""
+        out = {}
+        for f in select(self.records, "gemm-limit", batch=batch):
+            if rnd is None or round_of(f) == rnd:
+                out.setdefault(f["backend"], []).append(f)
+        return out
+
+    def limit_in(self, batch, rnd):
+        """The GEMM limit of one round: the fastest backend on the step's products; (rate, name)."""
+        best = max((f for fs in self.gemm(batch, rnd).values() for f in fs),
+                   key=lambda f: float(f["samples_per_s"]), default=None)
         return (None, None) if best is None else (float(best["samples_per_s"]), best["backend"])
 
+    def limit(self, batch):
+        """(median over rounds of the limit, the backends that gave it, the per-round limits)."""
+        per_round = [self.limit_in(batch, r) for r in self.rounds(batch)]
+        rates = [x for x, _ in per_round if x is not None]
+        backends = "/".join(sorted({name for _, name in per_round if name is not None}))
+        return median(rates), backends or None, rates
+
+    def chorus_in(self, batch, threads, rnd):
+        found = [f for f in select(self.records, "chorus", batch=batch, threads=threads)
+                 if round_of(f) == rnd]
+        return num(found[0], "samples_per_s") if found else None
+
     def chorus(self, batch, threads):
+        """(median over rounds, the per-round rates, the lines)."""
         found = select(self.records, "chorus", batch=batch, threads=threads)
-        return (num(found[0], "samples_per_s") if found else None), found
+        rates = [self.chorus_in(batch, threads, r) for r in self.rounds(batch)]
+        return median(rates), rates, found
 
     def torch(self, batch, malloc, procs):
         found = select(self.records, "torch", batch=batch, group=f"b{batch}-{malloc}-{procs}")
@@ -168,31 +224,46 @@ class Report:
             g = self.gemm(b)
 
             def cell(name):
-                f = g.get(name)
-                return "not measured" if f is None else \
-                    f"{float(f['samples_per_s']):,.0f} ({float(f['gflops']):.0f} GFLOP/s)"
-            lim, backend = self.limit(b)
+                fs = g.get(name)
+                if not fs:
+                    return "not measured"
+                rates = [float(f["samples_per_s"]) for f in fs]
+                gflops = median([float(f["gflops"]) for f in fs])
+                return f"{median(rates):,.0f} ({gflops:.0f} GFLOP/s)"
+            lim, backend, rates = self.limit(b)
+            seq = self.sequence(b)
             rows.append((b, cell("onednn"), cell("chorus"), cell("eigen"),
-                         f"{rate(lim)} ({backend})", loads(g.values())))
+                         f"{rate(lim)} ({backend}){spread(rates)}",
+                         f"{rate(seq.get('onednn'))} / {rate(seq.get('chorus'))}",
+                         loads([f for fs in g.values() for f in fs])))
         return ("### GEMM limit (samples/s, one thread)\n\n"
                 "The eight products of one training step, each timed alone, summed; limit = "
-                "batch / that sum, from the fastest backend.\n\n"
+                "batch / that sum, from the fastest backend; the median over the rounds. "
+                "\"Back to back\": the same eight products run one after the other on chained "
+                "buffers, as a step runs them, so that operands are no longer hot in cache "
+                "(for information; the targets use the limit).\n\n"
                 + table(("batch", "oneDNN dnnl_sgemm", "chorus::Gemm", "Eigen (as built)",
-                         "limit", "load"), rows))
+                         "limit", "back to back, oneDNN / chorus", "load"), rows))
 
     def training_section(self):
         one, two = [], []
         for b in self.batches:
-            lim, _ = self.limit(b)
-            c1, c1f = self.chorus(b, 1)
-            c2, c2f = self.chorus(b, 2)
+            lim, _, _ = self.limit(b)
+            c1, c1r, c1f = self.chorus(b, 1)
+            c2, c2r, c2f = self.chorus(b, 2)
+            limits = [self.limit_in(b, r)[0] for r in self.rounds(b)]
+            sequences = [self.sequence_in(b, r) for r in self.rounds(b)]
             t1d, t1df = self.torch(b, "default", 1)
             t1t, t1tf = self.torch(b, "tuned", 1)
             t2d, t2df = self.torch(b, "default", 2)
             t2t, t2tf = self.torch(b, "tuned", 2)
             t1 = max((x for x in (t1d, t1t) if x is not None), default=None)
             t2 = max((x for x in (t2d, t2t) if x is not None), default=None)
-            pct, r1, r2, scaling = ratio(c1, lim), ratio(c1, t1), ratio(c2, t2), ratio(c2, c1)
+            # within-round ratios, then their median: each round's pair saw about the same load
+            pct = median([ratio(c, x) for c, x in zip(c1r, limits)])
+            pct_seq = median([ratio(c, x) for c, x in zip(c1r, sequences)])
+            scaling = median([ratio(c, x) for c, x in zip(c2r, c1r)])
+            r1, r2 = ratio(c1, t1), ratio(c2, t2)
             required = 1.3 if b == 128 else 1.5
             if b == 128:
                 pct_cell = self.target("batch 128, 1 thread: chorus / GEMM limit", pct, 0.85,
@@ -205,12 +276,16 @@ class Report:
                                   lambda x: f"{x:.2f}x")
             scaling_cell = self.target(f"batch {b}: chorus 2 members at once / 1", scaling, 1.9,
                                        lambda x: f"{x:.2f}x")
-            one.append((b, rate(lim), rate(c1), pct_cell, rate(t1d), rate(t1t), r1_cell,
+            one.append((b, rate(lim), rate(c1) + spread(c1r), pct_cell,
+                        "not measured" if pct_seq is None else f"{pct_seq:.1%}", rate(t1d), rate(t1t), r1_cell,
                         loads(c1f, t1df, t1tf)))
-            two.append((b, rate(c2), scaling_cell, rate(t2d), rate(t2t), r2_cell,
+            two.append((b, rate(c2) + spread(c2r), scaling_cell, rate(t2d), rate(t2t), r2_cell,
                         loads(c2f, t2df, t2tf)))
         return ("### Training, one thread (samples/s)\n\n"
+                "chorus: the median over the rounds; % of limit and 2 vs 1: the median of the "
+                "ratios within each round. PyTorch: one measurement.\n\n"
                 + table(("batch", "GEMM limit", "chorus, 1 member", "% of limit",
+                         "% of back to back",
                          "PyTorch, default malloc", "PyTorch, tuned malloc",
                          "chorus / best PyTorch", "load"), one)
                 + "\n\n### Training, two at once (samples/s)\n\n"
