@@ -4,7 +4,7 @@ BENCHMARKS.md, replacing what lies between its markers (BEGIN and END below).
 Input: the lines bench/run recorded, one measurement each: a kind, then KEY=VALUE fields (a value
 with spaces in double quotes), every line ending in load_before=L load_after=L (1-minute load
 averages around it). Kinds read here: machine, gemm-machine, gemm-limit, gemm-sequence, chorus,
-torch, chorus-predict, worker-memory; every line also goes into the raw listing at the end.
+chorus-step, torch, chorus-predict, worker-memory; every line also goes into the raw listing at the end.
 GEMM-limit and chorus lines may carry round=R: bench/run measures that pair several times, and
 each figure is the median over rounds, each ratio of the two the median of the within-round ratios
 (a line without a round is round 1).
@@ -293,6 +293,32 @@ class Report:
                          "PyTorch 2 processes, default malloc", "PyTorch 2 processes, tuned malloc",
                          "chorus / best PyTorch", "load"), two))
 
+    def step_section(self):
+        pieces = [("products", "the eight products back to back"),
+                  ("backward", "+ bias, activation, head, bias gradients"),
+                  ("step", "+ SGD step (fused into the weight-gradient tiles)"),
+                  ("gather_step", "+ gathering the minibatch"),
+                  ("step_split", "for comparison: backward, then a separate SGD pass")]
+        rows = []
+        for b in self.batches:
+            found = {f["piece"]: f for f in select(self.records, "chorus-step", batch=b)}
+            if not found:
+                continue
+            for piece, what in pieces:
+                f = found.get(piece)
+                if f is None:
+                    continue
+                rows.append((b, what, f"{num(f, 'median_us'):,.0f}", f"{num(f, 'best_us'):,.0f}",
+                             rate(num(f, "samples_per_s")), loads([f])))
+        if not rows:
+            return "### Where a step's time goes\n\nNot measured in this run."
+        return ("### Where a step's time goes (one thread)\n\n"
+                "chorus-bench-step: each piece adds work to the one above, all timed in turn in "
+                "one process (30 blocks of about 2048 samples each), so that a slow spell of the "
+                "machine falls on all of them alike. samples/s from the median.\n\n"
+                + table(("batch", "piece", "median us per step", "best us", "samples/s", "load"),
+                        rows))
+
     def predict_section(self):
         rows = []
         for f in select(self.records, "chorus-predict"):
@@ -327,7 +353,7 @@ class Report:
 
     def render(self):
         sections = [self.machine_section(), self.gemm_section(), self.training_section(),
-                    self.predict_section()]
+                    self.step_section(), self.predict_section()]
         sections.append("### Targets (issue 6)\n\n"
                         + table(("target", "measured", "required", "met"), self.targets))
         raw = "\n".join(line for _, _, line in self.records)

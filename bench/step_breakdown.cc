@@ -1,0 +1,176 @@
+// chorus-bench-step: where one training step's time goes, 784-512-512-10 at batch B, one thread.
+//
+// Five pieces of work, each adding something to the one before, timed in one process and taken
+// in turn a block of about 2048 samples at a time (30 blocks each), so that a slow spell of the
+// machine falls on all of them alike; separate processes minutes apart differ by up to 30% on a
+// shared virtual machine, more than the differences measured here.
+//   products:    the eight matrix products of a step, back to back on chained buffers
+//                (chorus::Gemm; the same as chorus-bench-gemm's gemm-sequence);
+//   backward:    Mlp::Forward, the softmax cross-entropy head and Mlp::Backward, the gradient
+//                written out (adds bias, activation, head, bias gradients);
+//   step:        TrainingStep::Run, one part: the SGD step fused into the weight-gradient tiles
+//                (adds reading and writing weights and momentum);
+//   step_split:  backward, then SgdStep over all parameters (the unfused order, for comparison);
+//   gather_step: the minibatch's rows copied from a shuffled 8192-row matrix, then step (what
+//                TrainMember does per step, less the schedule).
+// Usage: chorus-bench-step [BATCH...]   (default 32 128 512)
+// Output, per batch and piece:
+//   chorus-step batch=B piece=NAME median_us=T best_us=T samples_per_s=R   (R from the median)
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <cstdlib>
+#include <functional>
+#include <numeric>
+#include <vector>
+
+#include "common/gemm.h"
+#include "common/heads.h"
+#include "common/mlp.h"
+#include "common/rng.h"
+#include "common/sgd.h"
+#include "common/training_step.h"
+
+namespace chorus {
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+constexpr int64_t kRows = 8192;  // the training matrix the minibatches are gathered from
+constexpr int kFeatures = 784, kClasses = 10;
+constexpr int kBlocks = 30;
+constexpr int64_t kSamplesPerBlock = 2048;
+
+Matrix RandomNormal(int64_t rows, int64_t cols, Philox& rng) {
+  Matrix m(rows, cols);
+  for (int64_t i = 0; i < rows; ++i) {
+    for (int64_t j = 0; j < cols; ++j) m(i, j) = static_cast<float>(rng.NextNormal());
+  }
+  return m;
+}
+
+// The buffers of the products piece, chained as a step chains them.
+struct ProductBuffers {
+  std::vector<Matrix> w, z, dz, dw;  // per layer: W_l, Z_l (the next layer's input), dZ_l, dW_l
+  ProductBuffers(const std::vector<int>& widths, int64_t b, Philox& rng) {
+    for (size_t l = 0; l + 1 < widths.size(); ++l) {
+      w.push_back(RandomNormal(widths[l], widths[l + 1], rng));
+      z.push_back(RandomNormal(b, widths[l + 1], rng));
+      dz.push_back(RandomNormal(b, widths[l + 1], rng));
+      dw.push_back(RandomNormal(widths[l], widths[l + 1], rng));
+    }
+  }
+  void Run(const Matrix& x) {
+    const auto input = [&](size_t l) -> const Matrix& { return l == 0 ? x : z[l - 1]; };
+    for (size_t l = 0; l < w.size(); ++l) {
+      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, input(l), w[l], 0.0f, z[l]);
+    }
+    for (size_t l = w.size(); l-- > 0;) {
+      if (l > 0) Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz[l], w[l], 0.0f, dz[l - 1]);
+      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, input(l), dz[l], 0.0f, dw[l]);
+    }
+  }
+};
+
+double Median(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  return v[v.size() / 2];
+}
+
+void MeasureBatch(int64_t batch) {
+  Philox rng(Derive(1, "bench-step"));
+  const Mlp net({kFeatures, 512, 512, kClasses}, Activation::kRelu);
+  std::vector<float> params(net.ParameterCount()), grad(net.ParameterCount()),
+      velocity(net.ParameterCount(), 0.0f);
+  net.Initialize(Derive(2, "init"), params.data());
+  const Matrix data = RandomNormal(kRows, kFeatures, rng);
+  std::vector<int32_t> all_labels(kRows);
+  for (int32_t& label : all_labels) label = static_cast<int32_t>(rng.NextBelow(kClasses));
+  std::vector<int64_t> order(kRows);
+  std::iota(order.begin(), order.end(), int64_t{0});
+  for (int64_t i = kRows - 1; i > 0; --i) {
+    std::swap(order[i], order[rng.NextBelow(static_cast<uint64_t>(i) + 1)]);
+  }
+
+  OptimizerConfig optimizer;
+  optimizer.momentum = 0.9;
+  optimizer.weight_decay = 5e-4;
+  const float lr = 1e-4f;  // small, so that thousands of steps on one minibatch stay finite
+  TrainingStep step(net, Task::kClassification, optimizer, batch, 1);
+  Mlp::Workspace ws = net.MakeWorkspace(batch);
+  Matrix grad_output(batch, kClasses);
+  Matrix xb = data.topRows(batch);
+  std::vector<int32_t> labels(all_labels.begin(), all_labels.begin() + batch);
+  ProductBuffers products({kFeatures, 512, 512, kClasses}, batch, rng);
+  int64_t next_row = 0;
+
+  const auto backward = [&] {
+    const auto out = net.Forward(params.data(), xb, ws);
+    SoftmaxCrossEntropy(out, labels.data(), grad_output, batch);
+    net.Backward(params.data(), xb, grad_output, ws, grad.data());
+  };
+  const auto run_step = [&] { step.Run(xb, labels.data(), nullptr, lr, params.data(), nullptr); };
+  struct Piece {
+    const char* name;
+    std::function<void()> run;
+    std::vector<double> seconds;  // per step, one per block
+  };
+  std::vector<Piece> pieces = {
+      {"products", [&] { products.Run(xb); }, {}},
+      {"backward", backward, {}},
+      {"step", run_step, {}},
+      {"step_split",
+       [&] {
+         backward();
+         SgdStep(optimizer, lr, net.ParameterCount(), grad.data(), params.data(), velocity.data());
+       },
+       {}},
+      {"gather_step",
+       [&] {
+         if (next_row + batch > kRows) next_row = 0;
+         for (int64_t r = 0; r < batch; ++r) {
+           const int64_t src = order[next_row + r];
+           std::copy_n(data.row(src).data(), kFeatures, xb.row(r).data());
+           labels[r] = all_labels[src];
+         }
+         next_row += batch;
+         run_step();
+       },
+       {}},
+  };
+  const int64_t steps = std::max<int64_t>(1, kSamplesPerBlock / batch);
+  for (Piece& p : pieces) p.run();  // warm-up: first-touch page faults, packing buffers
+  for (int block = 0; block < kBlocks; ++block) {
+    for (Piece& p : pieces) {
+      const auto start = Clock::now();
+      for (int64_t s = 0; s < steps; ++s) p.run();
+      p.seconds.push_back(std::chrono::duration<double>(Clock::now() - start).count() / steps);
+    }
+  }
+  for (const Piece& p : pieces) {
+    const double median = Median(p.seconds);
+    const double best = *std::min_element(p.seconds.begin(), p.seconds.end());
+    std::printf("chorus-step batch=%lld piece=%s median_us=%.1f best_us=%.1f samples_per_s=%.0f\n",
+                static_cast<long long>(batch), p.name, median * 1e6, best * 1e6,
+                static_cast<double>(batch) / median);
+  }
+  std::fflush(stdout);
+}
+
+}  // namespace
+}  // namespace chorus
+
+int main(int argc, char** argv) {
+  std::vector<int64_t> batches;
+  for (int i = 1; i < argc; ++i) {
+    const long long b = std::atoll(argv[i]);
+    if (b < 1 || b > 8192) {
+      std::fprintf(stderr, "usage: chorus-bench-step [BATCH...]   (batch sizes 1-8192)\n");
+      return 2;
+    }
+    batches.push_back(b);
+  }
+  if (batches.empty()) batches = {32, 128, 512};
+  for (int64_t b : batches) chorus::MeasureBatch(b);
+  return 0;
+}
