@@ -31,6 +31,7 @@
 #include <string>
 #include <vector>
 
+#include "bench/chained_products.h"
 #include "common/gemm.h"
 #include "common/matrix.h"
 
@@ -123,32 +124,6 @@ struct Backend {
 constexpr Backend kBackends[] = {{"onednn", OneDnn}, {"chorus", Chorus}, {"eigen", EigenProduct}};
 constexpr int kBackendCount = sizeof(kBackends) / sizeof(kBackends[0]);
 
-// The buffers of one training step, chained as a step chains them: layer l reads the previous
-// layer's output and its own weights, the backward pass reads what the forward pass wrote.
-struct StepBuffers {
-  std::vector<Matrix> w, z, dz, dw;  // per layer: W_l, Z_l (= the next layer's input), dZ_l, dW_l
-  Matrix x;
-  StepBuffers(const std::vector<int>& widths, int64_t b) : x(Matrix::Random(b, widths[0])) {
-    for (size_t l = 0; l + 1 < widths.size(); ++l) {
-      w.push_back(Matrix::Random(widths[l], widths[l + 1]));
-      z.push_back(Matrix::Random(b, widths[l + 1]));
-      dz.push_back(Matrix::Random(b, widths[l + 1]));
-      dw.push_back(Matrix::Random(widths[l], widths[l + 1]));
-    }
-  }
-  const Matrix& input(size_t l) const { return l == 0 ? x : z[l - 1]; }
-
-  // The eight products in a training step's order: forward, then per layer from the last the
-  // input gradient (not for the first layer) and the weight gradient.
-  void Run(const Backend& backend) {
-    for (size_t l = 0; l < w.size(); ++l) backend.run(false, false, input(l), w[l], 1.0f, z[l]);
-    for (size_t l = w.size(); l-- > 0;) {
-      if (l > 0) backend.run(false, true, dz[l], w[l], 0.0f, dz[l - 1]);
-      backend.run(true, false, input(l), dz[l], 0.0f, dw[l]);
-    }
-  }
-};
-
 void MeasureBatch(int64_t batch) {
   const std::vector<int> widths = {784, 512, 512, 10};
   const std::vector<Product> products = StepProducts(widths, batch);
@@ -179,10 +154,10 @@ void MeasureBatch(int64_t batch) {
   }
   // The same products back to back on chained buffers, as a step runs them: operands no longer
   // stay hot in cache from one call of a product to the next. Eigen is left out (5x slower).
-  StepBuffers buffers(widths, batch);
+  ChainedProducts chained(widths, batch);
   for (const Backend& backend : kBackends) {
     if (std::string(backend.name) == "eigen") continue;
-    const double s = SecondsPerCall([&] { buffers.Run(backend); });
+    const double s = SecondsPerCall([&] { chained.Run(backend.run); });
     std::printf(
         "gemm-sequence batch=%lld backend=%s step_us=%.1f samples_per_s=%.0f gflops=%.1f\n",
         (long long)batch, backend.name, s * 1e6, batch / s, step_flops / s * 1e-9);

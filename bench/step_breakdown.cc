@@ -5,7 +5,8 @@
 // machine falls on all of them alike; separate processes minutes apart differ by up to 30% on a
 // shared virtual machine, more than the differences measured here.
 //   products:    the eight matrix products of a step, back to back on chained buffers
-//                (chorus::Gemm; the same as chorus-bench-gemm's gemm-sequence);
+//                (bench/chained_products.h with chorus::Gemm, as chorus-bench-gemm's
+//                gemm-sequence);
 //   backward:    Mlp::Forward, the softmax cross-entropy head and Mlp::Backward, the gradient
 //                written out (adds bias, activation, head, bias gradients);
 //   step:        TrainingStep::Run, one part: the SGD step fused into the weight-gradient tiles
@@ -24,6 +25,7 @@
 #include <numeric>
 #include <vector>
 
+#include "bench/chained_products.h"
 #include "common/gemm.h"
 #include "common/heads.h"
 #include "common/mlp.h"
@@ -41,37 +43,6 @@ constexpr int kFeatures = 784, kClasses = 10;
 constexpr int kBlocks = 30;
 constexpr int64_t kSamplesPerBlock = 2048;
 
-Matrix RandomNormal(int64_t rows, int64_t cols, Philox& rng) {
-  Matrix m(rows, cols);
-  for (int64_t i = 0; i < rows; ++i) {
-    for (int64_t j = 0; j < cols; ++j) m(i, j) = static_cast<float>(rng.NextNormal());
-  }
-  return m;
-}
-
-// The buffers of the products piece, chained as a step chains them.
-struct ProductBuffers {
-  std::vector<Matrix> w, z, dz, dw;  // per layer: W_l, Z_l (the next layer's input), dZ_l, dW_l
-  ProductBuffers(const std::vector<int>& widths, int64_t b, Philox& rng) {
-    for (size_t l = 0; l + 1 < widths.size(); ++l) {
-      w.push_back(RandomNormal(widths[l], widths[l + 1], rng));
-      z.push_back(RandomNormal(b, widths[l + 1], rng));
-      dz.push_back(RandomNormal(b, widths[l + 1], rng));
-      dw.push_back(RandomNormal(widths[l], widths[l + 1], rng));
-    }
-  }
-  void Run(const Matrix& x) {
-    const auto input = [&](size_t l) -> const Matrix& { return l == 0 ? x : z[l - 1]; };
-    for (size_t l = 0; l < w.size(); ++l) {
-      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, input(l), w[l], 0.0f, z[l]);
-    }
-    for (size_t l = w.size(); l-- > 0;) {
-      if (l > 0) Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz[l], w[l], 0.0f, dz[l - 1]);
-      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, input(l), dz[l], 0.0f, dw[l]);
-    }
-  }
-};
-
 double Median(std::vector<double> v) {
   std::sort(v.begin(), v.end());
   return v[v.size() / 2];
@@ -83,7 +54,7 @@ void MeasureBatch(int64_t batch) {
   std::vector<float> params(net.ParameterCount()), grad(net.ParameterCount()),
       velocity(net.ParameterCount(), 0.0f);
   net.Initialize(Derive(2, "init"), params.data());
-  const Matrix data = RandomNormal(kRows, kFeatures, rng);
+  const Matrix data = Matrix::Random(kRows, kFeatures);  // values do not change the work
   std::vector<int32_t> all_labels(kRows);
   for (int32_t& label : all_labels) label = static_cast<int32_t>(rng.NextBelow(kClasses));
   std::vector<int64_t> order(kRows);
@@ -101,9 +72,15 @@ void MeasureBatch(int64_t batch) {
   Matrix grad_output(batch, kClasses);
   Matrix xb = data.topRows(batch);
   std::vector<int32_t> labels(all_labels.begin(), all_labels.begin() + batch);
-  ProductBuffers products({kFeatures, 512, 512, kClasses}, batch, rng);
+  ChainedProducts products({kFeatures, 512, 512, kClasses}, batch);
+  products.x = xb;
   int64_t next_row = 0;
 
+  const auto product = [](bool ta, bool tb, const Matrix& a, const Matrix& b, float beta,
+                          Matrix& c) {
+    Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f, a, b,
+         beta, c);
+  };
   const auto backward = [&] {
     const auto out = net.Forward(params.data(), xb, ws);
     SoftmaxCrossEntropy(out, labels.data(), grad_output, batch);
@@ -116,7 +93,7 @@ void MeasureBatch(int64_t batch) {
     std::vector<double> seconds;  // per step, one per block
   };
   std::vector<Piece> pieces = {
-      {"products", [&] { products.Run(xb); }, {}},
+      {"products", [&] { products.Run(product); }, {}},
       {"backward", backward, {}},
       {"step", run_step, {}},
       {"step_split",
