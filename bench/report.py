@@ -296,9 +296,10 @@ class Report:
     def step_section(self):
         pieces = [("products", "the eight products back to back"),
                   ("backward", "+ bias, activation, head, bias gradients"),
-                  ("step", "+ SGD step (fused into the weight-gradient tiles)"),
-                  ("gather_step", "+ gathering the minibatch"),
-                  ("step_split", "for comparison: backward, then a separate SGD pass")]
+                  ("step_fused", "+ SGD step, fused into the weight-gradient tiles"),
+                  ("step_split", "+ SGD step, as a separate pass instead"),
+                  ("gather_step", "gathering the minibatch, then TrainingStep (fused below "
+                                  "64 rows, else separate)")]
         rows = []
         for b in self.batches:
             found = {f["piece"]: f for f in select(self.records, "chorus-step", batch=b)}
@@ -313,8 +314,8 @@ class Report:
         if not rows:
             return "### Where a step's time goes\n\nNot measured in this run."
         return ("### Where a step's time goes (one thread)\n\n"
-                "chorus-bench-step: each piece adds work to the one above, all timed in turn in "
-                "one process (30 blocks of about 2048 samples each), so that a slow spell of the "
+                "chorus-bench-step: pieces of a step, each SGD variant adding to the backward "
+                "pass, all timed in turn in one process (30 blocks of about 2048 samples each), so that a slow spell of the "
                 "machine falls on all of them alike. samples/s from the median.\n\n"
                 + table(("batch", "piece", "median us per step", "best us", "samples/s", "load"),
                         rows))

@@ -9,11 +9,12 @@
 //                gemm-sequence);
 //   backward:    Mlp::Forward, the softmax cross-entropy head and Mlp::Backward, the gradient
 //                written out (adds bias, activation, head, bias gradients);
-//   step:        TrainingStep::Run, one part: the SGD step fused into the weight-gradient tiles
-//                (adds reading and writing weights and momentum);
-//   step_split:  backward, then SgdStep over all parameters (the unfused order, for comparison);
-//   gather_step: the minibatch's rows copied from a shuffled 8192-row matrix, then step (what
-//                TrainMember does per step, less the schedule).
+//   step_fused:  forward, head and Mlp::BackwardWithSgd: the SGD step fused into the
+//                weight-gradient tiles (adds reading and writing weights and momentum);
+//   step_split:  backward, then SgdStep over all parameters: the same update as a separate pass;
+//   gather_step: the minibatch's rows copied from a shuffled 8192-row matrix, then
+//                TrainingStep::Run with one part, which takes one of the two above by the
+//                minibatch's rows (what TrainMember does per step, less the schedule).
 // Usage: chorus-bench-step [BATCH...]   (default 32 128 512)
 // Output, per batch and piece:
 //   chorus-step batch=B piece=NAME median_us=T best_us=T samples_per_s=R   (R from the median)
@@ -86,7 +87,6 @@ void MeasureBatch(int64_t batch) {
     SoftmaxCrossEntropy(out, labels.data(), grad_output, batch);
     net.Backward(params.data(), xb, grad_output, ws, grad.data());
   };
-  const auto run_step = [&] { step.Run(xb, labels.data(), nullptr, lr, params.data(), nullptr); };
   struct Piece {
     const char* name;
     std::function<void()> run;
@@ -95,7 +95,14 @@ void MeasureBatch(int64_t batch) {
   std::vector<Piece> pieces = {
       {"products", [&] { products.Run(product); }, {}},
       {"backward", backward, {}},
-      {"step", run_step, {}},
+      {"step_fused",
+       [&] {
+         const auto out = net.Forward(params.data(), xb, ws);
+         SoftmaxCrossEntropy(out, labels.data(), grad_output, batch);
+         net.BackwardWithSgd(params.data(), xb, grad_output, ws, grad.data(), optimizer, lr,
+                             velocity.data());
+       },
+       {}},
       {"step_split",
        [&] {
          backward();
@@ -111,7 +118,7 @@ void MeasureBatch(int64_t batch) {
            labels[r] = all_labels[src];
          }
          next_row += batch;
-         run_step();
+         step.Run(xb, labels.data(), nullptr, lr, params.data(), nullptr);
        },
        {}},
   };

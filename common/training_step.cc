@@ -60,7 +60,7 @@ void TrainingStep::RunPart(void* context, int s) {
 double TrainingStep::Run(const ConstMatrixRef& x, const int32_t* labels, const float* targets,
                          float lr, float* params, const ParallelFor* parallel) {
   const int parts = static_cast<int>(parts_.size());
-  const bool fused = parts == 1 && !(optimizer_.clip_norm > 0.0);
+  const bool fused = parts == 1 && !(optimizer_.clip_norm > 0.0) && x.rows() < kFusedBelowRows;
   PartJob job{this, &x, labels, targets, params, x.rows(), lr, fused};
   if (parallel != nullptr && parts > 1) {
     parallel->Run(parts, &TrainingStep::RunPart, &job);

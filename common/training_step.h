@@ -4,9 +4,10 @@
 // holds rows [s * B / parts, (s + 1) * B / parts)), each part's gradient is computed on its own,
 // possibly at the same time as the others, and the gradients are added in part order. The
 // result depends on the number of parts (train.parts in the config), never on the threads.
-// With one part and no clipping the update is fused into the backward pass (Mlp::BackwardWithSgd),
-// which gives the same bits as the separate gradient, SgdStep sequence and saves a pass over the
-// gradient.
+// With one part, no clipping and a minibatch of fewer than kFusedBelowRows rows the update is
+// fused into the backward pass (Mlp::BackwardWithSgd), which gives the same bits as the separate gradient,
+// SgdStep sequence and saves a pass over the gradient (faster there; slower on larger
+// minibatches, which take the separate pass).
 // Thread safety: a TrainingStep belongs to one member; Run must not be called concurrently.
 #pragma once
 
@@ -29,6 +30,13 @@ class ParallelFor {
 
 class TrainingStep {
  public:
+  // Minibatches of fewer rows take the fused update (one part, no clipping). Measured with
+  // chorus-bench-step and two members at once (BENCHMARKS.md): at batch 32 the fused step was up
+  // to 8% faster (its weight-gradient tiles are short, and it saves a pass over the gradient); at
+  // batch 64, 128 and 512 the separate pass was as fast or 2-9% faster (the tiles' weight and
+  // momentum misses stall a long k loop, where a streaming pass gets the hardware prefetcher).
+  static constexpr int64_t kFusedBelowRows = 64;
+
   // max_rows: the largest minibatch Run will see; parts in [1, max_rows].
   TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer, int64_t max_rows,
                int parts);

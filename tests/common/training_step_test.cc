@@ -80,8 +80,10 @@ TEST(TrainingStepTest, ResultDependsOnPartsNotOnThreads) {
   }
 }
 
-// One part and no clipping takes the fused path (the update inside the backward pass); a clipping
-// threshold the gradient never reaches takes the separate one. Both must give the same bits.
+// One part, no clipping and a minibatch under TrainingStep::kFusedBelowRows rows takes the fused
+// path (the update inside the backward pass); a clipping threshold the gradient never reaches
+// takes the separate one. Both must give the same bits.
+static_assert(kRows < TrainingStep::kFusedBelowRows, "the test minibatch must take the fused path");
 TEST(TrainingStepTest, FusedUpdateGivesTheSameBitsAsTheSeparateOne) {
   for (bool nesterov : {false, true}) {
     OptimizerConfig fused;
