@@ -5,8 +5,8 @@
 // possibly at the same time as the others, and the gradients are added in part order. The
 // result depends on the number of parts (train.parts in the config), never on the threads.
 // With one part, no clipping and a minibatch of fewer than kFusedBelowRows rows the update is
-// fused into the backward pass (Mlp::BackwardWithSgd), which gives the same bits as the separate gradient,
-// SgdStep sequence and saves a pass over the gradient (faster there; slower on larger
+// fused into the backward pass (Mlp::BackwardWithSgd), which gives the same bits as the separate
+// gradient, SgdStep sequence and saves a pass over the gradient (faster there; slower on larger
 // minibatches, which take the separate pass).
 // Thread safety: a TrainingStep belongs to one member; Run must not be called concurrently.
 #pragma once
