@@ -8,9 +8,17 @@
 #include <cstdint>
 #include <vector>
 
+#include "common/gemm.h"
 #include "common/matrix.h"
 
 namespace chorus {
+
+// chorus::Gemm in the product signature Run takes: C = op(A) op(B) + beta C.
+inline void ChorusProduct(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta,
+                          Matrix& c) {
+  Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f, a, b,
+       beta, c);
+}
 
 struct ChainedProducts {
   Matrix x;                          // the minibatch, batch x widths[0]

@@ -27,7 +27,6 @@
 #include <vector>
 
 #include "bench/chained_products.h"
-#include "common/gemm.h"
 #include "common/heads.h"
 #include "common/mlp.h"
 #include "common/rng.h"
@@ -77,14 +76,13 @@ void MeasureBatch(int64_t batch) {
   products.x = xb;
   int64_t next_row = 0;
 
-  const auto product = [](bool ta, bool tb, const Matrix& a, const Matrix& b, float beta,
-                          Matrix& c) {
-    Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f, a, b,
-         beta, c);
-  };
-  const auto backward = [&] {
+  // Forward and the head, leaving dL/dZ_L in grad_output.
+  const auto forward_head = [&] {
     const auto out = net.Forward(params.data(), xb, ws);
     SoftmaxCrossEntropy(out, labels.data(), grad_output, batch);
+  };
+  const auto backward = [&] {
+    forward_head();
     net.Backward(params.data(), xb, grad_output, ws, grad.data());
   };
   struct Piece {
@@ -93,12 +91,11 @@ void MeasureBatch(int64_t batch) {
     std::vector<double> seconds;  // per step, one per block
   };
   std::vector<Piece> pieces = {
-      {"products", [&] { products.Run(product); }, {}},
+      {"products", [&] { products.Run(ChorusProduct); }, {}},
       {"backward", backward, {}},
       {"step_fused",
        [&] {
-         const auto out = net.Forward(params.data(), xb, ws);
-         SoftmaxCrossEntropy(out, labels.data(), grad_output, batch);
+         forward_head();
          net.BackwardWithSgd(params.data(), xb, grad_output, ws, grad.data(), optimizer, lr,
                              velocity.data());
        },

@@ -148,6 +148,7 @@ void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans
       const int64_t kc = std::min(kc_full, k - p0);
       const float beta_here = p0 == 0 ? beta : 1.0f;
       const bool last_k = p0 + kc >= k;
+      const bool update = sgd != nullptr && last_k;  // this k block's tiles apply the SGD step
       // A non-transposed op(B) that only one block of op(A) rows uses (m <= kMc) is read in place,
       // ldb apart, except a last partial strip: packing it would be a copy without reuse. Used by
       // several blocks, it is packed, so that it streams in order once and is then read from L2
@@ -158,7 +159,6 @@ void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans
       for (int64_t i0 = 0; i0 < m; i0 += kMc) {
         const int64_t mc = std::min(kMc, m - i0);
         PackA(kernel, a, ta, i0, mc, p0, kc, buffers.a.get());
-        const bool update = sgd != nullptr && last_k;
         const auto tile = [&](int64_t ir, int64_t jr) {
           const int rows = static_cast<int>(std::min<int64_t>(mr, mc - ir));
           const int cols = static_cast<int>(std::min<int64_t>(nr, nc - jr));

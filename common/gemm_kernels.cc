@@ -41,9 +41,9 @@ template <int R, bool kWide>
 __attribute__((target("avx512f"))) void TileAvx512(int64_t kc, const float* ap, const float* bp,
                                                    int64_t ldb, float alpha, float beta, float* c,
                                                    int64_t ldc, int cols, const SgdUpdate* sgd) {
-  if (sgd != nullptr) {
+  if (kWide && sgd != nullptr) {
     // The weights and momentum of the next tile in these rows (the driver walks update tiles
-    // along rows): fetched while this tile's k loop runs.
+    // along rows): fetched while this tile's k loop runs. A narrow tile ends its rows.
     for (int r = 0; r < R; ++r) {
       const float* w = sgd->w + r * sgd->ld + kNr512;
       const float* v = sgd->v + r * sgd->ld + kNr512;
