@@ -203,8 +203,10 @@ WorkerStats Drive(const std::string& target, int workers, double seconds) {
 class BenchCoordinator {
  public:
   BenchCoordinator(int jobs, const std::string& scratch)
-      : table_(jobs, INT_MAX, 30.0), dir_(CreateRunDir(scratch)),
-        service_(Inputs(jobs), &table_, &dir_) {
+      : table_(0, INT_MAX, 30.0), dir_(CreateRunDir(scratch)),
+        service_(Inputs(), &table_, &dir_) {
+    service_.AddJobs(TinySpecs(jobs));
+    service_.Close();
     grpc::ServerBuilder builder;
     builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), &port_);
     builder.RegisterService(&service_);
@@ -225,9 +227,9 @@ class BenchCoordinator {
     if (!dir.ok()) Die(dir.status().ToString());
     return std::move(dir).value();
   }
-  static DispatchInputs Inputs(int jobs) {
+  static DispatchInputs Inputs() {
     const PreparedData data = TinyData();
-    return {TinySpecs(jobs), EncodePreparedData(data), data.hash, "capacity-bench-config", 30.0,
+    return {EncodePreparedData(data), data.hash, "capacity-bench-config", 30.0,
             kToken};
   }
 

@@ -21,4 +21,13 @@ const std::vector<double>& BasinScaleCandidates();
 // scale and returns it.
 double TuneBasinScale(const PreparedData& data, const Mlp& net, std::vector<MemberResult>& members);
 
+// The same with cross-fitting (data.folds > 0): validation is every training row, each predicted
+// by the samples of the fold job that held it out. fold_of_row: the run's fold assignment
+// (common/folds.h); folds[m][k] is member m's job without fold k (same sample seeds as the
+// member). Members' validation sample outputs become the out-of-fold
+// ones at the chosen scale (common/folds.h AdoptOutOfFoldOutputs), test outputs their own.
+double TuneBasinScaleOutOfFold(const PreparedData& data, const Mlp& net, const std::vector<int>& fold_of_row,
+                               const std::vector<std::vector<const MemberResult*>>& folds,
+                               std::vector<MemberResult>& members);
+
 }  // namespace chorus

@@ -40,6 +40,15 @@ const char* BasinMethodName(BasinMethod m) {
   return "?";
 }
 
+const char* SwitchName(Switch s) {
+  switch (s) {
+    case Switch::kAuto: return "auto";
+    case Switch::kOn: return "on";
+    case Switch::kOff: return "off";
+  }
+  return "?";
+}
+
 std::optional<Task> ParseTask(const std::string& s) {
   if (s == "classification") return Task::kClassification;
   if (s == "regression") return Task::kRegression;
@@ -71,6 +80,13 @@ std::optional<BasinMethod> ParseBasinMethod(const std::string& s) {
   if (s == "none") return BasinMethod::kNone;
   if (s == "gaussian_diag") return BasinMethod::kGaussianDiag;
   if (s == "gaussian_lowrank") return BasinMethod::kGaussianLowRank;
+  return std::nullopt;
+}
+
+std::optional<Switch> ParseSwitch(const std::string& s) {
+  if (s == "auto") return Switch::kAuto;
+  if (s == "on") return Switch::kOn;
+  if (s == "off") return Switch::kOff;
   return std::nullopt;
 }
 

@@ -16,6 +16,8 @@ enum class Activation { kRelu, kTanh, kGelu };
 enum class ScheduleKind { kConstant, kCosine, kStep };
 enum class Weighting { kUniform, kStacking, kGreedy };
 enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank };
+// A setting that is on, off, or decided by the data's size (DataConfig::small_data_rows).
+enum class Switch { kAuto, kOn, kOff };
 
 struct RunConfig {
   std::string name = "run";       // run directory prefix: [A-Za-z0-9._-]+, required
@@ -44,6 +46,12 @@ struct DataConfig {
   std::vector<std::string> categorical;  // csv: columns one-hot encoded with the train vocabulary
   int64_t max_train_rows = 0;     // use only the first N training rows (before the split); 0 = all
   int64_t max_test_rows = 0;      // use only the first N test rows; 0 = all
+  // Training sets with fewer rows than this (before any split) count as small: `auto` settings
+  // (cross-fitting, early stopping) switch on for them. >= 0.
+  int64_t small_data_rows = 20000;
+  // k-fold cross-fitting instead of a single holdout (common/folds.h): -1 = auto (5 folds for
+  // small data, else the holdout), 0 = the holdout, 2..50 = that many folds. Not with a file.
+  int folds = -1;
   // --- report only ---
   std::string true_probabilities;  // optional csv of the test set's true class probabilities
                                    // (header = class names, one row per test row); lets the
@@ -69,6 +77,14 @@ struct OptimizerConfig {
   double clip_norm = 0.0;       // rescale the gradient to this global L2 norm if larger; 0 = off
 };
 
+// Early stopping: after every epoch the member's validation NLL is measured; training stops once
+// `patience` epochs have passed without a new lowest value, and the parameters of the best epoch
+// are kept (and the basin phase, if any, starts from them).
+struct EarlyStoppingConfig {
+  Switch mode = Switch::kAuto;  // auto: on for small data (DataConfig::small_data_rows)
+  int patience = 10;            // epochs without a new best before stopping, >= 1
+};
+
 struct TrainConfig {
   int epochs = 20;              // passes over the training split, >= 1
   int batch_size = 128;         // minibatch rows, >= 1; the last short batch of an epoch is used
@@ -78,6 +94,11 @@ struct TrainConfig {
   int parts = 1;
   OptimizerConfig optimizer;
   ScheduleConfig schedule;
+  EarlyStoppingConfig early_stopping;
+  // Regression only: beta of the beta-NLL loss (Seitzer et al., ICLR 2022): each row's Gaussian
+  // NLL is weighted by its predicted variance to the power beta, held constant in the gradient;
+  // 0 is the plain NLL, 1 gives the mean the gradient of squared error. In [0, 1].
+  double beta_nll = 0.5;
 };
 
 // Basin fits (ensemble.basin): after normal training, SGD continues at the constant rate `lr` for
@@ -112,6 +133,17 @@ struct ReportConfig {
   int size_curve_subsets = 10;  // random member subsets per ensemble size, >= 1
 };
 
+// A grid over training settings (top-level `search`), scored by validation NLL of one network per
+// grid point (on every fold with cross-fitting), run as jobs before the members; the best point's
+// settings are then used for every member. An empty list leaves that setting as configured.
+struct SearchConfig {
+  std::vector<double> weight_decay;        // train.optimizer.weight_decay values, each >= 0
+  std::vector<double> lr;                  // train.optimizer.lr values, each > 0
+  std::vector<std::vector<int>> hidden;    // model.hidden values
+  std::vector<double> beta_nll;            // train.beta_nll values (regression), each in [0, 1]
+  bool empty() const { return weight_decay.empty() && lr.empty() && hidden.empty() && beta_nll.empty(); }
+};
+
 struct ComputeConfig {
   // --- changes speed only ---
   int threads = 0;              // members trained at once (oneTBB arena size); 0 = all cores
@@ -139,6 +171,7 @@ struct Config {
   TrainConfig train;
   EnsembleConfig ensemble;
   ReportConfig report;
+  SearchConfig search;
   ComputeConfig compute;
   ClusterConfig cluster;
 };
@@ -149,10 +182,12 @@ const char* ActivationName(Activation a);
 const char* ScheduleName(ScheduleKind s);
 const char* WeightingName(Weighting w);
 const char* BasinMethodName(BasinMethod m);
+const char* SwitchName(Switch s);
 std::optional<Task> ParseTask(const std::string& s);
 std::optional<Activation> ParseActivation(const std::string& s);
 std::optional<ScheduleKind> ParseSchedule(const std::string& s);
 std::optional<Weighting> ParseWeighting(const std::string& s);
 std::optional<BasinMethod> ParseBasinMethod(const std::string& s);
+std::optional<Switch> ParseSwitch(const std::string& s);
 
 }  // namespace chorus

@@ -13,6 +13,7 @@
 
 #include "common/csv.h"
 #include "common/feature_encoder.h"
+#include "common/folds.h"
 #include "common/idx.h"
 #include "common/rng.h"
 #include "common/sha256.h"
@@ -300,7 +301,13 @@ StatusOr<PreparedData> Prepare(const RawData<Scalar>& raw, const DataConfig& con
                                uint64_t seed) {
   RowSet<Scalar> train{&raw.train, AllRows(raw.train.rows())};
   RowSet<Scalar> validation{&raw.validation, AllRows(raw.validation.rows())};
-  if (!raw.validation_from_file) {
+  const int folds = ResolvedFolds(config, raw.train.rows());
+  if (folds > raw.train.rows()) {
+    return Status::InvalidInput(raw.train_file + ": expected at least " + std::to_string(folds) +
+                                " rows for data.validation.folds = " + std::to_string(folds) +
+                                ", found " + std::to_string(raw.train.rows()));
+  }
+  if (!raw.validation_from_file && folds == 0) {
     CHORUS_ASSIGN_OR_RETURN(
         Partition p, HoldOut(raw.train.rows(), config.validation_fraction, seed, raw.train_file));
     train.rows = std::move(p.train);
@@ -310,6 +317,7 @@ StatusOr<PreparedData> Prepare(const RawData<Scalar>& raw, const DataConfig& con
   FillVocabularies(train, &plan);
   PreparedData data;
   data.task = config.task;
+  data.folds = folds;
   data.feature_names = plan.FeatureNames();
   data.plan = plan;
   if (data.task == Task::kClassification) {

@@ -35,13 +35,17 @@ struct PreparedData {
   float target_mean = 0.0f;                 // regression: y' = (y - target_mean) / target_scale
   float target_scale = 1.0f;
   Split train, validation, test;
+  // k-fold cross-fitting (common/folds.h): validation is empty and every train row is held out
+  // by one fold's jobs. 0: validation is a holdout or a file. Not part of the hash.
+  int folds = 0;
   std::string hash;                         // SHA-256 (hex) of everything above except origin
   int64_t features() const { return train.x.cols(); }
   int64_t classes() const { return static_cast<int64_t>(class_names.size()); }
 };
 
 // Loads the files named in `config`, validates them, splits off validation (a seeded fraction of
-// train, shuffled with a generator derived from `run_seed`, or the given file), fits the
+// train, shuffled with a generator derived from `run_seed`, or the given file; none when
+// cross-fitting, ResolvedFolds > 0, which sets `folds`), fits the
 // standardizer and vocabularies on the remaining train rows, and applies them to every split.
 // Held-out validation: Fisher-Yates over the train row indices with
 // Philox(Derive(run_seed, "validation")); the first max(1, round(fraction * n)) indices become

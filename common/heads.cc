@@ -21,9 +21,20 @@ double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, 
   return loss / static_cast<double>(b);
 }
 
+namespace {
+
+constexpr double kLog2Pi = 1.8378770664093453;
+
+// 0.5 [s + r^2 e^{-s} + ln 2pi] for one row.
+double RowGaussianNll(float mu, float s, float y) {
+  const double r = static_cast<double>(y) - mu;
+  return 0.5 * (static_cast<double>(s) + r * r * std::exp(-static_cast<double>(s)) + kLog2Pi);
+}
+
+}  // namespace
+
 double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRef grad,
-                   int64_t batch_rows) {
-  constexpr double kLog2Pi = 1.8378770664093453;
+                   int64_t batch_rows, float beta) {
   const int64_t rows = outputs.rows(), b = batch_rows > 0 ? batch_rows : rows;
   const float inv_b = 1.0f / static_cast<float>(b);
   double loss = 0.0;
@@ -31,11 +42,28 @@ double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRe
     const float mu = outputs(i, 0), s = outputs(i, 1);
     const float r = targets[i] - mu;
     const float precision = std::exp(-s);
-    loss += 0.5 * (static_cast<double>(s) + static_cast<double>(r) * r * precision + kLog2Pi);
-    grad(i, 0) = -r * precision * inv_b;
-    grad(i, 1) = 0.5f * (1.0f - r * r * precision) * inv_b;
+    const float w = beta == 0.0f ? 1.0f : std::exp(beta * s);
+    loss += w * 0.5 * (static_cast<double>(s) + static_cast<double>(r) * r * precision + kLog2Pi);
+    grad(i, 0) = -r * precision * (w * inv_b);
+    grad(i, 1) = 0.5f * (1.0f - r * r * precision) * (w * inv_b);
   }
   return loss / static_cast<double>(b);
+}
+
+double GaussianNllValue(const ConstMatrixRef& outputs, const float* targets) {
+  double sum = 0.0;
+  for (int64_t i = 0; i < outputs.rows(); ++i) sum += RowGaussianNll(outputs(i, 0), outputs(i, 1), targets[i]);
+  return sum / static_cast<double>(outputs.rows());
+}
+
+double SoftmaxCrossEntropyValue(const ConstMatrixRef& logits, const int32_t* labels) {
+  double sum = 0.0;
+  for (int64_t i = 0; i < logits.rows(); ++i) {
+    const auto z = logits.row(i).cast<double>();
+    const double m = z.maxCoeff();
+    sum += std::log((z.array() - m).exp().sum()) + m - z(labels[i]);
+  }
+  return sum / static_cast<double>(logits.rows());
 }
 
 MatrixD Softmax(const ConstMatrixRef& logits, double temperature) {

@@ -2,10 +2,13 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <numeric>
 #include <string>
 #include <utility>
 
+#include "common/folds.h"
+#include "common/heads.h"
 #include "common/rng.h"
 #include "common/sgd.h"
 
@@ -21,16 +24,42 @@ void ShuffleForEpoch(uint64_t seed, int epoch, std::vector<int64_t>& order) {
   }
 }
 
-// State of one member's SGD run; buffers are allocated once.
+// The rows a job trains and validates on: all of train and the validation split, or for a fold
+// job the rows outside its fold and the fold itself.
+struct JobRows {
+  std::vector<int64_t> train;   // indices into data.train
+  Split held_out;               // a fold job's validation rows (empty otherwise)
+  const Split* validation = nullptr;
+};
+
+JobRows RowsForJob(const MemberSpec& spec, const PreparedData& data) {
+  JobRows rows;
+  if (spec.fold < 0) {
+    rows.train.resize(static_cast<size_t>(data.train.rows()));
+    std::iota(rows.train.begin(), rows.train.end(), int64_t{0});
+    rows.validation = &data.validation;
+    return rows;
+  }
+  FoldRows f = RowsOfFold(AssignFolds(data.train, spec.folds, spec.fold_seed), spec.fold);
+  rows.train = std::move(f.train);
+  rows.held_out = SelectRows(data.train, f.held_out);
+  return rows;
+}
+
+// State of one member's SGD run over the rows `rows` of the training split; buffers are
+// allocated once.
 class SgdRun {
  public:
-  SgdRun(const MemberSpec& spec, const PreparedData& data, const ParallelFor* parallel)
-      : spec_(spec), data_(data), parallel_(parallel), net_(NetworkFor(spec.model, data)),
-        batch_(std::min<int64_t>(spec.train.batch_size, data.train.rows())),
+  SgdRun(const MemberSpec& spec, const PreparedData& data, std::vector<int64_t> rows,
+         const ParallelFor* parallel)
+      : spec_(spec), data_(data), rows_(std::move(rows)), parallel_(parallel),
+        net_(NetworkFor(spec.model, data)),
+        batch_(std::min<int64_t>(spec.train.batch_size, static_cast<int64_t>(rows_.size()))),
         params_(net_.ParameterCount()),
         step_(net_, data.task, spec.train.optimizer, batch_,
-              static_cast<int>(std::min<int64_t>(spec.train.parts, batch_))),
-        xb_(batch_, data.features()), labels_(batch_), targets_(batch_), order_(data.train.rows()) {
+              static_cast<int>(std::min<int64_t>(spec.train.parts, batch_)),
+              static_cast<float>(spec.train.beta_nll)),
+        xb_(batch_, data.features()), labels_(batch_), targets_(batch_), order_(rows_.size()) {
     net_.Initialize(Derive(spec.seed, "init"), params_.data());
   }
 
@@ -39,7 +68,7 @@ class SgdRun {
   template <typename LrFn, typename AfterStepFn>
   StatusOr<double> Epoch(int epoch, const LrFn& lr_at, const AfterStepFn& after_step) {
     ShuffleForEpoch(spec_.seed, epoch, order_);
-    const int64_t n = data_.train.rows();
+    const int64_t n = static_cast<int64_t>(rows_.size());
     double loss_sum = 0.0;
     int64_t steps = 0;
     for (int64_t start = 0; start < n; start += batch_, ++steps) {
@@ -57,15 +86,20 @@ class SgdRun {
     return loss_sum / static_cast<double>(steps);
   }
 
-  int64_t StepsPerEpoch() const { return (data_.train.rows() + batch_ - 1) / batch_; }
+  int64_t StepsPerEpoch() const { return (static_cast<int64_t>(rows_.size()) + batch_ - 1) / batch_; }
   const Mlp& net() const { return net_; }
   std::vector<float>& params() { return params_; }
+  // Continues from `params` (an earlier epoch's), with the momentum zeroed.
+  void Restore(const std::vector<float>& params) {
+    params_ = params;
+    step_.ResetMomentum();
+  }
 
  private:
   void Gather(int64_t start, int64_t rows) {
     const bool classify = data_.task == Task::kClassification;
     for (int64_t r = 0; r < rows; ++r) {
-      const int64_t src = order_[start + r];
+      const int64_t src = rows_[order_[start + r]];
       xb_.row(r) = data_.train.x.row(src);
       if (classify) labels_[r] = data_.train.labels[src];
       else targets_[r] = data_.train.targets[src];
@@ -74,6 +108,7 @@ class SgdRun {
 
   const MemberSpec& spec_;
   const PreparedData& data_;
+  const std::vector<int64_t> rows_;
   const ParallelFor* parallel_;
   Mlp net_;
   int64_t batch_;
@@ -84,6 +119,14 @@ class SgdRun {
   std::vector<float> targets_;
   std::vector<int64_t> order_;
 };
+
+// Mean NLL of the network's outputs on `split` (classification: softmax cross-entropy;
+// regression: Gaussian NLL of the standardised target).
+double SplitNll(const Mlp& net, const float* params, const Split& split) {
+  const Matrix out = PredictOutputs(net, params, split.x);
+  return split.labels.empty() ? GaussianNllValue(out, split.targets.data())
+                              : SoftmaxCrossEntropyValue(out, split.labels.data());
+}
 
 }  // namespace
 
@@ -158,15 +201,15 @@ Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& prog
   return Status::Ok();
 }
 
-// Every basin sample's outputs on validation and test.
-void PredictSamples(const MemberSpec& spec, const Mlp& net, const PreparedData& data,
-                    MemberResult& result) {
+// Every basin sample's outputs on the job's validation rows and on test.
+void PredictSamples(const MemberSpec& spec, const Mlp& net, const Split& validation,
+                    const PreparedData& data, MemberResult& result) {
   std::vector<float> w(net.ParameterCount());
   for (int s = 0; s < spec.basin.samples; ++s) {
     const uint64_t seed = BasinSampleSeed(spec.seed, s);
     DrawBasinSample(result.basin, seed, spec.basin.scale, w.data());
     result.sample_seeds.push_back(seed);
-    result.sample_validation_outputs.push_back(PredictOutputs(net, w.data(), data.validation.x));
+    result.sample_validation_outputs.push_back(PredictOutputs(net, w.data(), validation.x));
     result.sample_test_outputs.push_back(PredictOutputs(net, w.data(), data.test.x));
   }
 }
@@ -178,36 +221,96 @@ bool AllFinite(const MemberResult& r) {
   return true;
 }
 
-}  // namespace
-
-StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
-                                   const ProgressFn& progress, const std::atomic<bool>* cancel,
-                                   const ParallelFor* parallel) {
-  const std::string where = "member " + std::to_string(spec.index);
-  if (data.train.rows() == 0) return Status::InvalidInput(where + ": no training rows");
-  SgdRun run(spec, data, parallel);
-  MemberResult result;
-  result.index = spec.index;
-  result.seed = spec.seed;
-  const bool basin = spec.basin.method != BasinMethod::kNone;
-  const int all_epochs = spec.train.epochs + (basin ? spec.basin.epochs : 0);
+// The training epochs with early stopping: tracks the validation NLL after every epoch, keeps the
+// best epoch's parameters when early stopping is on and restores them at the end.
+Status TrainEpochs(const MemberSpec& spec, SgdRun& run, const Split& validation,
+                   const ProgressFn& progress, const std::atomic<bool>* cancel, int all_epochs,
+                   MemberResult& result) {
+  const bool watch = validation.rows() > 0;
+  const bool early = watch && spec.train.early_stopping.mode == Switch::kOn;
+  const int epochs = spec.stop_epoch > 0 ? std::min(spec.stop_epoch, spec.train.epochs) : spec.train.epochs;
   const int64_t per_epoch = run.StepsPerEpoch();
-  for (int epoch = 0; epoch < spec.train.epochs; ++epoch) {
+  double best = std::numeric_limits<double>::infinity();
+  std::vector<float> best_params;
+  for (int epoch = 0; epoch < epochs; ++epoch) {
     auto lr_at = [&](int64_t step) {
       return ScheduledLearningRate(spec.train, per_epoch * epoch + step, per_epoch);
     };
     StatusOr<double> loss = run.Epoch(epoch, lr_at, [](int64_t) {});
-    if (!loss.ok()) return loss.status().WithContext(where);
+    if (!loss.ok()) return loss.status();
     result.epoch_loss.push_back(loss.value());
     if (progress) progress({spec.index, epoch + 1, all_epochs, loss.value()});
-    if (cancel != nullptr && cancel->load()) return Status::Cancelled(where + ": stopped on request");
+    if (cancel != nullptr && cancel->load()) return Status::Cancelled("stopped on request");
+    if (!watch) continue;
+    const double nll = SplitNll(run.net(), run.params().data(), validation);
+    result.validation_nll.push_back(nll);
+    if (nll < best) {
+      best = nll;
+      result.best_epoch = epoch + 1;
+      if (early) best_params = run.params();
+    } else if (early && epoch + 1 - result.best_epoch >= spec.train.early_stopping.patience) {
+      break;
+    }
   }
-  result.validation_outputs = PredictOutputs(run.net(), run.params().data(), data.validation.x);
+  const int ran = static_cast<int>(result.epoch_loss.size());
+  if (early && result.best_epoch > 0 && result.best_epoch < ran) run.Restore(best_params);
+  if (!early || result.best_epoch == 0) result.best_epoch = ran;
+  return Status::Ok();
+}
+
+}  // namespace
+
+const char* JobRoleName(JobRole role) {
+  switch (role) {
+    case JobRole::kMember: return "member";
+    case JobRole::kFold: return "fold";
+    case JobRole::kSearch: return "search";
+  }
+  return "?";
+}
+
+std::optional<JobRole> ParseJobRole(const std::string& name) {
+  for (JobRole role : {JobRole::kMember, JobRole::kFold, JobRole::kSearch}) {
+    if (name == JobRoleName(role)) return role;
+  }
+  return std::nullopt;
+}
+
+std::string JobName(const MemberSpec& spec) {
+  const std::string fold = spec.fold >= 0 ? "-" + std::to_string(spec.fold) : "";
+  switch (spec.role) {
+    case JobRole::kMember: return std::to_string(spec.index);
+    case JobRole::kFold: return "fold-" + std::to_string(spec.index) + fold;
+    case JobRole::kSearch: return "search-" + std::to_string(spec.point) + fold;
+  }
+  return "?";
+}
+
+StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& data,
+                                   const ProgressFn& progress, const std::atomic<bool>* cancel,
+                                   const ParallelFor* parallel) {
+  const std::string where = (spec.role == JobRole::kMember ? "member " : "job ") + JobName(spec);
+  if (data.train.rows() == 0) return Status::InvalidInput(where + ": no training rows");
+  JobRows rows = RowsForJob(spec, data);
+  if (rows.train.empty()) return Status::InvalidInput(where + ": no training rows outside the fold");
+  const Split& validation = rows.validation != nullptr ? *rows.validation : rows.held_out;
+  SgdRun run(spec, data, std::move(rows.train), parallel);
+  MemberResult result;
+  result.index = spec.index;
+  result.seed = spec.seed;
+  result.role = spec.role;
+  result.point = spec.point;
+  result.fold = spec.fold;
+  const bool basin = spec.basin.method != BasinMethod::kNone;
+  const int all_epochs = spec.train.epochs + (basin ? spec.basin.epochs : 0);
+  CHORUS_RETURN_IF_ERROR(
+      TrainEpochs(spec, run, validation, progress, cancel, all_epochs, result).WithContext(where));
+  result.validation_outputs = PredictOutputs(run.net(), run.params().data(), validation.x);
   result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x);
   result.parameters = run.params();
   if (basin) {
     CHORUS_RETURN_IF_ERROR(RunBasinPhase(spec, run, progress, cancel, result).WithContext(where));
-    PredictSamples(spec, run.net(), data, result);
+    PredictSamples(spec, run.net(), validation, data, result);
   }
   if (!AllFinite(result)) return Status::Diverged(where + ": a prediction is not finite");
   return result;

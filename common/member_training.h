@@ -7,6 +7,8 @@
 #include <atomic>
 #include <cstdint>
 #include <functional>
+#include <optional>
+#include <string>
 #include <vector>
 
 #include "common/basin_fit.h"
@@ -19,13 +21,30 @@
 
 namespace chorus {
 
+// What a job is for. A member of the ensemble; one fold of a member (cross-fitting: it trains
+// without fold `fold` and predicts that fold, so the member has out-of-fold predictions for every
+// training row); or one point of the search grid (common/config.h SearchConfig).
+enum class JobRole { kMember, kFold, kSearch };
+const char* JobRoleName(JobRole role);
+std::optional<JobRole> ParseJobRole(const std::string& name);  // nullopt for an unknown name
+
 struct MemberSpec {
-  int index = 0;       // position in the ensemble, 0-based
+  int index = 0;       // position in the ensemble, 0-based (search: the member whose seed it uses)
   uint64_t seed = 0;   // Derive(run.seed, index); initialisation and shuffling derive from it
   ModelConfig model;
-  TrainConfig train;
+  TrainConfig train;   // train.early_stopping.mode is resolved to on or off
   BasinConfig basin;   // method none: no basin phase, the member is its own single sample
+  JobRole role = JobRole::kMember;
+  int point = 0;       // search: the grid point
+  int fold = -1;       // the fold held out, in [0, folds); -1: train on the whole training split
+  int folds = 0;       // folds of the assignment (common/folds.h AssignFolds); >= 2 with a fold
+  uint64_t fold_seed = 0;  // the assignment's seed
+  int stop_epoch = 0;  // > 0: stop after this many epochs of the train.epochs-long schedule
 };
+
+// The job's name, unique in a run and used as its directory under jobs/: "3" (member 3),
+// "fold-3-1" (member 3 without fold 1), "search-2" or "search-2-1" (grid point 2, fold 1).
+std::string JobName(const MemberSpec& spec);
 
 struct EpochProgress {
   int member = 0;
@@ -38,10 +57,20 @@ using ProgressFn = std::function<void(const EpochProgress&)>;
 struct MemberResult {
   int index = 0;
   uint64_t seed = 0;
+  JobRole role = JobRole::kMember;
+  int point = 0;                   // as in the spec
+  int fold = -1;                   // as in the spec
   std::vector<float> parameters;   // Mlp layout (common/mlp.h)
   std::vector<double> epoch_loss;  // mean training loss per epoch
-  Matrix validation_outputs;       // rows x outputs: logits, or (mean, log-variance) standardised
-  Matrix test_outputs;             // (of the trained point, before any basin phase)
+  // Mean validation NLL of the network after each training epoch (nats; regression on the
+  // standardised target); empty when the job has no validation rows.
+  std::vector<double> validation_nll;
+  int best_epoch = 0;              // 1-based epoch whose parameters were kept
+  // Outputs on the validation rows (the holdout or file; a fold job: its held-out fold, rows in
+  // ascending order) and on test: rows x outputs, logits or (mean, log-variance) standardised.
+  // Of the kept parameters, before any basin phase.
+  Matrix validation_outputs;
+  Matrix test_outputs;
   // With a basin fit: the fit, each sample's seed, and each sample's outputs (same layout as
   // above). Without one, all empty: the member is its own single sample.
   BasinFit basin;
@@ -61,8 +90,11 @@ uint64_t BasinSampleSeed(uint64_t member_seed, int sample);
 // (classification) or 2 (regression: mean and log-variance of the standardised target).
 Mlp NetworkFor(const ModelConfig& model, const PreparedData& data);
 
-// Trains member `spec.index` (then, with spec.basin.method != none, continues SGD at basin.lr
-// collecting snapshots, fits the basin and predicts with every sample). Fails with kDiverged ("epoch E, step S: training loss is nan") if a
+// Trains member `spec.index` on the training split (a fold job: on the rows outside its fold),
+// measuring the validation NLL after every epoch; with early stopping on, stops after `patience`
+// epochs without a new best and keeps the best epoch's parameters; with stop_epoch, stops there.
+// Then, with spec.basin.method != none, continues SGD at basin.lr from the kept parameters
+// (momentum reset) collecting snapshots, fits the basin and predicts with every sample. Fails with kDiverged ("epoch E, step S: training loss is nan") if a
 // minibatch loss or a final output is not finite. `progress` (may be empty) is called after each
 // epoch from the calling thread. If `cancel` (may be null) becomes true, training stops at the
 // next epoch boundary with kCancelled. With spec.train.parts > 1 the parts of each minibatch run

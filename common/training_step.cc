@@ -21,8 +21,8 @@ struct TrainingStep::PartJob {
 };
 
 TrainingStep::TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer,
-                           int64_t max_rows, int parts)
-    : net_(net), task_(task), optimizer_(optimizer), velocity_(net.ParameterCount(), 0.0f) {
+                           int64_t max_rows, int parts, float beta_nll)
+    : net_(net), task_(task), optimizer_(optimizer), beta_nll_(beta_nll), velocity_(net.ParameterCount(), 0.0f) {
   assert(parts >= 1 && parts <= max_rows);
   for (int s = 0; s < parts; ++s) {
     const int64_t part_rows = (s + 1) * max_rows / parts - s * max_rows / parts;
@@ -47,7 +47,7 @@ void TrainingStep::RunPart(void* context, int s) {
   auto grad_out = part.grad_output.topRows(rows);
   part.loss = self.task_ == Task::kClassification
                   ? SoftmaxCrossEntropy(out, job.labels + begin, grad_out, job.rows)
-                  : GaussianNll(out, job.targets + begin, grad_out, job.rows);
+                  : GaussianNll(out, job.targets + begin, grad_out, job.rows, self.beta_nll_);
   if (!std::isfinite(part.loss)) return;
   if (job.fused) {
     self.net_.BackwardWithSgd(job.params, x, grad_out, part.workspace, part.grad.data(),
@@ -81,5 +81,7 @@ double TrainingStep::Run(const ConstMatrixRef& x, const int32_t* labels, const f
   SgdStep(optimizer_, lr, n, grad, params, velocity_.data());
   return loss;
 }
+
+void TrainingStep::ResetMomentum() { std::fill(velocity_.begin(), velocity_.end(), 0.0f); }
 
 }  // namespace chorus

@@ -37,9 +37,10 @@ class TrainingStep {
   // momentum misses stall a long k loop, where a streaming pass gets the hardware prefetcher).
   static constexpr int64_t kFusedBelowRows = 64;
 
-  // max_rows: the largest minibatch Run will see; parts in [1, max_rows].
+  // max_rows: the largest minibatch Run will see; parts in [1, max_rows]. beta_nll: the
+  // regression head's beta (common/heads.h GaussianNll); ignored for classification.
   TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer, int64_t max_rows,
-               int parts);
+               int parts, float beta_nll = 0.0f);
 
   // x: rows x inputs (1 <= rows <= max_rows); labels (classification) or targets (regression) of
   // those rows, the other may be null. Updates params (ParameterCount floats) and the momentum
@@ -48,6 +49,10 @@ class TrainingStep {
   // another on the calling thread).
   double Run(const ConstMatrixRef& x, const int32_t* labels, const float* targets, float lr,
              float* params, const ParallelFor* parallel);
+
+  // Zeroes the momentum buffer, as at construction: for continuing from parameters restored
+  // from an earlier epoch, whose momentum was not kept.
+  void ResetMomentum();
 
  private:
   struct Part {
@@ -62,6 +67,7 @@ class TrainingStep {
   const Mlp& net_;
   Task task_;
   OptimizerConfig optimizer_;
+  float beta_nll_;
   std::vector<Part> parts_;
   std::vector<float> velocity_;
 };

@@ -11,6 +11,7 @@
 #include "common/file_util.h"
 #include "common/log_format.h"
 #include "coordinator/coordinator_service.h"
+#include "coordinator/job_table.h"
 #include "coordinator/local_workers.h"
 #include "coordinator/progress_view.h"
 #include "proto/data_codec.h"
@@ -67,36 +68,6 @@ std::vector<std::string> LocalWorkerArgs(const ClusterConfig& c, const Config& c
   return args;
 }
 
-// Re-queues expired leases (with events) until every job is settled; keeps the embedded workers
-// alive (restarting ones that died, up to a budget) and draws progress.
-Status Supervise(JobTable& table, CoordinatorService& service, RunDirectory& dir, LocalWorkers& workers,
-                 int wanted_workers, const std::vector<std::string>& worker_args) {
-  ProgressView view(stderr, static_cast<int>(table.Snapshot().size()));
-  int restarts_left = wanted_workers + 3 * static_cast<int>(table.Snapshot().size());
-  auto last_draw = Clock::now() - std::chrono::seconds(1);
-  while (!table.AllSettled()) {
-    std::this_thread::sleep_for(std::chrono::milliseconds(50));
-    for (const ExpiredLease& e : table.ExpireLeases(Clock::now())) {
-      dir.LogEvent(e.failed ? "member_failed" : "lease_expired",
-                   {{"member", e.job}, {"job", e.job}, {"worker", e.worker},
-                    {"cause", e.failed ? "lease expired too often" : ""}});
-    }
-    const int running = workers.WaitForExit(0);
-    if (running < wanted_workers && !table.AllSettled()) {
-      if (restarts_left <= 0) return Status::Internal("the embedded workers keep exiting; see worker.log");
-      const int n = wanted_workers - running;
-      restarts_left -= n;
-      CHORUS_RETURN_IF_ERROR(workers.Start(WorkerBinaryPath(), worker_args, n, dir.File("worker.log")));
-    }
-    if (Clock::now() - last_draw >= std::chrono::seconds(1)) {
-      view.Update(table.Snapshot(), service.Workers());
-      last_draw = Clock::now();
-    }
-  }
-  view.Finish(table.Snapshot());
-  return Status::Ok();
-}
-
 // Keeps serving until every registered worker has asked for work since the run settled (and so
 // was told DONE), or a third of a lease plus 2 s has passed: remote workers started with
 // --exit-when-done then exit instead of retrying a coordinator that is gone.
@@ -113,49 +84,129 @@ void TellRemoteWorkersDone(const CoordinatorService& service, double lease_secon
   while (!all_told() && Clock::now() < until) std::this_thread::sleep_for(std::chrono::milliseconds(50));
 }
 
+class WorkerPoolRunner final : public JobRunner {
+ public:
+  WorkerPoolRunner(const RunJobsInputs& in, RunDirectory& dir)
+      : in_(in), dir_(dir), c_(in.config->cluster),
+        table_(0, c_.max_attempts, c_.lease_seconds) {}
+
+  ~WorkerPoolRunner() override { Close(); }
+
+  StatusOr<std::vector<std::string>> Run(const std::vector<MemberSpec>& specs) override {
+    if (!server_) CHORUS_RETURN_IF_ERROR(Start());
+    const int first = service_->AddJobs(specs);
+    CHORUS_RETURN_IF_ERROR(Supervise(first, static_cast<int>(specs.size())));
+    const std::vector<JobSnapshot> jobs = table_.Snapshot();
+    std::vector<std::string> causes;
+    for (size_t i = 0; i < specs.size(); ++i) {
+      const JobSnapshot& j = jobs[first + i];
+      causes.push_back(j.state == JobState::kFailed ? (j.cause.empty() ? "failed" : j.cause) : "");
+    }
+    return causes;
+  }
+
+  WorkersSeen Workers() const override {
+    WorkersSeen seen;
+    if (!service_) return seen;
+    for (const auto& [id, view] : service_->Workers()) seen.emplace_back(id, view.host);
+    return seen;
+  }
+
+  void Close() override {
+    if (!server_) return;
+    service_->Close();
+    if (!c_.listen.empty()) TellRemoteWorkersDone(*service_, c_.lease_seconds);
+    workers_.WaitForExit(5.0);  // they exit on their own once told the run is done
+    workers_.Stop(2.0);
+    server_->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(2));
+    server_.reset();
+  }
+
+ private:
+  // The server, the token and the embedded workers.
+  Status Start() {
+    local_ = LocalWorkerCount(c_);
+    if (local_ > 0 && !c_.tls_client_ca.empty()) {
+      return Status::InvalidInput("cluster.tls.client_ca requires client certificates, which the "
+                                  "embedded workers do not have: set cluster.local_workers: 0");
+    }
+    CHORUS_ASSIGN_OR_RETURN(auto token, Token(c_, dir_));
+    CHORUS_ASSIGN_OR_RETURN(auto creds, ServerCredentials(c_));
+    service_ = std::make_unique<CoordinatorService>(
+        DispatchInputs{EncodePreparedData(*in_.data), in_.data->hash, in_.config_hash, c_.lease_seconds,
+                       token.first}, &table_, &dir_);
+    const std::string address = c_.listen.empty() ? "127.0.0.1:0" : c_.listen;
+    int port = 0;
+    grpc::ServerBuilder builder;
+    builder.AddListeningPort(address, creds, &port);
+    builder.RegisterService(service_.get());
+    builder.SetMaxReceiveMessageSize(8 << 20);
+    server_ = builder.BuildAndStart();
+    if (!server_ || port == 0) {
+      server_.reset();
+      return Status::InvalidInput("cannot listen on " + address);
+    }
+    const std::string bound = address.substr(0, address.rfind(':') + 1) + std::to_string(port);
+    CHORUS_RETURN_IF_ERROR(WriteFileAtomic(dir_.File("coordinator.json"),
+        "{\"address\": \"" + bound + "\", \"token_file\": \"" + token.second + "\"}\n"));
+    dir_.LogEvent("coordinator_listening", {{"address", bound}, {"local_workers", local_}});
+    LogLine(stderr, LogLevel::kInfo, "coordinator listening on " + bound + "; " + std::to_string(local_) +
+            " local worker(s)", {{"address", bound}, {"local_workers", local_}});
+    worker_args_ = LocalWorkerArgs(c_, *in_.config, port, token.second);
+    restarts_left_ = local_ + 3;
+    return workers_.Start(WorkerBinaryPath(), worker_args_, local_, dir_.File("worker.log"));
+  }
+
+  // Re-queues expired leases (with events) until jobs [first, first + count) are settled; keeps
+  // the embedded workers alive (restarting ones that died, up to a budget) and draws progress.
+  Status Supervise(int first, int count) {
+    ProgressView view(stderr, count);
+    restarts_left_ += 3 * count;
+    auto stage = [&] {
+      const std::vector<JobSnapshot> all = table_.Snapshot();
+      return std::vector<JobSnapshot>(all.begin() + first, all.begin() + first + count);
+    };
+    auto last_draw = Clock::now() - std::chrono::seconds(1);
+    while (!table_.AllSettled()) {
+      std::this_thread::sleep_for(std::chrono::milliseconds(50));
+      for (const ExpiredLease& e : table_.ExpireLeases(Clock::now())) {
+        const MemberSpec spec = service_->Spec(e.job);
+        dir_.LogEvent(e.failed ? (spec.role == JobRole::kMember ? "member_failed" : "job_failed") : "lease_expired",
+                      {{"member", spec.index}, {"job", JobName(spec)}, {"worker", e.worker},
+                       {"cause", e.failed ? "lease expired too often" : ""}});
+      }
+      const int running = workers_.WaitForExit(0);
+      if (running < local_ && !table_.AllSettled()) {
+        if (restarts_left_ <= 0) return Status::Internal("the embedded workers keep exiting; see worker.log");
+        const int n = local_ - running;
+        restarts_left_ -= n;
+        CHORUS_RETURN_IF_ERROR(workers_.Start(WorkerBinaryPath(), worker_args_, n, dir_.File("worker.log")));
+      }
+      if (Clock::now() - last_draw >= std::chrono::seconds(1)) {
+        view.Update(stage(), service_->Workers());
+        last_draw = Clock::now();
+      }
+    }
+    view.Finish(stage());
+    return Status::Ok();
+  }
+
+  RunJobsInputs in_;
+  RunDirectory& dir_;
+  const ClusterConfig& c_;
+  JobTable table_;
+  std::unique_ptr<CoordinatorService> service_;
+  std::unique_ptr<grpc::Server> server_;
+  LocalWorkers workers_;
+  std::vector<std::string> worker_args_;
+  int local_ = 0;
+  int restarts_left_ = 0;
+};
+
 }  // namespace
 
-StatusOr<ClusterOutcome> RunJobsOnWorkers(const ClusterJobs& jobs, RunDirectory& dir) {
-  const ClusterConfig& c = jobs.config->cluster;
-  const int local = LocalWorkerCount(c);
-  if (local > 0 && !c.tls_client_ca.empty()) {
-    return Status::InvalidInput("cluster.tls.client_ca requires client certificates, which the "
-                                "embedded workers do not have: set cluster.local_workers: 0");
-  }
-  CHORUS_ASSIGN_OR_RETURN(auto token, Token(c, dir));
-  CHORUS_ASSIGN_OR_RETURN(auto creds, ServerCredentials(c));
-  JobTable table(static_cast<int>(jobs.specs.size()), c.max_attempts, c.lease_seconds);
-  for (size_t i = 0; i < jobs.already_finished.size(); ++i) {
-    if (jobs.already_finished[i]) table.MarkFinished(static_cast<int>(i));
-  }
-  CoordinatorService service({jobs.specs, EncodePreparedData(*jobs.data), jobs.data->hash,
-                              jobs.config_hash, c.lease_seconds, token.first}, &table, &dir);
-  const std::string address = c.listen.empty() ? "127.0.0.1:0" : c.listen;
-  int port = 0;
-  grpc::ServerBuilder builder;
-  builder.AddListeningPort(address, creds, &port);
-  builder.RegisterService(&service);
-  builder.SetMaxReceiveMessageSize(8 << 20);
-  std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
-  if (!server || port == 0) return Status::InvalidInput("cannot listen on " + address);
-  const std::string bound = address.substr(0, address.rfind(':') + 1) + std::to_string(port);
-  CHORUS_RETURN_IF_ERROR(WriteFileAtomic(dir.File("coordinator.json"),
-      "{\"address\": \"" + bound + "\", \"token_file\": \"" + token.second + "\"}\n"));
-  dir.LogEvent("coordinator_listening", {{"address", bound}, {"local_workers", local}});
-  LogLine(stderr, LogLevel::kInfo, "coordinator listening on " + bound + "; " + std::to_string(local) +
-          " local worker(s)", {{"address", bound}, {"local_workers", local}});
-  LocalWorkers workers;
-  const std::vector<std::string> args = LocalWorkerArgs(c, *jobs.config, port, token.second);
-  CHORUS_RETURN_IF_ERROR(workers.Start(WorkerBinaryPath(), args, local, dir.File("worker.log")));
-  const Status st = Supervise(table, service, dir, workers, local, args);
-  if (!c.listen.empty()) TellRemoteWorkersDone(service, c.lease_seconds);
-  workers.WaitForExit(5.0);  // they exit on their own once told the run is done
-  workers.Stop(2.0);
-  server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(2));
-  CHORUS_RETURN_IF_ERROR(st);
-  ClusterOutcome outcome{table.Snapshot(), {}};
-  for (const auto& [id, view] : service.Workers()) outcome.workers.emplace_back(id, view.host);
-  return outcome;
+std::unique_ptr<JobRunner> MakeWorkerPoolRunner(const RunJobsInputs& inputs, RunDirectory& dir) {
+  return std::make_unique<WorkerPoolRunner>(inputs, dir);
 }
 
 }  // namespace chorus

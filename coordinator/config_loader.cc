@@ -6,6 +6,7 @@
 #include <functional>
 #include <limits>
 #include <set>
+#include <sstream>
 
 #include "common/file_util.h"
 #include "common/sha256.h"
@@ -144,10 +145,12 @@ Status LoadSource(const Section& data, const std::string& key, bool idx, std::st
   return data.GetString(key, csv);
 }
 
+// validation: {fraction | file | images+labels, folds}. Naming a fraction or a file asks for that
+// holdout, so `folds` then defaults to 0 instead of auto.
 Status LoadValidation(const Section& data, DataConfig* d) {
   if (!data.Has("validation")) return Status::Ok();
   Section v = data.Child("validation");
-  CHORUS_RETURN_IF_ERROR(v.Check({"fraction", "file", "images", "labels"}));
+  CHORUS_RETURN_IF_ERROR(v.Check({"fraction", "file", "images", "labels", "folds"}));
   CHORUS_RETURN_IF_ERROR(v.Get<double>("fraction", &d->validation_fraction, "a fraction", 1e-9, 0.5));
   if (d->format == "idx") {
     CHORUS_RETURN_IF_ERROR(v.GetString("images", &d->validation_idx.images));
@@ -158,13 +161,27 @@ Status LoadValidation(const Section& data, DataConfig* d) {
   } else {
     CHORUS_RETURN_IF_ERROR(v.GetString("file", &d->validation_file));
   }
+  const bool holdout_named = v.Has("fraction") || v.Has("file") || v.Has("images");
+  if (!v.Has("folds")) {
+    if (holdout_named) d->folds = 0;
+    return Status::Ok();
+  }
+  if (v.Node("folds").IsScalar() && v.Node("folds").Scalar() == "auto") {
+    d->folds = -1;
+  } else {
+    CHORUS_RETURN_IF_ERROR(v.Get<int>("folds", &d->folds, "auto, 0 (holdout) or a fold count", 0, 50));
+    if (d->folds == 1) return v.Error(v.Node("folds"), v.Path("folds"), "expected auto, 0 (holdout) or 2..50, found 1");
+  }
+  if (d->folds != 0 && (v.Has("file") || v.Has("images"))) {
+    return v.Error(v.Node("folds"), v.Path("folds"), "cross-fitting needs no validation file: remove one of them");
+  }
   return Status::Ok();
 }
 
 Status LoadData(const Section& s, const std::string& base, DataConfig* d) {
   CHORUS_RETURN_IF_ERROR(s.Check({"format", "train", "test", "validation", "target", "task",
                                   "categorical", "max_train_rows", "max_test_rows",
-                                  "true_probabilities"}));
+                                  "small_data_rows", "true_probabilities"}));
   CHORUS_RETURN_IF_ERROR(s.GetString("format", &d->format));
   if (d->format != "csv" && d->format != "idx") {
     return s.Error(s.Node("format"), s.Path("format"), "expected one of csv, idx, found \"" + d->format + "\"");
@@ -187,6 +204,7 @@ Status LoadData(const Section& s, const std::string& base, DataConfig* d) {
   }
   CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("max_train_rows", &d->max_train_rows, "a row count", 0, INT64_MAX));
   CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("max_test_rows", &d->max_test_rows, "a row count", 0, INT64_MAX));
+  CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("small_data_rows", &d->small_data_rows, "a row count", 0, INT64_MAX));
   CHORUS_RETURN_IF_ERROR(s.GetString("true_probabilities", &d->true_probabilities));
   for (std::string* p : {&d->train, &d->test, &d->validation_file, &d->true_probabilities,
                          &d->train_idx.images, &d->train_idx.labels, &d->test_idx.images,
@@ -196,20 +214,23 @@ Status LoadData(const Section& s, const std::string& base, DataConfig* d) {
   return Status::Ok();
 }
 
+// A list of hidden-layer widths, each in [1, 65536] (may be empty), at s's key `key`.
+Status LayerWidths(const Section& s, const YAML::Node& list, const std::string& key, std::vector<int>* out) {
+  if (!list.IsSequence()) return s.Error(list, s.Path(key), "expected a list of layer widths, e.g. [64, 64]");
+  out->clear();
+  for (const auto& item : list) {
+    int w = 0;
+    if (!item.IsScalar() || !YAML::convert<int>::decode(item, w) || w < 1 || w > 65536) {
+      return s.Error(item, s.Path(key), "expected a width in [1, 65536]");
+    }
+    out->push_back(w);
+  }
+  return Status::Ok();
+}
+
 Status LoadModel(const Section& s, ModelConfig* m) {
   CHORUS_RETURN_IF_ERROR(s.Check({"hidden", "activation"}));
-  if (s.Has("hidden")) {
-    const YAML::Node h = s.Node("hidden");
-    if (!h.IsSequence()) return s.Error(h, s.Path("hidden"), "expected a list of layer widths");
-    m->hidden.clear();
-    for (const auto& item : h) {
-      int w = 0;
-      if (!item.IsScalar() || !YAML::convert<int>::decode(item, w) || w < 1 || w > 65536) {
-        return s.Error(item, s.Path("hidden"), "expected a width in [1, 65536]");
-      }
-      m->hidden.push_back(w);
-    }
-  }
+  if (s.Has("hidden")) CHORUS_RETURN_IF_ERROR(LayerWidths(s, s.Node("hidden"), "hidden", &m->hidden));
   return s.GetEnum<Activation>("activation", &m->activation, ParseActivation, "relu, tanh, gelu");
 }
 
@@ -225,13 +246,24 @@ Status LoadSchedule(const Section& t, ScheduleConfig* sc) {
   return s.Get<double>("factor", &sc->step_factor, "a factor", 1e-12, 1.0);
 }
 
+Status LoadEarlyStopping(const Section& t, EarlyStoppingConfig* e) {
+  if (!t.Has("early_stopping")) return Status::Ok();
+  Section s = t.Child("early_stopping");
+  CHORUS_RETURN_IF_ERROR(s.Check({"mode", "patience"}));
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<Switch>("mode", &e->mode, ParseSwitch, "auto, on, off"));
+  return s.Get<int>("patience", &e->patience, "an epoch count", 1, 1000000);
+}
+
 Status LoadTrain(const Section& s, TrainConfig* t) {
-  CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "parts", "optimizer", "schedule"}));
+  CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "parts", "optimizer", "schedule",
+                                  "early_stopping", "beta_nll"}));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &t->epochs, "an epoch count", 1, 1000000));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("batch_size", &t->batch_size, "a batch size", 1, 1 << 20));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("parts", &t->parts, "a part count (at most batch_size)", 1,
                                     t->batch_size));
   CHORUS_RETURN_IF_ERROR(LoadSchedule(s, &t->schedule));
+  CHORUS_RETURN_IF_ERROR(LoadEarlyStopping(s, &t->early_stopping));
+  CHORUS_RETURN_IF_ERROR(s.Get<double>("beta_nll", &t->beta_nll, "a beta", 0.0, 1.0));
   if (!s.Has("optimizer")) return Status::Ok();
   Section o = s.Child("optimizer");
   OptimizerConfig* op = &t->optimizer;
@@ -287,6 +319,46 @@ Status LoadReport(const Section& s, ReportConfig* r) {
   return s.Get<int>("size_curve_subsets", &r->size_curve_subsets, "a subset count", 1, 10000);
 }
 
+// A list of numbers in [lo, hi], at most kMaxGridValues of them.
+constexpr size_t kMaxGridValues = 20;
+Status GetNumberList(const Section& s, const std::string& key, double lo, double hi,
+                     std::vector<double>* out) {
+  if (!s.Has(key)) return Status::Ok();
+  const YAML::Node list = s.Node(key);
+  if (!list.IsSequence() || list.size() == 0 || list.size() > kMaxGridValues) {
+    return s.Error(list, s.Path(key), "expected a list of 1 to 20 values");
+  }
+  for (const auto& item : list) {
+    double v = 0;
+    if (!item.IsScalar() || !YAML::convert<double>::decode(item, v) || !(v >= lo && v <= hi)) {
+      std::ostringstream range;
+      range << "expected a number in [" << lo << ", " << hi << "]";
+      return s.Error(item, s.Path(key), range.str());
+    }
+    out->push_back(v);
+  }
+  return Status::Ok();
+}
+
+Status LoadSearch(const Section& s, SearchConfig* g) {
+  CHORUS_RETURN_IF_ERROR(s.Check({"weight_decay", "lr", "hidden", "beta_nll"}));
+  CHORUS_RETURN_IF_ERROR(GetNumberList(s, "weight_decay", 0.0, 1e6, &g->weight_decay));
+  CHORUS_RETURN_IF_ERROR(GetNumberList(s, "lr", 1e-12, 1e6, &g->lr));
+  CHORUS_RETURN_IF_ERROR(GetNumberList(s, "beta_nll", 0.0, 1.0, &g->beta_nll));
+  if (s.Has("hidden")) {
+    const YAML::Node list = s.Node("hidden");
+    if (!list.IsSequence() || list.size() == 0 || list.size() > kMaxGridValues) {
+      return s.Error(list, s.Path("hidden"), "expected a list of 1 to 20 layer-width lists, e.g. [[32], [64, 64]]");
+    }
+    for (const auto& widths : list) {
+      std::vector<int> hidden;
+      CHORUS_RETURN_IF_ERROR(LayerWidths(s, widths, "hidden", &hidden));
+      g->hidden.push_back(hidden);
+    }
+  }
+  return Status::Ok();
+}
+
 Status LoadCompute(const Section& s, ComputeConfig* c) {
   CHORUS_RETURN_IF_ERROR(s.Check({"threads"}));
   return s.Get<int>("threads", &c->threads, "a thread count (0 = all cores)", 0, 4096);
@@ -325,8 +397,8 @@ Status LoadAll(const YAML::Node& root, const std::string& path, Config* c) {
   // Absolute, so the resolved config written into a run directory loads from anywhere.
   const std::string base = std::filesystem::absolute(path).parent_path().string();
   Section top(root, "", path);
-  CHORUS_RETURN_IF_ERROR(top.Check({"run", "data", "model", "train", "ensemble", "report", "compute",
-                                    "cluster"}));
+  CHORUS_RETURN_IF_ERROR(top.Check({"run", "data", "model", "train", "ensemble", "report", "search",
+                                    "compute", "cluster"}));
   if (!top.Has("data")) return Status::InvalidInput(path + ": data: required section is missing");
   if (top.Has("run")) CHORUS_RETURN_IF_ERROR(LoadRun(top.Child("run"), &c->run));
   CHORUS_RETURN_IF_ERROR(LoadData(top.Child("data"), base.empty() ? "." : base, &c->data));
@@ -335,6 +407,7 @@ Status LoadAll(const YAML::Node& root, const std::string& path, Config* c) {
   if (top.Has("ensemble")) CHORUS_RETURN_IF_ERROR(LoadEnsemble(top.Child("ensemble"), &c->ensemble));
   else c->ensemble.min_members = c->ensemble.members;
   if (top.Has("report")) CHORUS_RETURN_IF_ERROR(LoadReport(top.Child("report"), &c->report));
+  if (top.Has("search")) CHORUS_RETURN_IF_ERROR(LoadSearch(top.Child("search"), &c->search));
   if (top.Has("compute")) CHORUS_RETURN_IF_ERROR(LoadCompute(top.Child("compute"), &c->compute));
   if (top.Has("cluster")) {
     CHORUS_RETURN_IF_ERROR(LoadCluster(top.Child("cluster"), base.empty() ? "." : base, &c->cluster));
@@ -363,12 +436,16 @@ void EmitData(YAML::Emitter& out, const DataConfig& d) {
     out << YAML::Key << "images" << YAML::Value << d.validation_idx.images << YAML::Key << "labels"
         << YAML::Value << d.validation_idx.labels;
   } else out << YAML::Key << "fraction" << YAML::Value << d.validation_fraction;
+  out << YAML::Key << "folds" << YAML::Value;
+  if (d.folds < 0) out << "auto";
+  else out << d.folds;
   out << YAML::EndMap;
   if (!idx) out << YAML::Key << "target" << YAML::Value << d.target;
   out << YAML::Key << "task" << YAML::Value << TaskName(d.task);
   if (!idx) out << YAML::Key << "categorical" << YAML::Value << YAML::Flow << d.categorical;
   out << YAML::Key << "max_train_rows" << YAML::Value << d.max_train_rows;
   out << YAML::Key << "max_test_rows" << YAML::Value << d.max_test_rows;
+  out << YAML::Key << "small_data_rows" << YAML::Value << d.small_data_rows;
   if (!d.true_probabilities.empty()) {
     out << YAML::Key << "true_probabilities" << YAML::Value << d.true_probabilities;
   }
@@ -392,7 +469,21 @@ void EmitTrain(YAML::Emitter& out, const TrainConfig& t) {
     out << YAML::Key << "every_epochs" << YAML::Value << t.schedule.step_every_epochs << YAML::Key
         << "factor" << YAML::Value << t.schedule.step_factor;
   }
-  out << YAML::EndMap << YAML::EndMap;
+  out << YAML::EndMap;
+  out << YAML::Key << "early_stopping" << YAML::Value << YAML::Flow << YAML::BeginMap << YAML::Key
+      << "mode" << YAML::Value << SwitchName(t.early_stopping.mode) << YAML::Key << "patience"
+      << YAML::Value << t.early_stopping.patience << YAML::EndMap;
+  out << YAML::Key << "beta_nll" << YAML::Value << t.beta_nll << YAML::EndMap;
+}
+
+void EmitSearch(YAML::Emitter& out, const SearchConfig& g) {
+  if (g.empty()) return;
+  out << YAML::Key << "search" << YAML::Value << YAML::BeginMap;
+  if (!g.weight_decay.empty()) out << YAML::Key << "weight_decay" << YAML::Value << YAML::Flow << g.weight_decay;
+  if (!g.lr.empty()) out << YAML::Key << "lr" << YAML::Value << YAML::Flow << g.lr;
+  if (!g.hidden.empty()) out << YAML::Key << "hidden" << YAML::Value << YAML::Flow << g.hidden;
+  if (!g.beta_nll.empty()) out << YAML::Key << "beta_nll" << YAML::Value << YAML::Flow << g.beta_nll;
+  out << YAML::EndMap;
 }
 
 void EmitBasin(YAML::Emitter& out, const BasinConfig& b) {
@@ -454,6 +545,7 @@ std::string Emit(const Config& c, bool everything) {
   out << YAML::Key << "report" << YAML::Value << YAML::BeginMap << YAML::Key << "ece_bins"
       << YAML::Value << c.report.ece_bins << YAML::Key << "size_curve_subsets" << YAML::Value
       << c.report.size_curve_subsets << YAML::EndMap;
+  EmitSearch(out, c.search);
   if (everything) {
     out << YAML::Key << "compute" << YAML::Value << YAML::BeginMap << YAML::Key << "threads"
         << YAML::Value << c.compute.threads << YAML::EndMap;

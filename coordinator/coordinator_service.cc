@@ -26,6 +26,32 @@ CoordinatorService::CoordinatorService(DispatchInputs inputs, JobTable* table, R
     : in_(std::move(inputs)), data_sha_(Sha256Hex(in_.data_bytes.data(), in_.data_bytes.size())),
       table_(table), dir_(dir) {}
 
+int CoordinatorService::AddJobs(const std::vector<MemberSpec>& specs) {
+  std::lock_guard<std::mutex> lock(mu_);
+  specs_.insert(specs_.end(), specs.begin(), specs.end());
+  return table_->AddJobs(static_cast<int>(specs.size()));
+}
+
+void CoordinatorService::Close() {
+  std::lock_guard<std::mutex> lock(mu_);
+  closed_ = true;
+}
+
+MemberSpec CoordinatorService::Spec(int job) const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return specs_[static_cast<size_t>(job)];
+}
+
+void CoordinatorService::LogJobEvent(int job, bool failed, nlohmann::json fields) {
+  const MemberSpec spec = Spec(job);
+  const bool member = spec.role == JobRole::kMember;
+  fields["member"] = spec.index;
+  fields["job"] = JobName(spec);
+  if (!member) fields["role"] = JobRoleName(spec.role);
+  dir_->LogEvent(member ? (failed ? "member_failed" : "member_finished")
+                        : (failed ? "job_failed" : "job_finished"), fields);
+}
+
 grpc::Status CoordinatorService::Authenticate(grpc::ServerContext* ctx) {
   const auto& md = ctx->client_metadata();
   const auto it = md.find("x-chorus-token");
@@ -52,7 +78,8 @@ int CoordinatorService::JobIndex(const std::string& job_id) const {
   } catch (...) {
     return -1;
   }
-  return index >= 0 && index < static_cast<int>(in_.specs.size()) ? index : -1;
+  std::lock_guard<std::mutex> lock(mu_);
+  return index >= 0 && index < static_cast<int>(specs_.size()) ? index : -1;
 }
 
 void CoordinatorService::Seen(const std::string& worker, const std::string& job,
@@ -92,7 +119,12 @@ grpc::Status CoordinatorService::Lease(grpc::ServerContext* ctx, const wire::Lea
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
   const std::optional<JobLease> lease = table_->Lease(req->worker_id(), Clock::now());
   if (!lease) {
-    reply->set_kind(table_->AllSettled() ? wire::LeaseReply::DONE : wire::LeaseReply::WAIT);
+    bool closed = false;
+    {
+      std::lock_guard<std::mutex> lock(mu_);
+      closed = closed_;
+    }
+    reply->set_kind(closed && table_->AllSettled() ? wire::LeaseReply::DONE : wire::LeaseReply::WAIT);
     reply->set_retry_after_seconds(0.5);
     Seen(req->worker_id(), "", nullptr);
     return grpc::Status::OK;
@@ -100,11 +132,12 @@ grpc::Status CoordinatorService::Lease(grpc::ServerContext* ctx, const wire::Lea
   reply->set_kind(wire::LeaseReply::JOB);
   reply->set_job_id(std::to_string(lease->job));
   reply->set_lease_id(lease->lease_id);
-  SpecToWire(in_.specs[lease->job], reply->mutable_spec());
+  const MemberSpec spec = Spec(lease->job);
+  SpecToWire(spec, reply->mutable_spec());
   reply->set_data_hash(in_.data_hash);
   reply->set_config_hash(in_.config_hash);
   Seen(req->worker_id(), std::to_string(lease->job), nullptr);
-  dir_->LogEvent("job_leased", {{"job", lease->job}, {"worker", req->worker_id()},
+  dir_->LogEvent("job_leased", {{"job", JobName(spec)}, {"worker", req->worker_id()},
                                 {"attempt", lease->attempt}, {"lease", lease->lease_id}});
   return grpc::Status::OK;
 }
@@ -169,18 +202,23 @@ grpc::Status CoordinatorService::UploadResult(grpc::ServerContext* ctx,
 
 grpc::Status CoordinatorService::Store(int job, const std::string& worker, const std::string& bytes,
                                        wire::UploadReply* reply) {
-  const std::string source = "result of job " + std::to_string(job) + " from " + worker;
+  const MemberSpec spec = Spec(job);
+  const std::string source = "result of job " + JobName(spec) + " from " + worker;
   StatusOr<MemberResult> decoded = DecodeJobResult(bytes, source, in_.data_hash, in_.config_hash);
   if (!decoded.ok()) return Invalid(decoded.status().message());
-  if (decoded.value().index != job) return Invalid(source + ": names member " + std::to_string(decoded.value().index));
-  StatusOr<std::string> job_dir = dir_->JobDir(job);
+  const MemberResult& r = decoded.value();
+  if (r.index != spec.index || r.role != spec.role || r.point != spec.point || r.fold != spec.fold) {
+    return Invalid(source + ": is the result of another job (" + JobRoleName(r.role) + ", member " +
+                   std::to_string(r.index) + ")");
+  }
+  StatusOr<std::string> job_dir = dir_->JobDir(JobName(spec));
   if (!job_dir.ok()) return grpc::Status(grpc::StatusCode::INTERNAL, job_dir.status().message());
   const std::string path = job_dir.value() + "/result.pb";
   auto duplicate = [&] {
     StatusOr<std::string> first = ReadFileToString(path);
     const bool same = first.ok() && first.value() == bytes;
     reply->set_outcome(same ? wire::UploadReply::DUPLICATE_IDENTICAL : wire::UploadReply::DUPLICATE_DIFFERENT);
-    dir_->LogEvent("duplicate_result", {{"job", job}, {"worker", worker}, {"identical", same}});
+    dir_->LogEvent("duplicate_result", {{"job", JobName(spec)}, {"worker", worker}, {"identical", same}});
     return grpc::Status::OK;
   };
   if (table_->Snapshot()[job].state == JobState::kFinished) return duplicate();
@@ -191,7 +229,7 @@ grpc::Status CoordinatorService::Store(int job, const std::string& worker, const
   if (!table_->Finish(job)) return duplicate();
   reply->set_outcome(wire::UploadReply::ACCEPTED);
   Seen(worker, "", nullptr);
-  dir_->LogEvent("member_finished", {{"member", job}, {"job", job}, {"worker", worker}});
+  LogJobEvent(job, false, {{"worker", worker}});
   return grpc::Status::OK;
 }
 
@@ -202,8 +240,12 @@ grpc::Status CoordinatorService::ReportFailure(grpc::ServerContext* ctx, const w
   if (job < 0) return Invalid("unknown job " + req->job_id());
   const bool failed = table_->Fail(job, req->lease_id(), req->cause(), req->deterministic());
   Seen(req->worker_id(), "", nullptr);
-  dir_->LogEvent(failed ? "member_failed" : "job_retry",
-                 {{"member", job}, {"job", job}, {"worker", req->worker_id()}, {"cause", req->cause()}});
+  if (failed) {
+    LogJobEvent(job, true, {{"worker", req->worker_id()}, {"cause", req->cause()}});
+  } else {
+    dir_->LogEvent("job_retry", {{"member", Spec(job).index}, {"job", JobName(Spec(job))},
+                                 {"worker", req->worker_id()}, {"cause", req->cause()}});
+  }
   return grpc::Status::OK;
 }
 
@@ -214,7 +256,7 @@ grpc::Status CoordinatorService::ReturnLease(grpc::ServerContext* ctx, const wir
   if (job < 0) return Invalid("unknown job " + req->job_id());
   table_->Return(job, req->lease_id());
   Seen(req->worker_id(), "", nullptr);
-  dir_->LogEvent("lease_returned", {{"job", job}, {"worker", req->worker_id()}});
+  dir_->LogEvent("lease_returned", {{"job", JobName(Spec(job))}, {"worker", req->worker_id()}});
   return grpc::Status::OK;
 }
 

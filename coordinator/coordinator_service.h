@@ -18,7 +18,6 @@
 namespace chorus {
 
 struct DispatchInputs {
-  std::vector<MemberSpec> specs;  // job i trains specs[i]
   std::string data_bytes;         // EncodePreparedData(...)
   std::string data_hash;          // PreparedData::hash
   std::string config_hash;
@@ -37,7 +36,16 @@ struct WorkerView {
 
 class CoordinatorService final : public wire::Coordinator::Service {
  public:
+  // Starts with no jobs; AddJobs adds them stage by stage.
   CoordinatorService(DispatchInputs inputs, JobTable* table, RunDirectory* dir);
+
+  // Appends jobs to the table (job first + i trains specs[i]); returns `first`.
+  int AddJobs(const std::vector<MemberSpec>& specs);
+  // No more jobs will be added: once all are settled, workers asking for work are told DONE
+  // (until then they are told to wait, even between stages).
+  void Close();
+  // The spec of job `job` (a table index).
+  MemberSpec Spec(int job) const;
 
   grpc::Status Register(grpc::ServerContext* ctx, const wire::RegisterRequest* req,
                         wire::RegisterReply* reply) override;
@@ -66,11 +74,17 @@ class CoordinatorService final : public wire::Coordinator::Service {
   grpc::Status Store(int job, const std::string& worker, const std::string& bytes, wire::UploadReply* reply);
   void Seen(const std::string& worker, const std::string& job, const wire::HeartbeatRequest* progress);
 
+  // Logs a finish or failure of `job` as member_finished / member_failed (members) or
+  // job_finished / job_failed (fold and search jobs).
+  void LogJobEvent(int job, bool failed, nlohmann::json fields);
+
   const DispatchInputs in_;
   const std::string data_sha_;
   JobTable* table_;
   RunDirectory* dir_;
   mutable std::mutex mu_;
+  std::vector<MemberSpec> specs_;              // guarded by mu_; job i trains specs_[i]
+  bool closed_ = false;                        // guarded by mu_
   std::map<std::string, WorkerView> workers_;  // guarded by mu_
   int next_worker_ = 1;                        // guarded by mu_
   int refused_ = 0;                            // guarded by mu_

@@ -17,6 +17,13 @@ JobTable::JobTable(int jobs, int max_attempts, double lease_seconds)
       lease_(std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(lease_seconds))),
       jobs_(static_cast<size_t>(jobs)) {}
 
+int JobTable::AddJobs(int jobs) {
+  std::lock_guard<std::mutex> lock(mu_);
+  const int first = static_cast<int>(jobs_.size());
+  jobs_.resize(jobs_.size() + static_cast<size_t>(jobs));
+  return first;
+}
+
 void JobTable::MarkFinished(int job) {
   std::lock_guard<std::mutex> lock(mu_);
   jobs_[job].state = JobState::kFinished;

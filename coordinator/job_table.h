@@ -1,4 +1,4 @@
-// The coordinator's job table: which member jobs are queued, leased (to whom, until when),
+// The coordinator's job table: which jobs are queued, leased (to whom, until when),
 // finished or failed, and how many attempts each has used. Pure bookkeeping with the clock passed
 // in, so tests drive it without sleeping; the gRPC service and events sit around it.
 // Thread safety: all methods are safe to call concurrently (one internal mutex).
@@ -43,6 +43,9 @@ class JobTable {
   // `jobs` jobs, all queued; a lease lasts `lease_seconds` from its last renewal; a job fails after
   // `max_attempts` leases that ended without a result.
   JobTable(int jobs, int max_attempts, double lease_seconds);
+
+  // Appends `jobs` queued jobs (the next stage of a run); returns the index of the first.
+  int AddJobs(int jobs);
 
   // Marks a job finished before any leasing (its result was found on disk when resuming).
   void MarkFinished(int job);

@@ -15,13 +15,14 @@
 #include "common/log_format.h"
 #include "common/rng.h"
 #include "coordinator/bundle_writer.h"
-#include "coordinator/cluster_run.h"
+#include "common/folds.h"
+#include "coordinator/job_runner.h"
+#include "coordinator/run_stages.h"
+#include "coordinator/training_facts.h"
 #include "coordinator/config_loader.h"
 #include "coordinator/run_directory.h"
 #include "coordinator/run_report.h"
 #include "coordinator/terminal.h"
-#include "proto/result_codec.h"
-#include "worker/local_trainer.h"
 
 namespace chorus {
 namespace {
@@ -51,38 +52,27 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
   return in;
 }
 
-std::vector<MemberSpec> PlanMembers(const Config& c) {
-  std::vector<MemberSpec> specs;
-  for (int i = 0; i < c.ensemble.members; ++i) {
-    specs.push_back({i, Derive(c.run.seed, static_cast<uint64_t>(i)), c.model, c.train, c.ensemble.basin});
-  }
-  return specs;
-}
-
-bool InProcess(const Config& c) { return c.cluster.local_workers == 0 && c.cluster.listen.empty(); }
-
 std::string HostName() {
   char buf[256] = {};
   gethostname(buf, sizeof buf - 1);
   return buf;
 }
 
-// Who trained the members: the workers that registered, or this process.
-using WorkersSeen = std::vector<std::pair<std::string, std::string>>;
-
 json Manifest(const Inputs& in, const std::string& status, const std::string& cause, double seconds,
               const WorkersSeen& workers = {}) {
   json seen = json::array();
   for (const auto& [id, host] : workers) seen.push_back({{"id", id}, {"host", host}});
   json seeds = json::array();
-  for (const MemberSpec& s : PlanMembers(in.config)) seeds.push_back(std::to_string(s.seed));
+  for (int i = 0; i < in.config.ensemble.members; ++i) {
+    seeds.push_back(std::to_string(Derive(in.config.run.seed, static_cast<uint64_t>(i))));
+  }
   const unsigned cores = std::thread::hardware_concurrency();
   return {{"status", status}, {"cause", cause}, {"chorus_version", CHORUS_VERSION},
           {"config_hash", in.config_hash}, {"data_hash", in.data.hash},
           {"run_seed", std::to_string(in.config.run.seed)}, {"member_seeds", seeds},
           {"wall_seconds", seconds}, {"gemm_backend", GemmBackendName()},
           {"coordinator", {{"host", HostName()}, {"cores", cores},
-                           {"mode", InProcess(in.config) ? "in-process" : "workers"}}},
+                           {"mode", TrainsInProcess(in.config) ? "in-process" : "workers"}}},
           {"workers", seen}};
 }
 
@@ -96,89 +86,6 @@ Status CheckResumable(const RunDirectory& dir, const Inputs& in) {
   }
   if (m.value("status", "") == "complete") return Status::InvalidInput(dir.path() + ": run already complete");
   return Status::Ok();
-}
-
-// Results already on disk that decode against this run's hashes.
-std::vector<bool> FinishedOnDisk(const RunDirectory& dir, const Inputs& in, int jobs) {
-  std::vector<bool> done(static_cast<size_t>(jobs), false);
-  for (int i = 0; i < jobs; ++i) {
-    const std::string path = dir.path() + "/jobs/" + std::to_string(i) + "/result.pb";
-    if (!std::filesystem::exists(path)) continue;
-    StatusOr<std::string> bytes = ReadFileToString(path);
-    done[i] = bytes.ok() && DecodeJobResult(bytes.value(), path, in.data.hash, in.config_hash).ok();
-  }
-  return done;
-}
-
-// Trains the unfinished members in this process, storing each result as it finishes.
-std::vector<std::string> TrainInProcess(const Inputs& in, RunDirectory& dir, const std::vector<bool>& finished) {
-  std::vector<MemberSpec> specs;
-  for (const MemberSpec& s : PlanMembers(in.config)) {
-    if (!finished[s.index]) specs.push_back(s);
-  }
-  const std::vector<int> widths = NetworkFor(in.config.model, in.data).widths();
-  const BasinConfig& basin = in.config.ensemble.basin;
-  ProgressPrinter printer(stderr, static_cast<int>(specs.size()),
-                          in.config.train.epochs + (basin.method == BasinMethod::kNone ? 0 : basin.epochs));
-  std::vector<std::string> failures;
-  auto done = [&](const MemberSpec& spec, const StatusOr<MemberResult>& r) {
-    Status st = r.status();
-    if (st.ok()) {
-      StatusOr<std::string> job_dir = dir.JobDir(spec.index);
-      st = job_dir.ok() ? WriteFileAtomic(job_dir.value() + "/result.pb",
-                                          EncodeJobResult(r.value(), widths, in.data.hash, in.config_hash))
-                        : job_dir.status();
-    }
-    if (!st.ok()) failures.push_back("member " + std::to_string(spec.index) + ": " + st.ToString());
-    dir.LogEvent(st.ok() ? "member_finished" : "member_failed",
-                 {{"member", spec.index}, {"cause", st.ok() ? "" : st.ToString()}});
-    printer.OnMemberDone(spec.index, st);
-  };
-  TrainMembersLocally(specs, in.data, in.config.compute.threads,
-                      [&](const EpochProgress& p) { printer.OnEpoch(p); }, done);
-  printer.Finish();
-  return failures;
-}
-
-struct TrainingOutcome {
-  std::vector<std::string> failures;  // "member i: cause"
-  WorkersSeen workers;
-};
-
-// Trains what is not finished, in process or on workers.
-StatusOr<TrainingOutcome> TrainMembers(const Inputs& in, RunDirectory& dir) {
-  const std::vector<bool> finished = FinishedOnDisk(dir, in, in.config.ensemble.members);
-  int kept = 0;
-  for (bool f : finished) kept += f;
-  dir.LogEvent("training_started", {{"members", in.config.ensemble.members}, {"already_finished", kept}});
-  if (InProcess(in.config)) {
-    const unsigned threads = in.config.compute.threads > 0 ? in.config.compute.threads
-                                                           : std::thread::hardware_concurrency();
-    return TrainingOutcome{TrainInProcess(in, dir, finished),
-                           {{"in-process (" + std::to_string(threads) + " threads)", HostName()}}};
-  }
-  CHORUS_ASSIGN_OR_RETURN(ClusterOutcome run, RunJobsOnWorkers({&in.config, &in.data, in.config_hash,
-                                                                PlanMembers(in.config), finished}, dir));
-  TrainingOutcome outcome{{}, run.workers};
-  for (size_t i = 0; i < run.jobs.size(); ++i) {
-    if (run.jobs[i].state == JobState::kFailed) {
-      outcome.failures.push_back("member " + std::to_string(i) + ": " + run.jobs[i].cause);
-    }
-  }
-  return outcome;
-}
-
-// Every finished member's result, read back from disk, in member order.
-StatusOr<std::vector<MemberResult>> LoadResults(const RunDirectory& dir, const Inputs& in) {
-  std::vector<MemberResult> members;
-  for (int i = 0; i < in.config.ensemble.members; ++i) {
-    const std::string path = dir.path() + "/jobs/" + std::to_string(i) + "/result.pb";
-    if (!std::filesystem::exists(path)) continue;
-    CHORUS_ASSIGN_OR_RETURN(std::string bytes, ReadFileToString(path));
-    CHORUS_ASSIGN_OR_RETURN(MemberResult r, DecodeJobResult(bytes, path, in.data.hash, in.config_hash));
-    members.push_back(std::move(r));
-  }
-  return members;
 }
 
 int Fail(RunDirectory& dir, const Inputs& in, const Status& st, double seconds) {
@@ -202,33 +109,52 @@ StatusOr<RunDirectory> OpenOrCreate(const RunOptions& options, const Inputs& in)
   return dir;
 }
 
-// Assembles, reports and writes the closing files of a run whose members are on disk.
-int Finish(RunDirectory& dir, const Inputs& in, const TrainingOutcome& trained, double seconds) {
+// Basin-fit scale tuning (basin.scale: tune) on validation, out of fold when cross-fitting;
+// rewrites the members' sample outputs and returns the config with the chosen scale.
+Config TuneScale(const Inputs& in, TrainedRun& trained, RunDirectory& dir) {
+  Config assembled = trained.chosen;
+  BasinConfig& basin = assembled.ensemble.basin;
+  if (basin.method == BasinMethod::kNone || !basin.tune_scale) return assembled;
+  const Mlp net = NetworkFor(assembled.model, in.data);
+  if (in.data.folds == 0) {
+    basin.scale = TuneBasinScale(in.data, net, trained.members);
+  } else {
+    std::vector<std::vector<const MemberResult*>> folds;
+    for (const std::vector<MemberResult>& f : trained.member_folds) {
+      folds.emplace_back();
+      for (const MemberResult& r : f) folds.back().push_back(&r);
+    }
+    basin.scale = TuneBasinScaleOutOfFold(in.data, net, trained.fold_of_row, folds, trained.members);
+  }
+  dir.LogEvent("basin_scale_tuned", {{"scale", basin.scale}});
+  return assembled;
+}
+
+// Assembles, reports and writes the closing files of a run whose members have trained.
+int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const WorkersSeen& workers,
+           double seconds) {
   const std::vector<std::string>& failures = trained.failures;
   for (const std::string& f : failures) LogPrintf(stderr, LogLevel::kError, "failed: %s", f.c_str());
-  StatusOr<std::vector<MemberResult>> loaded = LoadResults(dir, in);
-  if (!loaded.ok()) return Fail(dir, in, loaded.status(), seconds);
-  std::vector<MemberResult>& members = loaded.value();
+  std::vector<MemberResult>& members = trained.members;
   if (static_cast<int>(members.size()) < in.config.ensemble.min_members || members.empty()) {
     return Fail(dir, in, Status::Refused(std::to_string(members.size()) + " members finished, fewer than min_members = " +
                                          std::to_string(in.config.ensemble.min_members)), seconds);
   }
-  // The config as assembled: with basin.scale: tune, the scale chosen on validation.
-  Config assembled = in.config;
-  if (assembled.ensemble.basin.method != BasinMethod::kNone && assembled.ensemble.basin.tune_scale) {
-    assembled.ensemble.basin.scale = TuneBasinScale(in.data, NetworkFor(in.config.model, in.data), members);
-    dir.LogEvent("basin_scale_tuned", {{"scale", assembled.ensemble.basin.scale}});
-  }
-  const EnsembleEvaluation ev = EvaluateEnsemble(in.data, members, assembled.ensemble, in.config.report,
+  // The config as assembled: the search's point, and with basin.scale: tune the chosen scale.
+  const Config assembled = TuneScale(in, trained, dir);
+  // Cross-fitting: assembly sees every training row as validation, out of fold.
+  const std::optional<PreparedData> out_of_fold =
+      in.data.folds > 0 ? std::optional<PreparedData>(OutOfFoldView(in.data)) : std::nullopt;
+  const PreparedData& assembly_data = out_of_fold ? *out_of_fold : in.data;
+  const EnsembleEvaluation ev = EvaluateEnsemble(assembly_data, members, assembled.ensemble, in.config.report,
                                                  in.config.run.seed,
                                                  in.true_probabilities ? &*in.true_probabilities : nullptr);
   const RunFacts facts{in.config.run.name, in.data.hash, in.config_hash, in.config.ensemble.members,
                        failures, seconds};
   json report = ReportJson(ev, in.data, facts);
-  if (assembled.ensemble.basin.method != BasinMethod::kNone) report["basin_scale"] = assembled.ensemble.basin.scale;
+  AddTrainingFacts(assembled, in.data, trained, report);
   // The manifest first: the report copies it (workers, version) into report.json and the page.
-  Status st = WriteFileAtomic(dir.File("manifest.json"),
-                              Manifest(in, "complete", "", seconds, trained.workers).dump(2));
+  Status st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds, workers).dump(2));
   if (st.ok()) st = WriteReportFiles(dir.path(), report);
   if (st.ok()) {
     st = WriteRunBundle(dir.File("bundle.chorus"), assembled, in.data, members, ev, in.config_hash);
@@ -260,9 +186,11 @@ int RunCommand(const RunOptions& options) {
   LogPrintf(stderr, LogLevel::kInfo, "data: %lld train, %lld validation, %lld test rows; %lld features",
             static_cast<long long>(in.data.train.rows()), static_cast<long long>(in.data.validation.rows()),
             static_cast<long long>(in.data.test.rows()), static_cast<long long>(in.data.features()));
-  StatusOr<TrainingOutcome> trained = TrainMembers(in, dir);
+  std::unique_ptr<JobRunner> runner = MakeJobRunner({&in.config, &in.data, in.config_hash}, dir);
+  StatusOr<TrainedRun> trained = TrainRun(in.config, in.data, in.config_hash, dir, *runner);
+  runner->Close();
   if (!trained.ok()) return Fail(dir, in, trained.status(), seconds());
-  return Finish(dir, in, trained.value(), seconds());
+  return Finish(dir, in, trained.value(), runner->Workers(), seconds());
 }
 
 }  // namespace chorus

@@ -47,8 +47,8 @@ StatusOr<RunDirectory> RunDirectory::Open(const std::string& path) {
   return RunDirectory(path);
 }
 
-StatusOr<std::string> RunDirectory::JobDir(int index) const {
-  const std::string dir = path_ + "/jobs/" + std::to_string(index);
+StatusOr<std::string> RunDirectory::JobDir(const std::string& name) const {
+  const std::string dir = path_ + "/jobs/" + name;
   CHORUS_RETURN_IF_ERROR(MakeDirectories(dir));
   return dir;
 }

@@ -21,8 +21,10 @@ class RunDirectory {
 
   const std::string& path() const { return path_; }
   std::string File(const std::string& name) const { return path_ + "/" + name; }
-  // jobs/<index>/, created on first use.
-  StatusOr<std::string> JobDir(int index) const;
+  // jobs/<name>/ (name: common/member_training.h JobName), created on first use.
+  StatusOr<std::string> JobDir(const std::string& name) const;
+  // jobs/<name>/result.pb, whether or not it exists.
+  std::string JobResultPath(const std::string& name) const { return path_ + "/jobs/" + name + "/result.pb"; }
 
   // Appends {"time": ISO-8601 UTC, "event": kind, ...fields} to events.jsonl.
   Status LogEvent(const std::string& kind, nlohmann::json fields = nlohmann::json::object());

@@ -18,8 +18,12 @@ enum BasinField { kMethod = 1, kMean = 2, kVariance = 3, kDeviations = 4 };
 enum ResultField {
   kFormatVersion = 1, kMemberIndex = 2, kSeed = 3, kDataHash = 4, kConfigHash = 5, kWidths = 6,
   kParameters = 7, kEpochLoss = 8, kValidationOutputs = 9, kTestOutputs = 10, kBasin = 11,
-  kSampleSeeds = 12, kSampleValidationOutputs = 13, kSampleTestOutputs = 14
+  kSampleSeeds = 12, kSampleValidationOutputs = 13, kSampleTestOutputs = 14, kRole = 15,
+  kPoint = 16, kFold = 17, kValidationNll = 18, kBestEpoch = 19
 };
+
+// An int32 field as libprotobuf writes it: negative values sign-extended to 64 bits.
+uint64_t Int32Varint(int v) { return static_cast<uint64_t>(static_cast<int64_t>(v)); }
 
 uint32_t Tag(int field, WireFormatLite::WireType type) {
   return static_cast<uint32_t>(field) << 3 | static_cast<uint32_t>(type);
@@ -85,7 +89,7 @@ class JobResultWriter {
                   const std::string& data_hash, const std::string& config_hash)
       : r_(r), widths_(widths), data_hash_(data_hash), config_hash_(config_hash),
         basin_(r.basin.method != BasinMethod::kNone),
-        method_(basin_ ? BasinMethodName(r.basin.method) : "") {}
+        method_(basin_ ? BasinMethodName(r.basin.method) : ""), role_(JobRoleName(r.role)) {}
 
   size_t Size() const {
     size_t n = 1 + VarintSize(kJobResultFormatVersion) + VarintFieldSize(static_cast<uint64_t>(
@@ -96,11 +100,15 @@ class JobResultWriter {
         PackedSize(kEpochLoss, r_.epoch_loss.size() * sizeof(double)) +
         DelimitedSize(kValidationOutputs, MatrixPayloadSize(r_.validation_outputs)) +
         DelimitedSize(kTestOutputs, MatrixPayloadSize(r_.test_outputs));
-    if (!basin_) return n;
-    n += DelimitedSize(kBasin, BasinPayloadSize()) + PackedSize(kSampleSeeds, SeedsPayloadSize());
-    for (const Matrix& m : r_.sample_validation_outputs) n += DelimitedSize(kSampleValidationOutputs, MatrixPayloadSize(m));
-    for (const Matrix& m : r_.sample_test_outputs) n += DelimitedSize(kSampleTestOutputs, MatrixPayloadSize(m));
-    return n;
+    if (basin_) {
+      n += DelimitedSize(kBasin, BasinPayloadSize()) + PackedSize(kSampleSeeds, SeedsPayloadSize());
+      for (const Matrix& m : r_.sample_validation_outputs) n += DelimitedSize(kSampleValidationOutputs, MatrixPayloadSize(m));
+      for (const Matrix& m : r_.sample_test_outputs) n += DelimitedSize(kSampleTestOutputs, MatrixPayloadSize(m));
+    }
+    return n + PackedSize(kRole, role_.size()) + VarintFieldSize(Int32Varint(r_.point)) +
+           VarintFieldSize(Int32Varint(r_.fold)) +
+           PackedSize(kValidationNll, r_.validation_nll.size() * sizeof(double)) +
+           VarintFieldSize(Int32Varint(r_.best_epoch));
   }
 
   void Write(io::CodedOutputStream& out) const {
@@ -117,7 +125,16 @@ class JobResultWriter {
     WritePacked(out, kEpochLoss, r_.epoch_loss.data(), r_.epoch_loss.size());
     WriteMatrixField(out, kValidationOutputs, r_.validation_outputs);
     WriteMatrixField(out, kTestOutputs, r_.test_outputs);
-    if (!basin_) return;
+    if (basin_) WriteBasin(out);
+    WriteStringField(out, kRole, role_);
+    WriteVarintField(out, kPoint, Int32Varint(r_.point));
+    WriteVarintField(out, kFold, Int32Varint(r_.fold));
+    WritePacked(out, kValidationNll, r_.validation_nll.data(), r_.validation_nll.size());
+    WriteVarintField(out, kBestEpoch, Int32Varint(r_.best_epoch));
+  }
+
+ private:
+  void WriteBasin(io::CodedOutputStream& out) const {
     WriteDelimitedHeader(out, kBasin, BasinPayloadSize());
     WriteStringField(out, kMethod, method_);
     WritePacked(out, kMean, r_.basin.mean.data(), r_.basin.mean.size());
@@ -131,7 +148,6 @@ class JobResultWriter {
     for (const Matrix& m : r_.sample_test_outputs) WriteMatrixField(out, kSampleTestOutputs, m);
   }
 
- private:
   static size_t VarintFieldSize(uint64_t v) { return v == 0 ? 0 : 1 + VarintSize(v); }
 
   size_t WidthsPayloadSize() const {
@@ -157,6 +173,7 @@ class JobResultWriter {
   const std::string& config_hash_;
   const bool basin_;
   const std::string method_;
+  const std::string role_;
 };
 
 // Hands each full buffer of a CopyingOutputStreamAdaptor to a ByteSink.
@@ -251,6 +268,13 @@ StatusOr<MemberResult> DecodeJobResult(const std::string& bytes, const std::stri
   MemberResult r;
   r.index = msg.member_index();
   r.seed = msg.seed();
+  const std::optional<JobRole> role = ParseJobRole(msg.role());
+  if (!role) return Status::InvalidInput(source + ": unknown job role \"" + msg.role() + "\"");
+  r.role = *role;
+  r.point = msg.point();
+  r.fold = msg.fold();
+  r.validation_nll.assign(msg.validation_nll().begin(), msg.validation_nll().end());
+  r.best_epoch = msg.best_epoch();
   r.parameters.assign(msg.parameters().begin(), msg.parameters().end());
   r.epoch_loss.assign(msg.epoch_loss().begin(), msg.epoch_loss().end());
   CHORUS_ASSIGN_OR_RETURN(r.validation_outputs, FromWire(msg.validation_outputs(), source));

@@ -11,7 +11,7 @@
 
 namespace chorus {
 
-constexpr uint32_t kJobResultFormatVersion = 1;
+constexpr uint32_t kJobResultFormatVersion = 2;  // 2: role, point, fold, validation NLL, best epoch
 
 // Serialises deterministically (same result => same bytes). widths are the network's widths.
 // The bytes are those libprotobuf writes for the JobResult message (proto/job.proto) holding the

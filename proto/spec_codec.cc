@@ -27,20 +27,33 @@ void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
   out->set_basin_rank(b.rank);
   out->set_basin_samples(b.samples);
   out->set_basin_scale(b.scale);
+  out->set_early_stopping(t.early_stopping.mode == Switch::kOn);
+  out->set_patience(t.early_stopping.patience);
+  out->set_beta_nll(t.beta_nll);
+  out->set_role(JobRoleName(spec.role));
+  out->set_point(spec.point);
+  out->set_fold(spec.fold);
+  out->set_folds(spec.folds);
+  out->set_fold_seed(spec.fold_seed);
+  out->set_stop_epoch(spec.stop_epoch);
 }
 
 StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   const auto activation = ParseActivation(w.activation());
   const auto schedule = ParseSchedule(w.schedule());
   const auto basin = ParseBasinMethod(w.basin_method());
-  if (!activation || !schedule || !basin) {
-    return Status::InvalidInput("job spec: unknown activation, schedule or basin method");
+  const auto role = ParseJobRole(w.role());
+  if (!activation || !schedule || !basin || !role) {
+    return Status::InvalidInput("job spec: unknown activation, schedule, basin method or role");
   }
   const bool sizes_ok = w.epochs() >= 1 && w.batch_size() >= 1 && w.parts() >= 1 &&
                         w.parts() <= w.batch_size() && w.lr() > 0 && w.hidden_size() <= 64 &&
                         w.step_every_epochs() >= 1 && w.basin_snapshots() >= 2 &&
                         w.basin_rank() >= 2 && w.basin_rank() <= w.basin_snapshots() &&
-                        w.basin_samples() >= 1 && w.basin_epochs() >= 1 && w.basin_lr() > 0;
+                        w.basin_samples() >= 1 && w.basin_epochs() >= 1 && w.basin_lr() > 0 &&
+                        w.patience() >= 1 && w.beta_nll() >= 0 && w.beta_nll() <= 1 &&
+                        w.fold() >= -1 && (w.fold() < 0 || (w.folds() >= 2 && w.fold() < w.folds())) &&
+                        w.stop_epoch() >= 0 && w.point() >= 0;
   if (!sizes_ok) return Status::InvalidInput("job spec: a value is out of range");
   MemberSpec s;
   s.index = w.index();
@@ -57,6 +70,14 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   s.train.schedule = {*schedule, w.step_every_epochs(), w.step_factor()};
   s.basin = {*basin, w.basin_epochs(), w.basin_lr(), w.basin_snapshots(), w.basin_rank(),
              w.basin_samples(), w.basin_scale()};
+  s.train.early_stopping = {w.early_stopping() ? Switch::kOn : Switch::kOff, w.patience()};
+  s.train.beta_nll = w.beta_nll();
+  s.role = *role;
+  s.point = w.point();
+  s.fold = w.fold();
+  s.folds = w.folds();
+  s.fold_seed = w.fold_seed();
+  s.stop_epoch = w.stop_epoch();
   return s;
 }
 

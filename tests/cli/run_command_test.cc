@@ -58,8 +58,12 @@ TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
   for (const char* f : {"config.yaml", "manifest.json", "events.jsonl", "report.json", "report.html"}) {
     EXPECT_TRUE(fs::exists(run + "/" + f)) << f;
   }
-  EXPECT_EQ(JobResults(run).size(), 3u);
+  // 1,200 training rows count as small (data.small_data_rows): 5-fold cross-fitting, so 3 member
+  // jobs and 3 x 5 fold jobs.
+  EXPECT_EQ(JobResults(run).size(), 18u);
   const auto report = nlohmann::json::parse(testing::ReadTextFile(run + "/report.json"));
+  EXPECT_EQ(report["validation"]["method"], "cross-fitting");
+  EXPECT_EQ(report["validation"]["rows"], 1200);
   for (const char* key : {"accuracy", "nll", "brier", "ece"}) {
     EXPECT_TRUE(report["ensemble"]["test"].contains(key)) << key;
     EXPECT_TRUE(report["ensemble"]["test_uncalibrated"].contains(key)) << key;
@@ -93,7 +97,7 @@ TEST_F(RunCommandTest, ResultBytesAreIdenticalAcrossRepeatsAndThreadCounts) {
     ASSERT_EQ(r.exit_code, 0) << r.output;
     runs.push_back(JobResults(testing::RunDirUnder(out)));
   }
-  ASSERT_EQ(runs[0].size(), 3u);
+  ASSERT_EQ(runs[0].size(), 18u);  // 3 members and their 3 x 5 fold jobs (cross-fitting)
   EXPECT_TRUE(runs[0] == runs[1]) << "1 thread vs 2 threads";
   EXPECT_TRUE(runs[1] == runs[2]) << "same config twice";
 }

@@ -55,6 +55,7 @@ DataConfig CsvConfig(const std::string& dir) {
   c.test = dir + "/test.csv";
   c.target = "y";
   c.validation_fraction = 0.2;
+  c.folds = 0;  // a holdout, as a config naming a fraction gets
   return c;
 }
 
@@ -71,6 +72,7 @@ DataConfig IdxConfig(const std::string& dir) {
   c.train_idx = {dir + "/train-images.idx", dir + "/train-labels.idx"};
   c.test_idx = {dir + "/test-images.idx", dir + "/test-labels.idx"};
   c.validation_fraction = 0.2;
+  c.folds = 0;  // a holdout, as a config naming a fraction gets
   return c;
 }
 

@@ -46,6 +46,7 @@ class BundleWriterTest : public ::testing::TestWithParam<Scenario> {
     c.data.target = classify ? "cause" : "hours_to_fault";
     c.data.task = s.task;
     c.data.categorical = {"station"};
+    c.data.folds = 0;  // a holdout: EvaluateEnsemble scores the members' own validation outputs
     c.model.hidden = {12, 8};
     c.model.activation = Activation::kTanh;
     c.train.epochs = 2;

@@ -43,6 +43,11 @@ std::string ReferenceBytes(const MemberResult& r, const std::vector<int>& widths
     for (const Matrix& m : r.sample_validation_outputs) MatrixToWire(m, msg.add_sample_validation_outputs());
     for (const Matrix& m : r.sample_test_outputs) MatrixToWire(m, msg.add_sample_test_outputs());
   }
+  msg.set_role(JobRoleName(r.role));
+  msg.set_point(r.point);
+  msg.set_fold(r.fold);
+  msg.mutable_validation_nll()->Add(r.validation_nll.begin(), r.validation_nll.end());
+  msg.set_best_epoch(r.best_epoch);
   std::string bytes;
   {
     google::protobuf::io::StringOutputStream stream(&bytes);
@@ -67,6 +72,11 @@ MemberResult RandomResult(uint64_t seed, int64_t parameters, BasinMethod method,
   r.seed = rng.NextBelow(2) == 0 ? 0 : Derive(seed, 1) | (uint64_t{1} << 63);
   for (int64_t i = 0; i < parameters; ++i) r.parameters.push_back(static_cast<float>(rng.NextNormal()));
   for (int e = 0; e < 3; ++e) r.epoch_loss.push_back(rng.NextNormal());
+  r.role = static_cast<JobRole>(seed % 3);
+  r.point = static_cast<int>(rng.NextBelow(3));     // 0: left out of the message
+  r.fold = static_cast<int>(rng.NextBelow(4)) - 1;  // -1: ten bytes; 0: left out
+  for (int e = 0; e < static_cast<int>(seed % 4); ++e) r.validation_nll.push_back(rng.NextUniform());
+  r.best_epoch = static_cast<int>(rng.NextBelow(4));
   r.validation_outputs = RandomMatrix(rng, 7, 3);
   r.test_outputs = RandomMatrix(rng, 5, 3);
   if (method == BasinMethod::kNone) return r;
@@ -144,6 +154,11 @@ TEST(ResultCodecTest, DecodingTheEncodingGivesTheResultBack) {
   EXPECT_EQ(b.seed, r.seed);
   EXPECT_EQ(b.parameters, r.parameters);
   EXPECT_EQ(b.epoch_loss, r.epoch_loss);
+  EXPECT_EQ(b.role, r.role);
+  EXPECT_EQ(b.point, r.point);
+  EXPECT_EQ(b.fold, r.fold);
+  EXPECT_EQ(b.validation_nll, r.validation_nll);
+  EXPECT_EQ(b.best_epoch, r.best_epoch);
   EXPECT_EQ(b.basin.mean, r.basin.mean);
   EXPECT_EQ(b.basin.variance, r.basin.variance);
   EXPECT_TRUE(b.basin.deviations == r.basin.deviations);

@@ -1,0 +1,80 @@
+// The stages of a run and how each stage's results shape the next. Every spec is a pure function
+// of (config, data, earlier results), so a resumed run plans exactly the jobs it planned before.
+//   1. search (config.search not empty): one job per grid point (and per fold when
+//      cross-fitting), all on member 0's seed so that points differ only in their settings; the
+//      point with the lowest validation NLL wins and its settings are used for every member.
+//   2. folds (data.folds > 0): member i without fold k, for every member and fold; their
+//      out-of-fold predictions cover every training row.
+//   3. members: member i on the whole training split; after cross-fitting with early stopping,
+//      stopped at the median of its folds' best epochs (the folds had validation rows, it has
+//      none).
+// Thread safety: free functions, reentrant.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "common/config.h"
+#include "common/dataset.h"
+#include "common/member_training.h"
+#include "common/status.h"
+
+namespace chorus {
+
+// Whether `auto` settings treat the run's data as small (common/folds.h IsSmallData), counted
+// before the holdout was split off.
+bool RunDataIsSmall(const Config& config, const PreparedData& data);
+
+// The seed of the run's fold assignment (common/folds.h AssignFolds).
+uint64_t FoldSeed(const Config& config);
+
+// Member i's spec with the config's settings: seed Derive(run.seed, i), early stopping resolved.
+MemberSpec BaseSpec(const Config& config, const PreparedData& data, int member);
+
+// One point of the search grid: the settings it changes.
+struct GridPoint {
+  std::vector<int> hidden;
+  double lr = 0, weight_decay = 0, beta_nll = 0;
+};
+
+// The grid: the product of config.search's lists (a missing list: the configured value), in the
+// order hidden, lr, weight_decay, beta_nll, the last varying fastest. Empty without a search.
+std::vector<GridPoint> SearchGrid(const Config& config);
+
+// `config` with the point's settings.
+Config WithPoint(Config config, const GridPoint& point);
+
+// Stage 1: a job per grid point (and fold, with cross-fitting).
+std::vector<MemberSpec> SearchSpecs(const Config& config, const PreparedData& data);
+
+// A grid point's score: mean validation NLL over the rows its jobs held out (nats; regression on
+// the standardised target), at each job's kept epoch; infinite if a job failed.
+struct PointScore {
+  GridPoint point;
+  double validation_nll = 0;
+  int best_epoch = 0;          // median kept epoch over the point's jobs
+  std::string failure;         // why a job failed, or ""
+};
+
+struct SearchOutcome {
+  std::vector<PointScore> points;
+  int best = -1;               // index into points
+};
+
+// Scores every point from its jobs' results (results[i] for SearchSpecs(...)[i]; null where the
+// job failed, causes[i] saying why). kInvalidInput naming the causes if every point failed.
+StatusOr<SearchOutcome> ScoreSearch(const Config& config, const std::vector<const MemberResult*>& results,
+                                    const std::vector<std::string>& causes);
+
+// Stage 2: member i without fold k, i-major.
+std::vector<MemberSpec> FoldSpecs(const Config& config, const PreparedData& data);
+
+// The epoch member trainings stop at after cross-fitting: the median (lower middle) of the
+// folds' kept epochs when early stopping was on, else 0 (the whole schedule).
+int StopEpochFromFolds(const std::vector<const MemberResult*>& folds, bool early_stopping);
+
+// Stage 3: the members; stop_epochs[i] as StopEpochFromFolds (empty: none).
+std::vector<MemberSpec> MemberSpecs(const Config& config, const PreparedData& data,
+                                    const std::vector<int>& stop_epochs);
+
+}  // namespace chorus

@@ -1,0 +1,146 @@
+#include "coordinator/run_stages.h"
+
+#include <filesystem>
+
+#include "common/file_util.h"
+#include "common/folds.h"
+#include "common/log_format.h"
+#include "proto/result_codec.h"
+
+namespace chorus {
+namespace {
+
+// One stage's jobs after they ran: the result of each (nullopt if it failed) and why not.
+struct StageResults {
+  std::vector<std::optional<MemberResult>> results;
+  std::vector<std::string> causes;
+  std::vector<const MemberResult*> Pointers() const {
+    std::vector<const MemberResult*> out;
+    for (const auto& r : results) out.push_back(r ? &*r : nullptr);
+    return out;
+  }
+};
+
+class StageRunner {
+ public:
+  StageRunner(const PreparedData& data, const std::string& config_hash, RunDirectory& dir, JobRunner& runner)
+      : data_(data), config_hash_(config_hash), dir_(dir), runner_(runner) {}
+
+  // Runs the specs not yet finished on disk, then reads every spec's result back.
+  StatusOr<StageResults> Run(const std::string& stage, const std::vector<MemberSpec>& specs) {
+    std::vector<MemberSpec> pending;
+    for (const MemberSpec& s : specs) {
+      if (!Load(s).ok()) pending.push_back(s);
+    }
+    dir_.LogEvent("stage_started", {{"stage", stage}, {"jobs", specs.size()},
+                                    {"already_finished", specs.size() - pending.size()}});
+    if (!specs.empty()) {
+      LogPrintf(stderr, LogLevel::kInfo, "%s: %zu jobs (%zu already finished)", stage.c_str(),
+                specs.size(), specs.size() - pending.size());
+    }
+    std::vector<std::string> pending_causes;
+    if (!pending.empty()) {
+      CHORUS_ASSIGN_OR_RETURN(pending_causes, runner_.Run(pending));
+    }
+    StageResults out;
+    size_t p = 0;
+    for (const MemberSpec& s : specs) {
+      const bool ran = p < pending.size() && JobName(pending[p]) == JobName(s);
+      const std::string cause = ran ? pending_causes[p++] : "";
+      if (!cause.empty()) {
+        out.results.emplace_back();
+        out.causes.push_back(cause);
+        continue;
+      }
+      CHORUS_ASSIGN_OR_RETURN(MemberResult r, Load(s));
+      out.results.emplace_back(std::move(r));
+      out.causes.emplace_back();
+    }
+    return out;
+  }
+
+ private:
+  StatusOr<MemberResult> Load(const MemberSpec& spec) const {
+    const std::string path = dir_.JobResultPath(JobName(spec));
+    if (!std::filesystem::exists(path)) return Status::InvalidInput(path + ": no result yet");
+    CHORUS_ASSIGN_OR_RETURN(std::string bytes, ReadFileToString(path));
+    return DecodeJobResult(bytes, path, data_.hash, config_hash_);
+  }
+
+  const PreparedData& data_;
+  const std::string& config_hash_;
+  RunDirectory& dir_;
+  JobRunner& runner_;
+};
+
+// Stage 1: the grid, and the config with its best point.
+Status Search(const Config& config, const PreparedData& data, StageRunner& stages, RunDirectory& dir,
+              TrainedRun& run) {
+  if (config.search.empty()) return Status::Ok();
+  CHORUS_ASSIGN_OR_RETURN(StageResults r, stages.Run("search", SearchSpecs(config, data)));
+  CHORUS_ASSIGN_OR_RETURN(SearchOutcome outcome, ScoreSearch(config, r.Pointers(), r.causes));
+  const PointScore& best = outcome.points[outcome.best];
+  run.chosen = WithPoint(config, best.point);
+  dir.LogEvent("search_chosen", {{"point", outcome.best}, {"validation_nll", best.validation_nll}});
+  LogPrintf(stderr, LogLevel::kInfo, "search: point %d of %zu chosen (validation nll %.4f)", outcome.best,
+            outcome.points.size(), best.validation_nll);
+  run.search = std::move(outcome);
+  return Status::Ok();
+}
+
+}  // namespace
+
+StatusOr<TrainedRun> TrainRun(const Config& config, const PreparedData& data,
+                              const std::string& config_hash, RunDirectory& dir, JobRunner& runner) {
+  TrainedRun run;
+  run.chosen = config;
+  StageRunner stages(data, config_hash, dir, runner);
+  CHORUS_RETURN_IF_ERROR(Search(config, data, stages, dir, run));
+  const Config& chosen = run.chosen;
+  const int members = chosen.ensemble.members;
+  std::vector<bool> folds_ok(static_cast<size_t>(members), true);
+  StageResults folds;
+  if (data.folds > 0) {
+    CHORUS_ASSIGN_OR_RETURN(folds, stages.Run("folds", FoldSpecs(chosen, data)));
+    run.fold_of_row = AssignFolds(data.train, data.folds, FoldSeed(chosen));
+    const bool early = BaseSpec(chosen, data, 0).train.early_stopping.mode == Switch::kOn;
+    for (int i = 0; i < members; ++i) {
+      std::vector<const MemberResult*> mine;
+      for (int k = 0; k < data.folds; ++k) {
+        const size_t j = static_cast<size_t>(i * data.folds + k);
+        if (!folds.results[j]) {
+          folds_ok[i] = false;
+          run.failures.push_back("member " + std::to_string(i) + ": fold " + std::to_string(k) + ": " + folds.causes[j]);
+          break;
+        }
+        mine.push_back(&*folds.results[j]);
+      }
+      run.stop_epochs.push_back(folds_ok[i] ? StopEpochFromFolds(mine, early) : 0);
+    }
+  }
+  std::vector<MemberSpec> member_specs;
+  for (const MemberSpec& s : MemberSpecs(chosen, data, run.stop_epochs)) {
+    if (folds_ok[s.index]) member_specs.push_back(s);
+  }
+  CHORUS_ASSIGN_OR_RETURN(StageResults trained, stages.Run("members", member_specs));
+  for (size_t j = 0; j < member_specs.size(); ++j) {
+    const int i = member_specs[j].index;
+    if (!trained.results[j]) {
+      run.failures.push_back("member " + std::to_string(i) + ": " + trained.causes[j]);
+      continue;
+    }
+    MemberResult member = std::move(*trained.results[j]);
+    if (data.folds > 0) {
+      std::vector<MemberResult> mine;
+      for (int k = 0; k < data.folds; ++k) mine.push_back(std::move(*folds.results[static_cast<size_t>(i * data.folds + k)]));
+      std::vector<const MemberResult*> pointers;
+      for (const MemberResult& f : mine) pointers.push_back(&f);
+      AdoptOutOfFoldOutputs(run.fold_of_row, pointers, member);
+      run.member_folds.push_back(std::move(mine));
+    }
+    run.members.push_back(std::move(member));
+  }
+  return run;
+}
+
+}  // namespace chorus
