@@ -102,6 +102,29 @@ TEST_F(RunCommandTest, ResultBytesAreIdenticalAcrossRepeatsAndThreadCounts) {
   EXPECT_TRUE(runs[1] == runs[2]) << "same config twice";
 }
 
+// The search grid runs as the first stage (one job per point and fold), the point with the
+// lowest out-of-fold NLL is chosen, and the members are trained with its settings.
+TEST_F(RunCommandTest, SearchChoosesThePointWithTheLowestValidationNllForTheMembers) {
+  const auto r = Chorus("run " + WriteConfig("grid", "train: {epochs: 3, batch_size: 32}\n"
+                                           "ensemble: {members: 2}\n"
+                                           "search: {hidden: [[4], [24]], weight_decay: [0, 0.05]}\n") +
+                      " --out " + dir_ + "/runs");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const std::string run = testing::RunDirUnder(dir_ + "/runs");
+  EXPECT_EQ(JobResults(run).size(), 4u * 5u + 2u * 5u + 2u);  // points x folds, members x folds, members
+  const auto report = nlohmann::json::parse(testing::ReadTextFile(run + "/report.json"));
+  const auto& points = report["search"]["points"];
+  ASSERT_EQ(points.size(), 4u);
+  size_t best = 0;
+  for (size_t p = 0; p < points.size(); ++p) {
+    if (points[p]["validation_nll"].get<double>() < points[best]["validation_nll"].get<double>()) best = p;
+  }
+  EXPECT_EQ(report["search"]["chosen"].get<size_t>(), best);
+  EXPECT_EQ(report["settings"]["hidden"], points[best]["hidden"]);
+  EXPECT_EQ(report["settings"]["weight_decay"], points[best]["weight_decay"]);
+  EXPECT_EQ(testing::CountEvents(run, "search_chosen"), 1);
+}
+
 TEST_F(RunCommandTest, DivergingMembersFailWithTheirCauseAndTooFewMeansExitThree) {
   const auto r = Chorus("run " + WriteConfig("nan", "train: {epochs: 2, optimizer: {lr: 1.0e+5}}\n"
                                            "ensemble: {members: 2, min_members: 1}\n") +

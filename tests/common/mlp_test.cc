@@ -356,6 +356,44 @@ TEST(HeadsTest, GaussianNllGradientMatchesCentralDifferences) {
   });
 }
 
+// beta-NLL (Seitzer et al., ICLR 2022) holds the weight (sigma^2)^beta constant in the gradient,
+// so its gradient is w_i times the plain NLL's gradient for row i: checked against central
+// differences of the plain NLL, scaled row by row with w_i = exp(beta s_i).
+TEST(HeadsTest, BetaNllGradientIsThePlainGradientWeightedByTheVariancePowerBeta) {
+  Philox rng(Derive(kSeed, "beta_nll"));
+  const Matrix outputs = RandomNormal(8, 2, 1.0, rng);
+  std::vector<float> targets(8);
+  for (auto& y : targets) y = static_cast<float>(rng.NextNormal());
+  const float beta = 0.5f;
+  Matrix grad(8, 2);
+  GaussianNll(outputs, targets.data(), grad, 0, beta);
+  Matrix plain(8, 2);
+  GaussianNll(outputs, targets.data(), plain);
+  ExpectHeadGradientMatchesCentralDifferences(outputs, [&](const ConstMatrixRef& z, MatrixRef g) {
+    return GaussianNll(z, targets.data(), g);
+  });
+  for (int i = 0; i < 8; ++i) {
+    const float w = std::exp(beta * outputs(i, 1));
+    EXPECT_NEAR(grad(i, 0), w * plain(i, 0), 1e-6f * (1 + std::abs(grad(i, 0))));
+    EXPECT_NEAR(grad(i, 1), w * plain(i, 1), 1e-6f * (1 + std::abs(grad(i, 1))));
+  }
+}
+
+// Seitzer et al. (2022, section 4): at beta = 1 the mean's gradient is that of the squared error,
+// -(y - mu) / B, whatever variance is predicted; at beta = 0 the loss is the plain NLL.
+TEST(HeadsTest, BetaNllAtOneGivesTheMeanTheSquaredErrorGradientAndAtZeroIsPlain) {
+  Matrix out(2, 2);
+  out << 1.0f, 3.0f, -2.0f, -4.0f;  // large and small predicted variances
+  const float targets[] = {2.5f, -1.0f};
+  Matrix at_one(2, 2), at_zero(2, 2), plain(2, 2);
+  GaussianNll(out, targets, at_one, 0, 1.0f);
+  EXPECT_NEAR(at_one(0, 0), -(2.5f - 1.0f) / 2, 1e-6f);
+  EXPECT_NEAR(at_one(1, 0), -(-1.0f + 2.0f) / 2, 1e-6f);
+  EXPECT_EQ(GaussianNll(out, targets, at_zero, 0, 0.0f), GaussianNll(out, targets, plain));
+  EXPECT_TRUE(at_zero == plain);
+  EXPECT_NEAR(GaussianNllValue(out, targets), GaussianNll(out, targets, plain), 1e-6);
+}
+
 // Logits on a grid of quarters stay exact when shifted by 1000, so a max-subtracting softmax
 // gives identical results; exp(1000) would overflow without it.
 TEST(HeadsTest, SoftmaxCrossEntropyIsShiftInvariantAtHugeLogits) {

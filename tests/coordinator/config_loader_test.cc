@@ -66,6 +66,39 @@ TEST(ConfigLoaderTest, HashIgnoresSpeedOnlySettingsButNotModelSettings) {
   EXPECT_NE(ConfigHash(a), ConfigHash(b));
 }
 
+TEST(ConfigLoaderTest, SmallDataKeysSearchGridAndTheirRoundTrip) {
+  const std::string text = std::string(kMinimal) +
+      "  small_data_rows: 500\n"
+      "  validation: {folds: 4}\n"
+      "train: {early_stopping: {mode: on, patience: 3}, beta_nll: 0.25}\n"
+      "search: {weight_decay: [1.0e-4, 0.01], hidden: [[8], [16, 16]], beta_nll: [0, 1]}\n";
+  StatusOr<Config> a = ParseConfig(text, "/x/a.yaml");
+  ASSERT_TRUE(a.ok()) << a.status().ToString();
+  EXPECT_EQ(a.value().data.small_data_rows, 500);
+  EXPECT_EQ(a.value().data.folds, 4);
+  EXPECT_EQ(a.value().train.early_stopping.mode, Switch::kOn);
+  EXPECT_EQ(a.value().train.early_stopping.patience, 3);
+  EXPECT_DOUBLE_EQ(a.value().train.beta_nll, 0.25);
+  EXPECT_EQ(a.value().search.hidden, (std::vector<std::vector<int>>{{8}, {16, 16}}));
+  EXPECT_EQ(a.value().search.weight_decay, (std::vector<double>{1e-4, 0.01}));
+  StatusOr<Config> b = ParseConfig(ConfigToYaml(a.value()), "/y/b.yaml");
+  ASSERT_TRUE(b.ok()) << b.status().ToString() << "\n" << ConfigToYaml(a.value());
+  EXPECT_EQ(ConfigHash(a.value()), ConfigHash(b.value()));
+  EXPECT_EQ(b.value().search.beta_nll, (std::vector<double>{0, 1}));
+  Config c = a.value();
+  c.search.lr = {0.5};
+  EXPECT_NE(ConfigHash(a.value()), ConfigHash(c)) << "the search grid changes the model";
+}
+
+TEST(ConfigLoaderTest, FoldsAreAutoUnlessTheConfigNamesAHoldout) {
+  EXPECT_EQ(ParseConfig(kMinimal, "a.yaml").value().data.folds, -1);
+  EXPECT_EQ(ParseConfig(std::string(kMinimal) + "  validation: {fraction: 0.2}\n", "a.yaml").value().data.folds, 0);
+  EXPECT_EQ(ParseConfig(std::string(kMinimal) + "  validation: {file: v.csv}\n", "a.yaml").value().data.folds, 0);
+  EXPECT_EQ(ParseConfig(std::string(kMinimal) + "  validation: {fraction: 0.2, folds: auto}\n", "a.yaml")
+                .value().data.folds, -1);
+  EXPECT_EQ(ParseConfig(std::string(kMinimal) + "  validation: {folds: 0}\n", "a.yaml").value().data.folds, 0);
+}
+
 struct BadConfig {
   const char* name;
   const char* yaml;
@@ -96,7 +129,21 @@ TEST(ConfigLoaderTest, BadConfigsAreRejectedWithTheirPlace) {
       BadConfig{"MissingData", "run: {seed: 1}\n", "data: required"},
       BadConfig{"NotYaml", "data: [unclosed\n", "cfg.yaml:"},
       BadConfig{"BadRunName", "run: {name: ../x}\ndata: {train: a, test: b, target: y}\n",
-                  "run.name: expected letters"}};
+                  "run.name: expected letters"},
+      BadConfig{"OneFold", "data: {train: a, test: b, target: y, validation: {folds: 1}}\n",
+                "data.validation.folds: expected auto, 0 (holdout) or 2..50, found 1"},
+      BadConfig{"FoldsWithAFile", "data: {train: a, test: b, target: y, validation: {file: v, folds: 3}}\n",
+                "data.validation.folds: cross-fitting needs no validation file"},
+      BadConfig{"BadEarlyStopping", "data: {train: a, test: b, target: y}\ntrain: {early_stopping: {mode: maybe}}\n",
+                "train.early_stopping.mode: expected one of auto, on, off"},
+      BadConfig{"BetaAboveOne", "data: {train: a, test: b, target: y}\ntrain: {beta_nll: 2}\n",
+                "train.beta_nll: expected a beta in [0, 1]"},
+      BadConfig{"SearchNotAList", "data: {train: a, test: b, target: y}\nsearch: {lr: 0.1}\n",
+                "search.lr: expected a list of 1 to 20 values"},
+      BadConfig{"SearchBadWidth", "data: {train: a, test: b, target: y}\nsearch: {hidden: [[8, 0]]}\n",
+                "search.hidden: expected a width in [1, 65536]"},
+      BadConfig{"SearchUnknownKey", "data: {train: a, test: b, target: y}\nsearch: {epochs: [1, 2]}\n",
+                "search.epochs: unknown key"}};
   for (const BadConfig& c : cases) {
     SCOPED_TRACE(c.name);
     StatusOr<Config> parsed = ParseConfig(c.yaml, "cfg.yaml");
