@@ -17,7 +17,8 @@ constexpr int kHistogramBins = 20;
 // One assembled mixture: weights per member, temperature, and its test scores.
 struct Assembled {
   std::vector<double> weights;
-  double validation_nll = 0;
+  double validation_nll = 0;             // at T = 1
+  double validation_nll_calibrated = 0;  // at the tuned T
   double temperature = 1;
   Scores test, test_uncalibrated;
 };
@@ -81,6 +82,8 @@ Assembled AssembleClassification(const MemberSamples& val, const MemberSamples& 
   Flatten(val, a.weights, &vc, &vw);
   Flatten(test, a.weights, &tc, &tw);
   a.temperature = ens.tune_temperature ? TuneTemperature(vc, vw, data.validation.labels) : ens.temperature;
+  a.validation_nll_calibrated =
+      ScoreClassification(MixtureProbabilities(vc, vw, a.temperature), data.validation.labels, 1).nll;
   a.test.classification = ScoreClassification(MixtureProbabilities(tc, tw, a.temperature), data.test.labels, bins);
   a.test_uncalibrated.classification = ScoreClassification(MixtureProbabilities(tc, tw, 1.0), data.test.labels, bins);
   return a;
@@ -98,6 +101,7 @@ Assembled AssembleRegression(const MemberSampleGaussians& val, const MemberSampl
   Flatten(val, a.weights, &vc, &vw);
   Flatten(test, a.weights, &tc, &tw);
   a.temperature = ens.tune_temperature ? TuneStddevScale(vc, vw, y_val) : ens.temperature;
+  a.validation_nll_calibrated = MixtureNll(MixtureGaussians(vc, vw, a.temperature), y_val);
   a.test.regression = ScoreRegression(MixtureGaussians(tc, tw, a.temperature), y_test);
   a.test_uncalibrated.regression = ScoreRegression(MixtureGaussians(tc, tw, 1.0), y_test);
   return a;
@@ -106,6 +110,7 @@ Assembled AssembleRegression(const MemberSampleGaussians& val, const MemberSampl
 void Adopt(const Assembled& a, EnsembleEvaluation& ev) {
   ev.weights = a.weights;
   ev.validation_nll_weighted = a.validation_nll;
+  ev.validation_nll_calibrated = a.validation_nll_calibrated;
   ev.temperature = a.temperature;
   ev.test = a.test;
   ev.test_uncalibrated = a.test_uncalibrated;

@@ -59,6 +59,7 @@ struct EnsembleEvaluation {
   Weighting weighting = Weighting::kUniform;
   std::vector<double> weights;   // one per member, summing to 1
   double validation_nll_weighted = 0;  // validation NLL of the weighted mixture at T = 1
+  double validation_nll_calibrated = 0;  // the same at the tuned T
   double temperature = 1.0;      // classification: logits / T; regression: stddev * T
   Scores test;                   // ensemble, calibrated
   Scores test_uncalibrated;      // ensemble, T = 1

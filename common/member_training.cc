@@ -280,7 +280,9 @@ std::string JobName(const MemberSpec& spec) {
   const std::string fold = spec.fold >= 0 ? "-" + std::to_string(spec.fold) : "";
   switch (spec.role) {
     case JobRole::kMember: return std::to_string(spec.index);
-    case JobRole::kFold: return "fold-" + std::to_string(spec.index) + fold;
+    case JobRole::kFold:
+      return "fold-" + std::to_string(spec.index) + fold +
+             (spec.stop_epoch > 0 ? "-at-" + std::to_string(spec.stop_epoch) : "");
     case JobRole::kSearch: return "search-" + std::to_string(spec.point) + fold;
   }
   return "?";

@@ -43,7 +43,8 @@ struct MemberSpec {
 };
 
 // The job's name, unique in a run and used as its directory under jobs/: "3" (member 3),
-// "fold-3-1" (member 3 without fold 1), "search-2" or "search-2-1" (grid point 2, fold 1).
+// "fold-3-1" (member 3 without fold 1), "fold-3-1-at-12" (the same replayed to epoch 12),
+// "search-2" or "search-2-1" (grid point 2, fold 1).
 std::string JobName(const MemberSpec& spec);
 
 struct EpochProgress {

@@ -83,6 +83,7 @@ nlohmann::json GateLimitsJson(Task task, const GateLimits& limits) {
   } else {
     j["max_rmse_increase"] = limits.max_rmse_increase;
   }
+  j["refuse_if_baseline_better"] = limits.refuse_if_baseline_better;
   return j;
 }
 

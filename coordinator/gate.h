@@ -44,6 +44,9 @@ struct GateLimits {
   double max_accuracy_drop = 0.01;  // fraction of guard rows (0.01 = one percentage point)
   double max_ece_increase = 0.02;   // fraction
   double max_rmse_increase = 0.02;  // relative: a fraction of the current bundle's rmse
+  // Refuse a candidate whose run found its linear baseline better on validation (report.json
+  // baseline.better_on_validation), or whose report has no such verdict.
+  bool refuse_if_baseline_better = false;
 };
 
 // One limit applied: passed when `worsening` <= `allowed` (finite values; see above otherwise).

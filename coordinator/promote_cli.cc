@@ -35,6 +35,9 @@ void AddLimitOptions(CLI::App* cmd, GateLimits* limits) {
                               "bundle's RMSE",
                               d.max_rmse_increase))
       ->check(CLI::NonNegativeNumber);
+  cmd->add_flag("--refuse-if-baseline-better", limits->refuse_if_baseline_better,
+                "refuse the candidate when its run's linear baseline had the lower validation NLL "
+                "(report.json baseline.better_on_validation), or when its report has no baseline");
 }
 
 }  // namespace

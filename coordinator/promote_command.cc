@@ -13,7 +13,9 @@
 #include "common/file_util.h"
 #include "common/log_format.h"
 #include "coordinator/config_loader.h"
+#include "coordinator/html_text.h"
 #include "coordinator/registry.h"
+#include "coordinator/run_report.h"
 #include "proto/bundle_codec.h"
 
 namespace chorus {
@@ -157,14 +159,33 @@ void LogDecision(const GateDecision& d) {
           {{"verdict", verdict}, {"reasons", reasons}});
 }
 
+// With --refuse-if-baseline-better: why the run's own report rules the candidate out, or "".
+std::string BaselineRefusal(const PromoteOptions& o) {
+  if (!o.limits.refuse_if_baseline_better) return "";
+  StatusOr<nlohmann::json> report = ReadRunReport(o.run_dir);
+  if (!report.ok() || !report.value().contains("baseline") ||
+      !report.value()["baseline"].contains("better_on_validation")) {
+    return "--refuse-if-baseline-better: the run's report.json has no linear-baseline verdict";
+  }
+  const nlohmann::json& b = report.value()["baseline"];
+  if (!b["better_on_validation"].get<bool>()) return "";
+  return "--refuse-if-baseline-better: the linear baseline beat the ensemble on validation (nll " +
+         FormatFixed(b.value("validation_nll", 0.0), 4) + " vs " +
+         FormatFixed(b.value("ensemble_validation_nll", 0.0), 4) + ")";
+}
+
 // Applies the gate and records its decision: a promoted bundle becomes current, a refused one
 // leaves only its decision in refused/.
 Status Conclude(const PromoteOptions& o, Registry& registry, const Candidate& candidate,
                 const GateMetrics& scores, const std::optional<Incumbent>& current,
                 const GuardData& guard) {
-  const GateDecision d =
-      DecideGate(candidate.file.bundle.task, scores,
-                 current ? std::optional(current->metrics) : std::nullopt, o.limits);
+  GateDecision d = DecideGate(candidate.file.bundle.task, scores,
+                              current ? std::optional(current->metrics) : std::nullopt, o.limits);
+  if (const std::string refusal = BaselineRefusal(o); !refusal.empty()) {
+    if (d.promote) d.reasons.clear();
+    d.promote = false;
+    d.reasons.push_back(refusal);
+  }
   LogDecision(d);
   const auto now = std::chrono::system_clock::now();
   const std::string id = registry.NewId(candidate.file.payload_sha256, now);

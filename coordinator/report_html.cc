@@ -8,6 +8,7 @@
 #include "coordinator/html_text.h"
 #include "coordinator/report_charts.h"
 #include "coordinator/report_facts.h"
+#include "coordinator/report_training_html.h"
 #include "coordinator/run_report.h"
 
 namespace chorus {
@@ -42,7 +43,10 @@ constexpr const char* kStyle =
     ".hash{font-family:ui-monospace,'DejaVu Sans Mono',Menlo,Consolas,monospace;font-size:13px;"
     "word-break:break-all}"
     ".wbar{display:inline-block;height:9px;background:#0072B2;border-radius:2px;margin-right:8px}"
-    ".nowrap{white-space:nowrap}footer{font-size:13px;text-align:center}";
+    ".nowrap{white-space:nowrap}footer{font-size:13px;text-align:center}"
+    ".verdict{padding:8px 12px;border-left:5px solid #0072B2;background:#eef5fb}"
+    ".verdict.warn{border-left-color:#a64d00;background:#fff7ef;font-weight:600}"
+    "h3{font-size:16px;margin:14px 0 6px}";
 
 bool IsClassification(const json& r) { return r["task"] == "classification"; }
 
@@ -141,7 +145,13 @@ std::string TestSection(const json& r) {
   }
   rows.push_back({"ensemble, " + AtOne(r), &ens["test_uncalibrated"]});
   rows.push_back({"ensemble, " + Tuned(r), &ens["test"]});
-  std::string html = "<section><h2>Test set</h2>" + MetricsTable(r, rows, rows.size() - 1);
+  const size_t ensemble_row = rows.size() - 1;
+  if (r.contains("baseline") && r["baseline"].contains("test")) {
+    rows.push_back({"linear baseline, " + std::string(IsClassification(r) ? "T = " : "scale ") +
+                        FormatFixed(r["baseline"]["temperature"], 3), &r["baseline"]["test"]});
+  }
+  std::string html = "<section><h2>Test set</h2>" + MetricsTable(r, rows, ensemble_row) +
+                     BaselineVerdictHtml(r);
   if (r.contains("bayes_optimal_test_nll")) {
     html += "<p>Bayes-optimal test NLL (the true probabilities of this invented data are known): " +
             Num(r["bayes_optimal_test_nll"]) + "</p>";
@@ -242,7 +252,8 @@ std::string SizeSection(const json& r) {
 std::string ReportHtml(const json& report) {
   return Head(report) + Header(report) + Caution(report) + KeyFigures(report) +
          TestSection(report) + SizeSection(report) + CalibrationSection(report) +
-         UncertaintySection(report) + MembersSection(report) + FactsSection(report) +
+         UncertaintySection(report) + MembersSection(report) + TrainingSectionHtml(report) +
+         FactsSection(report) +
          "<footer>Written by chorus from report.json alone: one self-contained file, no scripts, "
          "nothing loaded from the network.</footer></main></body></html>\n";
 }

@@ -151,7 +151,10 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
                                                  in.true_probabilities ? &*in.true_probabilities : nullptr);
   const RunFacts facts{in.config.run.name, in.data.hash, in.config_hash, in.config.ensemble.members,
                        failures, seconds};
+  const BaselineEvaluation baseline = EvaluateBaseline(in.data, trained.fold_of_row,
+                                                       assembled.ensemble.tune_temperature, in.config.report.ece_bins);
   json report = ReportJson(ev, in.data, facts);
+  report["baseline"] = BaselineJson(ev, baseline);
   AddTrainingFacts(assembled, in.data, trained, report);
   // The manifest first: the report copies it (workers, version) into report.json and the page.
   Status st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds, workers).dump(2));
@@ -161,7 +164,7 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
   }
   if (!st.ok()) return Fail(dir, in, st, seconds);
   dir.LogEvent("run_finished", {{"members", members.size()}});
-  std::printf("%s\nrun directory: %s\n", SummaryTable(ev).c_str(), dir.path().c_str());
+  std::printf("%s\nrun directory: %s\n", SummaryTable(ev, &baseline).c_str(), dir.path().c_str());
   return 0;
 }
 

@@ -18,15 +18,17 @@ std::vector<int> FoldsOf(const PreparedData& data) {
   return folds;
 }
 
+// A searched list with the configured value first (added when the list lacks it), so the search
+// can always keep the settings the config names.
 template <typename T>
-std::vector<T> OrConfigured(const std::vector<T>& values, const T& configured) {
-  return values.empty() ? std::vector<T>{configured} : values;
+std::vector<T> WithConfigured(const std::vector<T>& values, const T& configured) {
+  std::vector<T> out = {configured};
+  for (const T& v : values) {
+    if (!(v == configured)) out.push_back(v);
+  }
+  return out;
 }
 
-int MedianLower(std::vector<int> v) {
-  std::sort(v.begin(), v.end());
-  return v[(v.size() - 1) / 2];
-}
 
 }  // namespace
 
@@ -54,10 +56,10 @@ std::vector<GridPoint> SearchGrid(const Config& config) {
   if (config.search.empty()) return {};
   const SearchConfig& s = config.search;
   std::vector<GridPoint> grid;
-  for (const std::vector<int>& hidden : OrConfigured(s.hidden, config.model.hidden)) {
-    for (double lr : OrConfigured(s.lr, config.train.optimizer.lr)) {
-      for (double wd : OrConfigured(s.weight_decay, config.train.optimizer.weight_decay)) {
-        for (double beta : OrConfigured(s.beta_nll, config.train.beta_nll)) {
+  for (const std::vector<int>& hidden : WithConfigured(s.hidden, config.model.hidden)) {
+    for (double lr : WithConfigured(s.lr, config.train.optimizer.lr)) {
+      for (double wd : WithConfigured(s.weight_decay, config.train.optimizer.weight_decay)) {
+        for (double beta : WithConfigured(s.beta_nll, config.train.beta_nll)) {
           grid.push_back({hidden, lr, wd, beta});
         }
       }
@@ -92,6 +94,23 @@ std::vector<MemberSpec> SearchSpecs(const Config& config, const PreparedData& da
   return specs;
 }
 
+JointEpoch BestJointEpoch(const std::vector<const MemberResult*>& jobs) {
+  size_t epochs = SIZE_MAX;
+  for (const MemberResult* r : jobs) epochs = std::min(epochs, r->validation_nll.size());
+  JointEpoch best{0, std::numeric_limits<double>::infinity()};
+  for (size_t e = 0; e < epochs; ++e) {
+    double sum = 0.0;
+    int64_t rows = 0;
+    for (const MemberResult* r : jobs) {
+      sum += r->validation_nll[e] * static_cast<double>(r->validation_outputs.rows());
+      rows += r->validation_outputs.rows();
+    }
+    const double nll = sum / static_cast<double>(rows);
+    if (nll < best.validation_nll) best = {static_cast<int>(e) + 1, nll};
+  }
+  return best;
+}
+
 StatusOr<SearchOutcome> ScoreSearch(const Config& config, const std::vector<const MemberResult*>& results,
                                     const std::vector<std::string>& causes) {
   const std::vector<GridPoint> grid = SearchGrid(config);
@@ -99,27 +118,19 @@ StatusOr<SearchOutcome> ScoreSearch(const Config& config, const std::vector<cons
   SearchOutcome out;
   std::string all_causes;
   for (size_t p = 0; p < grid.size(); ++p) {
-    PointScore score{grid[p], 0.0, 0, ""};
-    double nll_sum = 0.0;
-    int64_t rows = 0;
-    std::vector<int> epochs;
-    for (size_t j = p * per_point; j < (p + 1) * per_point; ++j) {
-      const MemberResult* r = results[j];
-      if (r == nullptr || r->validation_nll.empty()) {
-        score.failure = r == nullptr ? causes[j] : "no validation rows";
-        break;
-      }
-      const int64_t n = r->validation_outputs.rows();
-      nll_sum += r->validation_nll[static_cast<size_t>(r->best_epoch) - 1] * static_cast<double>(n);
-      rows += n;
-      epochs.push_back(r->best_epoch);
+    PointScore score{grid[p], std::numeric_limits<double>::infinity(), 0, ""};
+    std::vector<const MemberResult*> jobs;
+    for (size_t j = p * per_point; j < (p + 1) * per_point && score.failure.empty(); ++j) {
+      if (results[j] == nullptr) score.failure = causes[j];
+      else if (results[j]->validation_nll.empty()) score.failure = "no validation rows";
+      else jobs.push_back(results[j]);
     }
     if (score.failure.empty()) {
-      score.validation_nll = nll_sum / static_cast<double>(rows);
-      score.best_epoch = MedianLower(epochs);
+      const JointEpoch joint = BestJointEpoch(jobs);
+      score.validation_nll = joint.validation_nll;
+      score.best_epoch = joint.epoch;
       if (out.best < 0 || score.validation_nll < out.points[out.best].validation_nll) out.best = static_cast<int>(p);
     } else {
-      score.validation_nll = std::numeric_limits<double>::infinity();
       all_causes += (all_causes.empty() ? "" : "; ") + ("point " + std::to_string(p) + ": " + score.failure);
     }
     out.points.push_back(score);
@@ -143,11 +154,17 @@ std::vector<MemberSpec> FoldSpecs(const Config& config, const PreparedData& data
   return specs;
 }
 
-int StopEpochFromFolds(const std::vector<const MemberResult*>& folds, bool early_stopping) {
-  if (!early_stopping || folds.empty()) return 0;
-  std::vector<int> epochs;
-  for (const MemberResult* f : folds) epochs.push_back(f->best_epoch);
-  return MedianLower(epochs);
+std::vector<MemberSpec> FoldSpecsAt(const Config& config, const PreparedData& data,
+                                    const std::vector<int>& stop_epochs) {
+  std::vector<MemberSpec> specs;
+  for (MemberSpec spec : FoldSpecs(config, data)) {
+    const int stop = stop_epochs[static_cast<size_t>(spec.index)];
+    if (stop <= 0) continue;
+    spec.stop_epoch = stop;
+    spec.train.early_stopping.mode = Switch::kOff;
+    specs.push_back(spec);
+  }
+  return specs;
 }
 
 std::vector<MemberSpec> MemberSpecs(const Config& config, const PreparedData& data,

@@ -4,6 +4,7 @@
 #include <utility>
 
 #include "common/file_util.h"
+#include "coordinator/terminal.h"
 
 namespace chorus {
 
@@ -149,6 +150,7 @@ json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const Ru
       {"weighting", WeightingName(ev.weighting)},
       {"weights", ev.weights},
       {"validation_nll_weighted", ev.validation_nll_weighted},
+      {"validation_nll_calibrated", ev.validation_nll_calibrated},
       {"uncertainty", UncertaintyJson(ev)},
       {"size_curve", SizeCurveJson(ev.task, ev.size_curve)},
       {"data_hash", facts.data_hash},
@@ -170,6 +172,24 @@ json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const Ru
     report["ensemble"]["test_without_basin"] = ScoresJson(ev.task, *ev.test_without_basin);
   }
   return report;
+}
+
+json BaselineJson(const EnsembleEvaluation& ev, const BaselineEvaluation& b) {
+  json out = {{"model", b.model}, {"verdict", BaselineVerdict(ev, b)}};
+  if (!b.skipped.empty()) {
+    out["skipped"] = b.skipped;
+    return out;
+  }
+  json hyper = json::object();
+  for (const auto& [name, value] : b.hyperparameters) hyper[name] = value;
+  out.update({{"test", ScoresJson(ev.task, b.test)},
+              {"test_uncalibrated", ScoresJson(ev.task, b.test_uncalibrated)},
+              {"temperature", b.temperature},
+              {"validation_nll", b.validation_nll},
+              {"ensemble_validation_nll", ev.validation_nll_calibrated},
+              {"better_on_validation", b.validation_nll < ev.validation_nll_calibrated},
+              {"hyperparameters", hyper}});
+  return out;
 }
 
 namespace {

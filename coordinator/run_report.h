@@ -9,6 +9,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "common/baseline_evaluation.h"
 #include "common/dataset.h"
 #include "common/evaluation.h"
 #include "common/status.h"
@@ -32,6 +33,11 @@ extern const char* const kCautionText;
 // The report of an evaluated run. Requires ev to come from EvaluateEnsemble on `data`.
 nlohmann::json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data,
                           const RunFacts& facts);
+
+// report["baseline"]: the linear baseline's model, test scores before and after its own
+// temperature, its validation NLL beside the ensemble's (each at its tuned temperature),
+// `better_on_validation`, the verdict sentence and the fitted hyperparameters; or `skipped`.
+nlohmann::json BaselineJson(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline);
 
 // Checks that `report` has the keys and types ReportHtml and the compare command rely on
 // (name, task, ensemble.test, members, weights, temperature, size_curve, hashes, uncertainty).

@@ -12,6 +12,14 @@ namespace {
 
 // One stage's jobs after they ran: the result of each (nullopt if it failed) and why not.
 struct StageResults {
+  StageResults() = default;
+  // members x folds empty slots, "not run" until Set.
+  StageResults(int members, int folds)
+      : results(static_cast<size_t>(members * folds)), causes(results.size(), "not run") {}
+  void Set(int j, std::optional<MemberResult> r, const std::string& cause) {
+    results[static_cast<size_t>(j)] = std::move(r);
+    causes[static_cast<size_t>(j)] = cause;
+  }
   std::vector<std::optional<MemberResult>> results;
   std::vector<std::string> causes;
   std::vector<const MemberResult*> Pointers() const {
@@ -73,6 +81,21 @@ class StageRunner {
   JobRunner& runner_;
 };
 
+// Whether every fold job of member i finished (results i-major, `folds` per member); if not,
+// records the first failure. With `mine`, collects the member's results in fold order.
+bool MemberFolds(const StageResults& r, int i, int folds, std::vector<std::string>& failures,
+                 std::vector<const MemberResult*>* mine) {
+  for (int k = 0; k < folds; ++k) {
+    const size_t j = static_cast<size_t>(i * folds + k);
+    if (!r.results[j]) {
+      failures.push_back("member " + std::to_string(i) + ": fold " + std::to_string(k) + ": " + r.causes[j]);
+      return false;
+    }
+    if (mine != nullptr) mine->push_back(&*r.results[j]);
+  }
+  return true;
+}
+
 // Stage 1: the grid, and the config with its best point.
 Status Search(const Config& config, const PreparedData& data, StageRunner& stages, RunDirectory& dir,
               TrainedRun& run) {
@@ -104,18 +127,29 @@ StatusOr<TrainedRun> TrainRun(const Config& config, const PreparedData& data,
     CHORUS_ASSIGN_OR_RETURN(folds, stages.Run("folds", FoldSpecs(chosen, data)));
     run.fold_of_row = AssignFolds(data.train, data.folds, FoldSeed(chosen));
     const bool early = BaseSpec(chosen, data, 0).train.early_stopping.mode == Switch::kOn;
+    std::vector<int> members_with_folds;
     for (int i = 0; i < members; ++i) {
+      folds_ok[i] = MemberFolds(folds, i, data.folds, run.failures, nullptr);
+      if (folds_ok[i]) members_with_folds.push_back(i);
+    }
+    run.stop_epochs.assign(static_cast<size_t>(members), 0);
+    run.fold_curves.resize(static_cast<size_t>(members));
+    for (int i : members_with_folds) {
       std::vector<const MemberResult*> mine;
-      for (int k = 0; k < data.folds; ++k) {
-        const size_t j = static_cast<size_t>(i * data.folds + k);
-        if (!folds.results[j]) {
-          folds_ok[i] = false;
-          run.failures.push_back("member " + std::to_string(i) + ": fold " + std::to_string(k) + ": " + folds.causes[j]);
-          break;
-        }
-        mine.push_back(&*folds.results[j]);
+      MemberFolds(folds, i, data.folds, run.failures, &mine);
+      for (const MemberResult* f : mine) run.fold_curves[i].push_back(f->validation_nll);
+      if (early) run.stop_epochs[i] = BestJointEpoch(mine).epoch;
+    }
+    if (early) {
+      // The second pass: each member's folds replayed to its joint best epoch.
+      CHORUS_ASSIGN_OR_RETURN(folds, stages.Run("folds at the chosen epoch", FoldSpecsAt(chosen, data, run.stop_epochs)));
+      StageResults full(members, data.folds);
+      size_t j = 0;
+      for (int i : members_with_folds) {
+        for (int k = 0; k < data.folds; ++k, ++j) full.Set(i * data.folds + k, std::move(folds.results[j]), folds.causes[j]);
       }
-      run.stop_epochs.push_back(folds_ok[i] ? StopEpochFromFolds(mine, early) : 0);
+      folds = std::move(full);
+      for (int i : members_with_folds) folds_ok[i] = MemberFolds(folds, i, data.folds, run.failures, nullptr);
     }
   }
   std::vector<MemberSpec> member_specs;

@@ -28,7 +28,10 @@ struct TrainedRun {
   // job without fold k), which basin-scale tuning redraws from.
   std::vector<int> fold_of_row;
   std::vector<std::vector<MemberResult>> member_folds;
-  std::vector<int> stop_epochs;             // per member (cross-fitting with early stopping)
+  // When cross-fitting: per member, the epoch its folds and itself were stopped at (0: the whole
+  // schedule), and its first-pass fold jobs' held-out NLL curves.
+  std::vector<int> stop_epochs;
+  std::vector<std::vector<std::vector<double>>> fold_curves;
   std::vector<std::string> failures;        // "member i: cause" for members that did not finish
 };
 

@@ -66,7 +66,22 @@ void Row(std::ostringstream& s, const std::string& label, Task task, const Score
 
 }  // namespace
 
-std::string SummaryTable(const EnsembleEvaluation& ev) {
+std::string BaselineVerdict(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline) {
+  if (!baseline.skipped.empty()) return "linear baseline not fitted: " + baseline.skipped;
+  std::ostringstream s;
+  s << std::fixed << std::setprecision(4);
+  if (baseline.validation_nll < ev.validation_nll_calibrated) {
+    s << "The linear baseline beats the ensemble on validation (nll " << baseline.validation_nll
+      << " vs " << ev.validation_nll_calibrated << "): on this data a linear model may serve as well "
+      << "or better, at a fraction of the cost.";
+  } else {
+    s << "The ensemble beats the linear baseline on validation (nll " << ev.validation_nll_calibrated
+      << " vs " << baseline.validation_nll << ").";
+  }
+  return s.str();
+}
+
+std::string SummaryTable(const EnsembleEvaluation& ev, const BaselineEvaluation* baseline) {
   std::ostringstream s;
   s << std::left << std::setw(34) << "test set" << std::right;
   if (ev.task == Task::kClassification) {
@@ -83,10 +98,16 @@ std::string SummaryTable(const EnsembleEvaluation& ev) {
   std::ostringstream t;
   t << std::setprecision(3) << std::fixed << ev.temperature;
   Row(s, "ensemble, tuned T = " + t.str(), ev.task, ev.test);
+  if (baseline != nullptr && baseline->skipped.empty()) {
+    std::ostringstream b;
+    b << std::setprecision(3) << std::fixed << baseline->temperature;
+    Row(s, "linear baseline, tuned T = " + b.str(), ev.task, baseline->test);
+  }
   if (ev.bayes_optimal_test_nll) {
     s << std::fixed << std::setprecision(4) << "Bayes-optimal test nll (true probabilities known): "
       << *ev.bayes_optimal_test_nll << "\n";
   }
+  if (baseline != nullptr) s << BaselineVerdict(ev, *baseline) << "\n";
   return s.str();
 }
 

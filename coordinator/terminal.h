@@ -7,6 +7,7 @@
 #include <cstdio>
 #include <string>
 
+#include "common/baseline_evaluation.h"
 #include "common/evaluation.h"
 #include "common/member_training.h"
 
@@ -29,7 +30,12 @@ class ProgressPrinter {
   std::chrono::steady_clock::time_point start_;
 };
 
-// The closing table: mean member, best member, ensemble before and after temperature, on test.
-std::string SummaryTable(const EnsembleEvaluation& ev);
+// The closing table: mean member, best member, ensemble before and after temperature and, when
+// given and fitted, the linear baseline, on test; then the verdict of BaselineVerdict.
+std::string SummaryTable(const EnsembleEvaluation& ev, const BaselineEvaluation* baseline = nullptr);
+
+// One sentence: whether the linear baseline or the ensemble has the lower validation NLL (each at
+// its own tuned temperature), or why no baseline was fitted.
+std::string BaselineVerdict(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline);
 
 }  // namespace chorus

@@ -63,9 +63,7 @@ void AddTrainingFacts(const Config& assembled, const PreparedData& data, const T
       m["epochs_trained"] = r.epoch_loss.size() - (assembled.ensemble.basin.method == BasinMethod::kNone
                                                        ? 0 : static_cast<size_t>(assembled.ensemble.basin.epochs));
       if (data.folds > 0) {
-        json curves = json::array();
-        for (const MemberResult& f : trained.member_folds[j]) curves.push_back(f.validation_nll);
-        m["fold_validation_nll"] = curves;
+        m["fold_validation_nll"] = trained.fold_curves[static_cast<size_t>(r.index)];
         m["stop_epoch"] = trained.stop_epochs[static_cast<size_t>(r.index)];
       } else {
         m["validation_nll_per_epoch"] = r.validation_nll;

@@ -121,6 +121,32 @@ TEST_F(PromoteTest, FirstBundleThenABetterOneArePromoted) {
             ReadTextFile(better_ + "/report.json"));
 }
 
+// --refuse-if-baseline-better reads the candidate run's own verdict (report.json
+// baseline.better_on_validation); a copy of a run with the verdict set either way stands in for
+// runs whose data favours one side.
+TEST_F(PromoteTest, BaselineFlagRefusesACandidateWhoseLinearBaselineWonOnValidation) {
+  const std::string run = fs::path(registry_).parent_path().string() + "/baseline-won";
+  fs::copy(better_, run, fs::copy_options::recursive);
+  json report = json::parse(ReadTextFile(run + "/report.json"));
+  ASSERT_TRUE(report["baseline"].contains("better_on_validation")) << report["baseline"];
+  report["baseline"]["better_on_validation"] = true;
+  testing::WriteTextFile(run + "/report.json", report.dump());
+  const auto refused = Promote(run, "--refuse-if-baseline-better");
+  EXPECT_EQ(refused.exit_code, 3) << refused.output;
+  EXPECT_TRUE(CurrentTarget().empty()) << "an empty registry stays empty";
+  const std::vector<std::string> decisions = Entries("refused");
+  ASSERT_EQ(decisions.size(), 1u);
+  const json d = json::parse(ReadTextFile(registry_ + "/refused/" + decisions[0]));
+  EXPECT_NE(d["reasons"].back().get<std::string>().find("linear baseline beat the ensemble"), std::string::npos)
+      << d["reasons"];
+  EXPECT_EQ(d["limits"]["refuse_if_baseline_better"], true);
+  report["baseline"]["better_on_validation"] = false;
+  testing::WriteTextFile(run + "/report.json", report.dump());
+  const auto promoted = Promote(run, "--refuse-if-baseline-better");
+  EXPECT_EQ(promoted.exit_code, 0) << promoted.output;
+  EXPECT_FALSE(CurrentTarget().empty());
+}
+
 TEST_F(PromoteTest, WorseCandidateIsRefusedAndCurrentUntouched) {
   ASSERT_EQ(Promote(better_).exit_code, 0);
   const std::string target = CurrentTarget();

@@ -58,11 +58,21 @@ TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
   for (const char* f : {"config.yaml", "manifest.json", "events.jsonl", "report.json", "report.html"}) {
     EXPECT_TRUE(fs::exists(run + "/" + f)) << f;
   }
-  // 1,200 training rows count as small (data.small_data_rows): 5-fold cross-fitting, so 3 member
-  // jobs and 3 x 5 fold jobs.
-  EXPECT_EQ(JobResults(run).size(), 18u);
+  // 1,200 training rows count as small (data.small_data_rows): 5-fold cross-fitting with early
+  // stopping, so 3 member jobs and 3 x 5 fold jobs, run twice (the second pass replays each
+  // member's folds to its chosen epoch).
+  EXPECT_EQ(JobResults(run).size(), 33u);
   const auto report = nlohmann::json::parse(testing::ReadTextFile(run + "/report.json"));
   EXPECT_EQ(report["validation"]["method"], "cross-fitting");
+  // The linear baseline is a row of the closing table and of report.json, with its verdict.
+  EXPECT_NE(r.output.find("linear baseline, tuned T"), std::string::npos) << r.output;
+  EXPECT_NE(r.output.find("on validation (nll"), std::string::npos) << r.output;
+  for (const char* key : {"accuracy", "nll", "brier", "ece"}) {
+    EXPECT_TRUE(report["baseline"]["test"].contains(key)) << key;
+  }
+  EXPECT_EQ(report["baseline"]["better_on_validation"].get<bool>(),
+            report["baseline"]["validation_nll"].get<double>() < report["validation_nll_calibrated"].get<double>());
+  EXPECT_GT(report["baseline"]["hyperparameters"]["alpha"].get<double>(), 0.0);
   EXPECT_EQ(report["validation"]["rows"], 1200);
   for (const char* key : {"accuracy", "nll", "brier", "ece"}) {
     EXPECT_TRUE(report["ensemble"]["test"].contains(key)) << key;
@@ -97,7 +107,7 @@ TEST_F(RunCommandTest, ResultBytesAreIdenticalAcrossRepeatsAndThreadCounts) {
     ASSERT_EQ(r.exit_code, 0) << r.output;
     runs.push_back(JobResults(testing::RunDirUnder(out)));
   }
-  ASSERT_EQ(runs[0].size(), 18u);  // 3 members and their 3 x 5 fold jobs (cross-fitting)
+  ASSERT_EQ(runs[0].size(), 33u);  // 3 members and twice their 3 x 5 fold jobs (cross-fitting)
   EXPECT_TRUE(runs[0] == runs[1]) << "1 thread vs 2 threads";
   EXPECT_TRUE(runs[1] == runs[2]) << "same config twice";
 }
@@ -111,10 +121,12 @@ TEST_F(RunCommandTest, SearchChoosesThePointWithTheLowestValidationNllForTheMemb
                       " --out " + dir_ + "/runs");
   ASSERT_EQ(r.exit_code, 0) << r.output;
   const std::string run = testing::RunDirUnder(dir_ + "/runs");
-  EXPECT_EQ(JobResults(run).size(), 4u * 5u + 2u * 5u + 2u);  // points x folds, members x folds, members
+  // Points x folds, members x folds (twice: early stopping, then replayed to the chosen epoch),
+  // members.
+  EXPECT_EQ(JobResults(run).size(), 9u * 5u + 2u * 2u * 5u + 2u);
   const auto report = nlohmann::json::parse(testing::ReadTextFile(run + "/report.json"));
   const auto& points = report["search"]["points"];
-  ASSERT_EQ(points.size(), 4u);
+  ASSERT_EQ(points.size(), 9u);  // the configured width [16] and decay 5e-4 join the lists
   size_t best = 0;
   for (size_t p = 0; p < points.size(); ++p) {
     if (points[p]["validation_nll"].get<double>() < points[best]["validation_nll"].get<double>()) best = p;
