@@ -27,7 +27,8 @@ struct BaselineEvaluation {
 
 // Fits the baseline on data.train and predicts validation and test. With fold_of_row (cross-
 // fitting, data.folds > 0), the validation predictions are out of fold: fold k's rows come from
-// a fit without them, and validation is the whole training split, as for the ensemble. With
+// a fit without them, and validation is the whole training split, as for the ensemble (the
+// classifier's fold fits keep the prior precision the evidence chose on all training rows). With
 // tune_temperature false the temperature stays 1. A fit that cannot be made (too many
 // parameters for the exact Laplace Hessian, a singular problem) is reported in `skipped`.
 BaselineEvaluation EvaluateBaseline(const PreparedData& data, const std::vector<int>& fold_of_row,

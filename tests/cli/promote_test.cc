@@ -211,7 +211,8 @@ TEST_F(PromoteTest, RegressionGateUsesNllAndRmse) {
   auto r = Promote(better_regression_);
   ASSERT_EQ(r.exit_code, 0) << r.output;
   const json d = CurrentDecision();
-  EXPECT_EQ(d["limits"], json({{"max_nll_increase", 0.01}, {"max_rmse_increase", 0.02}}));
+  EXPECT_EQ(d["limits"], json({{"max_nll_increase", 0.01}, {"max_rmse_increase", 0.02},
+                               {"refuse_if_baseline_better", false}}));
   const json report = json::parse(ReadTextFile(better_regression_ + "/report.json"));
   for (const char* metric : {"rmse", "nll", "coverage_90"}) {
     EXPECT_EQ(d["candidate"]["metrics"][metric], report["ensemble"]["test"][metric]) << metric;

@@ -147,8 +147,9 @@ TEST(GateTest, JsonHoldsTheTaskMetricsAndLimits) {
   const GateLimits limits;
   EXPECT_EQ(GateLimitsJson(Task::kRegression, limits),
             nlohmann::json({{"max_nll_increase", limits.max_nll_increase},
-                            {"max_rmse_increase", limits.max_rmse_increase}}));
-  EXPECT_EQ(GateLimitsJson(Task::kClassification, limits).size(), 3u);
+                            {"max_rmse_increase", limits.max_rmse_increase},
+                            {"refuse_if_baseline_better", false}}));
+  EXPECT_EQ(GateLimitsJson(Task::kClassification, limits).size(), 4u);
 }
 
 }  // namespace
