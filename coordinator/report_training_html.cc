@@ -28,10 +28,16 @@ std::string SchemeText(const json& r) {
       : "a " + method + " of " + std::to_string(v.value("rows", 0)) + " rows, never trained on.";
   if (r.contains("early_stopping")) {
     const json& e = r["early_stopping"];
-    text += e.value("on", false)
-        ? " Early stopping on validation NLL (patience " + std::to_string(e.value("patience", 0)) +
-              " epochs); each member keeps its best epoch's parameters."
-        : " Early stopping off: every member trained all its epochs.";
+    const std::string patience = " (patience " + std::to_string(e.value("patience", 0)) + " epochs)";
+    if (!e.value("on", false)) {
+      text += " Early stopping off: every member trained all its epochs.";
+    } else if (method == "cross-fitting") {
+      text += " Early stopping on validation NLL" + patience + ": each member, and its fold jobs "
+              "replayed, stop at the epoch whose NLL over all its held-out rows was lowest.";
+    } else {
+      text += " Early stopping on validation NLL" + patience + ": each member keeps its best "
+              "epoch's parameters.";
+    }
   }
   return text;
 }
@@ -39,9 +45,10 @@ std::string SchemeText(const json& r) {
 std::string SettingsText(const json& r) {
   if (!r.contains("settings")) return "";
   const json& s = r["settings"];
+  const std::string beta = r["task"] == "regression" ? ", beta-NLL " + Value(s["beta_nll"]) : "";
   return "<p>Settings used: hidden " + Widths(s["hidden"]) + ", learning rate " + Value(s["lr"]) +
-         ", weight decay " + Value(s["weight_decay"]) + ", beta-NLL " + Value(s["beta_nll"]) +
-         ", at most " + Value(s["epochs"]) + " epochs.</p>";
+         ", weight decay " + Value(s["weight_decay"]) + beta + ", at most " + Value(s["epochs"]) +
+         " epochs.</p>";
 }
 
 std::string KeptEpochs(const json& r) {

@@ -98,6 +98,35 @@ TEST(ReportHtmlTest, AnOlderReportWithoutChartDataGetsNotesInstead) {
   EXPECT_EQ(DataMarksPerChart(html).size(), 6u);  // the size curves remain
 }
 
+// The linear baseline's row and verdict, and the Training section with the search grid, render
+// from the keys chorus run writes (coordinator/training_facts.h, BaselineJson).
+TEST(ReportHtmlTest, ShowsTheBaselineVerdictAndHowTheMembersWereTrained) {
+  nlohmann::json r = testing::SampleReport(Task::kClassification);
+  r["baseline"] = {{"model", "logistic regression"}, {"verdict", "The linear baseline beats the ensemble."},
+                   {"better_on_validation", true}, {"temperature", 0.75},
+                   {"test", {{"accuracy", 0.5}, {"nll", 0.123456}, {"brier", 0.25}, {"ece", 0.125}}}};
+  r["validation"] = {{"method", "cross-fitting"}, {"folds", 5}, {"rows", 400}};
+  r["early_stopping"] = {{"on", true}, {"patience", 7}};
+  r["settings"] = {{"hidden", {16}}, {"lr", 0.01}, {"weight_decay", 0.001}, {"beta_nll", 0.5}, {"epochs", 100}};
+  r["search"] = {{"chosen", 1},
+                 {"points", {{{"hidden", {8}}, {"lr", 0.01}, {"weight_decay", 0.0}, {"beta_nll", 0.5},
+                              {"validation_nll", 0.5}, {"best_epoch", 3}},
+                             {{"hidden", {16}}, {"lr", 0.01}, {"weight_decay", 0.001}, {"beta_nll", 0.5},
+                              {"validation_nll", 0.25}, {"best_epoch", 9}}}}};
+  for (auto& m : r["members"]) m.update({{"best_epoch", 9}, {"epochs_trained", 9}, {"stop_epoch", 9}});
+  const std::string html = ReportHtml(r);
+  EXPECT_NE(html.find("linear baseline, T = 0.750"), std::string::npos);
+  EXPECT_NE(html.find("0.1235"), std::string::npos) << "the baseline's test NLL";
+  EXPECT_NE(html.find("class=\"verdict warn\">The linear baseline beats the ensemble."), std::string::npos);
+  EXPECT_NE(html.find("<h2>Training</h2>"), std::string::npos);
+  EXPECT_NE(html.find("5-fold cross-fitting over all 400 training rows"), std::string::npos);
+  EXPECT_NE(html.find("patience 7 epochs"), std::string::npos);
+  EXPECT_NE(html.find("<td>1 (chosen)</td>"), std::string::npos);
+  EXPECT_EQ(html.find("beta-NLL 0.5,"), std::string::npos) << "beta only matters for regression";
+  const std::string older = ReportHtml(testing::SampleReport(Task::kClassification));
+  EXPECT_EQ(older.find("<h2>Training</h2>"), std::string::npos) << "older reports render without it";
+}
+
 TEST(ReportHtmlTest, EscapesTextFromTheReport) {
   json report = testing::SampleReport(Task::kClassification);
   report["name"] = "<b>alarms</b> & co";
