@@ -9,8 +9,8 @@ namespace chorus {
 namespace {
 
 // Search range of log T and log s, and the grid that brackets the minimum before golden section.
-const double kLogScaleLo = std::log(0.05);
-const double kLogScaleHi = std::log(20.0);
+const double kLogScaleLo = std::log(kMinTunedScale);
+const double kLogScaleHi = std::log(kMaxTunedScale);
 constexpr int kScaleGridPoints = 41;
 constexpr double kLogScaleTolerance = 1e-6;
 
@@ -122,6 +122,10 @@ double TuneStddevScale(const std::vector<const MemberGaussian*>& members,
   };
   return std::exp(
       MinimiseScalar(nll, kLogScaleLo, kLogScaleHi, kScaleGridPoints, kLogScaleTolerance));
+}
+
+bool AtTuningRangeEnd(double tuned) {
+  return tuned <= kMinTunedScale * 1.01 || tuned >= kMaxTunedScale / 1.01;
 }
 
 double MinimiseScalar(const std::function<double(double)>& f, double lo, double hi, int grid,

@@ -37,6 +37,14 @@ double TuneTemperature(const std::vector<const Matrix*>& logits, const std::vect
 double TuneStddevScale(const std::vector<const MemberGaussian*>& members,
                        const std::vector<double>& weights, const std::vector<double>& targets);
 
+// The range TuneTemperature and TuneStddevScale search: [0.05, 20].
+constexpr double kMinTunedScale = 0.05, kMaxTunedScale = 20.0;
+
+// Whether a tuned temperature or scale ended within 1% of either end of that range: the
+// validation rows held no evidence that stops it (e.g. no confident mistake to punish
+// sharpening), so the value says more about the validation rows than about calibration.
+bool AtTuningRangeEnd(double tuned);
+
 // Minimises a unimodal-ish f over [lo, hi]: grid of `grid` points to bracket, then golden section
 // to width `tol`. Exposed for tests.
 double MinimiseScalar(const std::function<double(double)>& f, double lo, double hi, int grid,

@@ -337,6 +337,7 @@ EnsembleEvaluation EvaluateEnsemble(const PreparedData& data, const std::vector<
   EnsembleEvaluation ev;
   ev.task = data.task;
   ev.weighting = ensemble.weighting;
+  ev.tuned_temperature = ensemble.tune_temperature;
   for (const MemberResult& m : members) ev.members.push_back({m.index, m.seed, 1, {}, {}, 0.0});
   const uint64_t curve_seed = Derive(seed, "size_curve");
   if (data.task == Task::kClassification) {

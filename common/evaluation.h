@@ -61,6 +61,7 @@ struct EnsembleEvaluation {
   double validation_nll_weighted = 0;  // validation NLL of the weighted mixture at T = 1
   double validation_nll_calibrated = 0;  // the same at the tuned T
   double temperature = 1.0;      // classification: logits / T; regression: stddev * T
+  bool tuned_temperature = false;  // T was tuned on validation (ensemble.temperature: tune)
   Scores test;                   // ensemble, calibrated
   Scores test_uncalibrated;      // ensemble, T = 1
   // With basin fits: the same members' trained points alone, assembled the same way (own weights

@@ -152,6 +152,9 @@ std::string TestSection(const json& r) {
   }
   std::string html = "<section><h2>Test set</h2>" + MetricsTable(r, rows, ensemble_row) +
                      BaselineVerdictHtml(r);
+  if (r.contains("temperature_warning")) {
+    html += "<p class=\"verdict warn\">" + EscapeHtml(r["temperature_warning"].get<std::string>()) + "</p>";
+  }
   if (r.contains("bayes_optimal_test_nll")) {
     html += "<p>Bayes-optimal test NLL (the true probabilities of this invented data are known): " +
             Num(r["bayes_optimal_test_nll"]) + "</p>";

@@ -3,6 +3,7 @@
 #include <filesystem>
 #include <utility>
 
+#include "common/assembly.h"
 #include "common/file_util.h"
 #include "coordinator/terminal.h"
 
@@ -167,6 +168,9 @@ json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const Ru
       {"caution", kCautionText},
   };
   AddCalibrationDiagram(ev, report);
+  if (ev.tuned_temperature && AtTuningRangeEnd(ev.temperature)) {
+    report["temperature_warning"] = TemperatureAtRangeEndWarning();
+  }
   if (ev.bayes_optimal_test_nll) report["bayes_optimal_test_nll"] = *ev.bayes_optimal_test_nll;
   if (ev.test_without_basin) {
     report["ensemble"]["test_without_basin"] = ScoresJson(ev.task, *ev.test_without_basin);

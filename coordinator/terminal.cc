@@ -5,6 +5,7 @@
 #include <sstream>
 #include <iomanip>
 
+#include "common/assembly.h"
 #include "common/log_format.h"
 
 namespace chorus {
@@ -66,6 +67,13 @@ void Row(std::ostringstream& s, const std::string& label, Task task, const Score
 
 }  // namespace
 
+std::string TemperatureAtRangeEndWarning() {
+  return "warning: the tuned temperature sits at the end of its range (0.05 to 20): the "
+         "validation rows did not pin it down (for example, no confident mistake among them), so "
+         "do not trust the calibration; use more validation rows or cross-fitting "
+         "(data.validation.folds).";
+}
+
 std::string BaselineVerdict(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline) {
   if (!baseline.skipped.empty()) return "linear baseline not fitted: " + baseline.skipped;
   std::ostringstream s;
@@ -107,6 +115,7 @@ std::string SummaryTable(const EnsembleEvaluation& ev, const BaselineEvaluation*
     s << std::fixed << std::setprecision(4) << "Bayes-optimal test nll (true probabilities known): "
       << *ev.bayes_optimal_test_nll << "\n";
   }
+  if (ev.tuned_temperature && AtTuningRangeEnd(ev.temperature)) s << TemperatureAtRangeEndWarning() << "\n";
   if (baseline != nullptr) s << BaselineVerdict(ev, *baseline) << "\n";
   return s.str();
 }

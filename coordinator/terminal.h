@@ -34,6 +34,10 @@ class ProgressPrinter {
 // given and fitted, the linear baseline, on test; then the verdict of BaselineVerdict.
 std::string SummaryTable(const EnsembleEvaluation& ev, const BaselineEvaluation* baseline = nullptr);
 
+// The warning the closing table and report.json carry when the tuned temperature (or scale)
+// ended at an end of its search range (common/assembly.h AtTuningRangeEnd).
+std::string TemperatureAtRangeEndWarning();
+
 // One sentence: whether the linear baseline or the ensemble has the lower validation NLL (each at
 // its own tuned temperature), or why no baseline was fitted.
 std::string BaselineVerdict(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline);

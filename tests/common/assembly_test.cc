@@ -166,6 +166,22 @@ TEST(AssemblyTest, TuneTemperatureRecoversKnownTemperature) {
   }
 }
 
+// A validation set the model never gets wrong gives no reason to stop sharpening: the tuned
+// temperature runs to the end of its range, which AtTuningRangeEnd reports; a well-posed case
+// (labels drawn from the model, T0 = 2.5 as above) does not.
+TEST(AssemblyTest, TemperatureDrivenToTheRangeEndIsFlagged) {
+  Philox rng(43);
+  const Matrix z = RandomLogits(500, 4, 2.0, &rng);
+  std::vector<int32_t> argmax(500);
+  for (int i = 0; i < 500; ++i) z.row(i).maxCoeff(&argmax[i]);
+  const double t = TuneTemperature({&z}, {1.0}, argmax);
+  EXPECT_NEAR(t, kMinTunedScale, 1e-4);
+  EXPECT_TRUE(AtTuningRangeEnd(t));
+  const Matrix hot = 2.5f * z;
+  const double fair = TuneTemperature({&hot}, {1.0}, SampleLabels(z, &rng));
+  EXPECT_FALSE(AtTuningRangeEnd(fair)) << fair;
+}
+
 TEST(AssemblyTest, MixtureGaussiansScalesEveryStddev) {
   const MemberGaussian a{{1.0, 2.0}, {0.5, 1.0}}, b{{3.0, 4.0}, {2.0, 3.0}};
   const GaussianMixture g = MixtureGaussians({&a, &b}, {0.25, 0.75}, 2.0);

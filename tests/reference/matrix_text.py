@@ -1,4 +1,5 @@
-"""Reads the matrix text format of tests/testing/reference.h: "rows cols", then one row a line."""
+"""Reads and writes the matrix text format of tests/testing/reference.h: "rows cols", then one
+row a line; prints "name value ..." lines for ParseReferenceOutput."""
 import numpy as np
 
 
@@ -16,3 +17,14 @@ def read_labels(path):
 
 def print_value(name, value):
     print(name, repr(float(value)))
+
+
+def write_matrix(path, m):
+    with open(path, "w") as f:
+        f.write(f"{m.shape[0]} {m.shape[1]}\n")
+        for row in m:
+            f.write(" ".join(repr(float(v)) for v in row) + "\n")
+
+
+def print_vector(name, v):
+    print(name, " ".join(repr(float(x)) for x in np.ravel(v)))

@@ -22,18 +22,7 @@ from scipy.stats import multivariate_normal
 from sklearn.datasets import load_diabetes
 from sklearn.linear_model import BayesianRidge
 
-from matrix_text import print_value
-
-
-def write_matrix(path, m):
-    with open(path, "w") as f:
-        f.write(f"{m.shape[0]} {m.shape[1]}\n")
-        for row in m:
-            f.write(" ".join(repr(float(v)) for v in row) + "\n")
-
-
-def print_vector(name, v):
-    print(name, " ".join(repr(float(x)) for x in v))
+from matrix_text import print_value, print_vector, write_matrix
 
 
 def log_evidence(x, y, alpha, beta):

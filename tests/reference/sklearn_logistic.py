@@ -23,16 +23,7 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.model_selection import train_test_split
 from sklearn.preprocessing import StandardScaler
 
-
-def write_matrix(path, m):
-    with open(path, "w") as f:
-        f.write(f"{m.shape[0]} {m.shape[1]}\n")
-        for row in m:
-            f.write(" ".join(repr(float(v)) for v in row) + "\n")
-
-
-def print_vector(name, v):
-    print(name, " ".join(repr(float(x)) for x in np.ravel(v)))
+from matrix_text import print_vector, write_matrix
 
 
 def main():
