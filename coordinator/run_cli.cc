@@ -12,11 +12,13 @@ void RegisterRunCommand(CLI::App& app, CommandRunner* runner) {
   auto options = std::make_shared<RunOptions>();
   CLI::App* cmd = app.add_subcommand(
       "run", "Train every member of CONFIG, assemble the ensemble, tune its temperature on\n"
-             "validation, score it on test, and write a run directory (config.yaml, manifest.json,\n"
-             "jobs/, events.jsonl, report.json, report.html).");
+             "validation, score it on test beside a linear baseline, and write a run directory\n"
+             "(config.yaml, manifest.json, jobs/, events.jsonl, report.json, report.html,\n"
+             "bundle.chorus). Jobs run in stages: the search grid (with `search`), fold jobs\n"
+             "(k-fold cross-fitting, by default for small data), then the members.");
   cmd->add_option("CONFIG", options->config_path, "YAML config file (not needed with --resume)");
   cmd->add_option("--resume", options->resume_dir,
-                  "continue RUN_DIR after an interruption: finished members are kept, the rest run");
+                  "continue RUN_DIR after an interruption: finished jobs are kept, the rest run");
   cmd->add_option("--out", options->out_dir, "parent directory for the run directory (default: run.out_dir)");
   cmd->add_option("--threads", options->threads,
                   "members trained at once (default: compute.threads; 0 = all cores)")
