@@ -171,9 +171,11 @@ class WorkerPoolRunner final : public JobRunner {
       std::this_thread::sleep_for(std::chrono::milliseconds(50));
       for (const ExpiredLease& e : table_.ExpireLeases(Clock::now())) {
         const MemberSpec spec = service_->Spec(e.job);
-        dir_.LogEvent(e.failed ? (spec.role == JobRole::kMember ? "member_failed" : "job_failed") : "lease_expired",
-                      {{"member", spec.index}, {"job", JobName(spec)}, {"worker", e.worker},
-                       {"cause", e.failed ? "lease expired too often" : ""}});
+        if (e.failed) {
+          dir_.LogJobEvent(spec, true, {{"worker", e.worker}, {"cause", "lease expired too often"}});
+        } else {
+          dir_.LogEvent("lease_expired", {{"member", spec.index}, {"job", JobName(spec)}, {"worker", e.worker}});
+        }
       }
       const int running = workers_.WaitForExit(0);
       if (running < local_ && !table_.AllSettled()) {

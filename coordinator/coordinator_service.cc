@@ -42,16 +42,6 @@ MemberSpec CoordinatorService::Spec(int job) const {
   return specs_[static_cast<size_t>(job)];
 }
 
-void CoordinatorService::LogJobEvent(int job, bool failed, nlohmann::json fields) {
-  const MemberSpec spec = Spec(job);
-  const bool member = spec.role == JobRole::kMember;
-  fields["member"] = spec.index;
-  fields["job"] = JobName(spec);
-  if (!member) fields["role"] = JobRoleName(spec.role);
-  dir_->LogEvent(member ? (failed ? "member_failed" : "member_finished")
-                        : (failed ? "job_failed" : "job_finished"), fields);
-}
-
 grpc::Status CoordinatorService::Authenticate(grpc::ServerContext* ctx) {
   const auto& md = ctx->client_metadata();
   const auto it = md.find("x-chorus-token");
@@ -229,7 +219,7 @@ grpc::Status CoordinatorService::Store(int job, const std::string& worker, const
   if (!table_->Finish(job)) return duplicate();
   reply->set_outcome(wire::UploadReply::ACCEPTED);
   Seen(worker, "", nullptr);
-  LogJobEvent(job, false, {{"worker", worker}});
+  dir_->LogJobEvent(spec, false, {{"worker", worker}});
   return grpc::Status::OK;
 }
 
@@ -241,7 +231,7 @@ grpc::Status CoordinatorService::ReportFailure(grpc::ServerContext* ctx, const w
   const bool failed = table_->Fail(job, req->lease_id(), req->cause(), req->deterministic());
   Seen(req->worker_id(), "", nullptr);
   if (failed) {
-    LogJobEvent(job, true, {{"worker", req->worker_id()}, {"cause", req->cause()}});
+    dir_->LogJobEvent(Spec(job), true, {{"worker", req->worker_id()}, {"cause", req->cause()}});
   } else {
     dir_->LogEvent("job_retry", {{"member", Spec(job).index}, {"job", JobName(Spec(job))},
                                  {"worker", req->worker_id()}, {"cause", req->cause()}});

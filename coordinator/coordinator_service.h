@@ -74,10 +74,6 @@ class CoordinatorService final : public wire::Coordinator::Service {
   grpc::Status Store(int job, const std::string& worker, const std::string& bytes, wire::UploadReply* reply);
   void Seen(const std::string& worker, const std::string& job, const wire::HeartbeatRequest* progress);
 
-  // Logs a finish or failure of `job` as member_finished / member_failed (members) or
-  // job_finished / job_failed (fold and search jobs).
-  void LogJobEvent(int job, bool failed, nlohmann::json fields);
-
   const DispatchInputs in_;
   const std::string data_sha_;
   JobTable* table_;

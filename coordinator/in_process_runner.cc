@@ -40,11 +40,7 @@ class InProcessRunner final : public JobRunner {
       }
       const size_t position = static_cast<size_t>(&spec - specs.data());  // `done` gets specs[i]
       if (!st.ok()) causes[position] = st.ToString();
-      const bool member = spec.role == JobRole::kMember;
-      nlohmann::json fields = {{"member", spec.index}, {"job", JobName(spec)}, {"cause", causes[position]}};
-      if (!member) fields["role"] = JobRoleName(spec.role);
-      dir_.LogEvent(member ? (st.ok() ? "member_finished" : "member_failed")
-                           : (st.ok() ? "job_finished" : "job_failed"), fields);
+      dir_.LogJobEvent(spec, !st.ok(), {{"cause", causes[position]}});
       printer.OnMemberDone(spec.index, st);
     };
     TrainMembersLocally(specs, *in_.data, in_.config->compute.threads,

@@ -53,6 +53,15 @@ StatusOr<std::string> RunDirectory::JobDir(const std::string& name) const {
   return dir;
 }
 
+Status RunDirectory::LogJobEvent(const MemberSpec& spec, bool failed, nlohmann::json fields) {
+  const bool member = spec.role == JobRole::kMember;
+  fields["member"] = spec.index;
+  fields["job"] = JobName(spec);
+  if (!member) fields["role"] = JobRoleName(spec.role);
+  return LogEvent(member ? (failed ? "member_failed" : "member_finished")
+                         : (failed ? "job_failed" : "job_finished"), fields);
+}
+
 Status RunDirectory::LogEvent(const std::string& kind, nlohmann::json fields) {
   nlohmann::json line = {{"time", UtcTimestamp()}, {"event", kind}};
   line.update(fields);

@@ -8,6 +8,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "common/member_training.h"
 #include "common/status.h"
 
 namespace chorus {
@@ -28,6 +29,11 @@ class RunDirectory {
 
   // Appends {"time": ISO-8601 UTC, "event": kind, ...fields} to events.jsonl.
   Status LogEvent(const std::string& kind, nlohmann::json fields = nlohmann::json::object());
+
+  // A job finished or failed: member_finished / member_failed for members, job_finished /
+  // job_failed (with "role") for fold and search jobs; "member" and "job" (its name) added to
+  // `fields`.
+  Status LogJobEvent(const MemberSpec& spec, bool failed, nlohmann::json fields);
 
   RunDirectory(RunDirectory&& other) noexcept : path_(std::move(other.path_)) {}
 

@@ -137,6 +137,38 @@ TEST_F(RunCommandTest, SearchChoosesThePointWithTheLowestValidationNllForTheMemb
   EXPECT_EQ(testing::CountEvents(run, "search_chosen"), 1);
 }
 
+// A resumed run re-plans its stages from the config and the results on disk: with some fold,
+// replayed-fold and member results gone (as after a crash), --resume reruns exactly those jobs
+// and every result comes back byte-identical.
+TEST_F(RunCommandTest, ResumeReplansTheStagesAndRerunsOnlyWhatIsMissing) {
+  const std::string cfg = WriteConfig("resume-stages", "train: {epochs: 4, batch_size: 32}\n"
+                                                        "ensemble: {members: 2}\n");
+  ASSERT_EQ(Chorus("run " + cfg + " --out " + dir_ + "/runs").exit_code, 0);
+  const std::string run = testing::RunDirUnder(dir_ + "/runs");
+  const auto before = JobResults(run);
+  ASSERT_EQ(before.size(), 2u * 5u * 2u + 2u);
+  std::vector<std::string> removed;
+  for (const auto& [path, bytes] : before) {
+    if (path.find("fold-1-3/") != std::string::npos || path.find("fold-0-2-at-") != std::string::npos ||
+        path.rfind("jobs/1/", 0) == 0) {
+      removed.push_back(path);
+    }
+  }
+  ASSERT_EQ(removed.size(), 3u);
+  for (const std::string& path : removed) fs::remove(run + "/" + path);
+  auto manifest = nlohmann::json::parse(testing::ReadTextFile(run + "/manifest.json"));
+  manifest["status"] = "running";  // as a killed coordinator leaves it
+  testing::WriteTextFile(run + "/manifest.json", manifest.dump());
+  const auto resumed = Chorus("run --resume " + run);
+  ASSERT_EQ(resumed.exit_code, 0) << resumed.output;
+  EXPECT_TRUE(JobResults(run) == before);
+  int rerun = 0;
+  for (const auto& e : testing::ReadEvents(run)) {
+    if (e["event"] == "member_finished" || e["event"] == "job_finished") ++rerun;
+  }
+  EXPECT_EQ(rerun, 2 * 5 * 2 + 2 + 3) << "every job once, then the three removed ones again";
+}
+
 TEST_F(RunCommandTest, DivergingMembersFailWithTheirCauseAndTooFewMeansExitThree) {
   const auto r = Chorus("run " + WriteConfig("nan", "train: {epochs: 2, optimizer: {lr: 1.0e+5}}\n"
                                            "ensemble: {members: 2, min_members: 1}\n") +

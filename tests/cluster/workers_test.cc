@@ -42,14 +42,19 @@ class WorkersTest : public ::testing::Test {
 
   // A classification config; `epochs` sets how long each job takes, `cluster` is YAML for the
   // cluster section's contents. Minibatches are cut into two parts, so that every comparison also
-  // checks that parts computed on whatever threads a worker has give the in-process bits.
+  // checks that parts computed on whatever threads a worker has give the in-process bits. Short
+  // runs keep the small-data defaults (cross-fitting, early stopping); long ones (100 epochs or
+  // more, for killing a worker or coordinator mid-job) use a holdout and no early stopping, so
+  // that each of their few jobs really takes that long.
   std::string WriteConfig(const std::string& name, int members, int epochs, const std::string& cluster) {
     const std::string path = dir_ + "/" + name + ".yaml";
+    const bool long_jobs = epochs >= 100;
     testing::WriteTextFile(path, "run: {name: " + name + ", seed: 5}\n"
         "data: {train: data/alarms_train.csv, test: data/alarms_test.csv, target: cause,\n"
-        "       categorical: [station]}\n"
+        "       categorical: [station]" + (long_jobs ? ", validation: {fraction: 0.2}" : "") + "}\n"
         "model: {hidden: [48, 48]}\n"
-        "train: {epochs: " + std::to_string(epochs) + ", batch_size: 32, parts: 2}\n"
+        "train: {epochs: " + std::to_string(epochs) + ", batch_size: 32, parts: 2" +
+        (long_jobs ? ", early_stopping: {mode: off}" : "") + "}\n"
         "ensemble: {members: " + std::to_string(members) + "}\n"
         "cluster: {" + cluster + "}\n");
     return path;
