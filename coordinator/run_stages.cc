@@ -111,6 +111,69 @@ Status Search(const Config& config, const PreparedData& data, StageRunner& stage
   return Status::Ok();
 }
 
+// Stage 2: the fold jobs (twice with early stopping: recorded, then replayed to each member's
+// joint best epoch). Sets folds_ok[i] false (with a failure) for members missing a fold; returns
+// the results that hold the out-of-fold outputs, members x folds.
+StatusOr<StageResults> CrossFit(const Config& chosen, const PreparedData& data, StageRunner& stages,
+                                std::vector<bool>& folds_ok, TrainedRun& run) {
+  const int members = chosen.ensemble.members;
+  CHORUS_ASSIGN_OR_RETURN(StageResults folds, stages.Run("folds", FoldSpecs(chosen, data)));
+  run.fold_of_row = AssignFolds(data.train, data.folds, FoldSeed(chosen));
+  const bool early = BaseSpec(chosen, data, 0).train.early_stopping.mode == Switch::kOn;
+  run.stop_epochs.assign(static_cast<size_t>(members), 0);
+  run.fold_curves.resize(static_cast<size_t>(members));
+  std::vector<int> members_with_folds;
+  for (int i = 0; i < members; ++i) {
+    std::vector<const MemberResult*> mine;
+    folds_ok[i] = MemberFolds(folds, i, data.folds, run.failures, &mine);
+    if (!folds_ok[i]) continue;
+    members_with_folds.push_back(i);
+    for (const MemberResult* f : mine) run.fold_curves[i].push_back(f->validation_nll);
+    if (early) run.stop_epochs[i] = BestJointEpoch(mine).epoch;
+  }
+  if (!early) return folds;
+  CHORUS_ASSIGN_OR_RETURN(StageResults replayed,
+                          stages.Run("folds at the chosen epoch", FoldSpecsAt(chosen, data, run.stop_epochs)));
+  StageResults full(members, data.folds);
+  size_t j = 0;
+  for (int i : members_with_folds) {
+    for (int k = 0; k < data.folds; ++k, ++j) {
+      full.Set(i * data.folds + k, std::move(replayed.results[j]), replayed.causes[j]);
+    }
+  }
+  for (int i : members_with_folds) folds_ok[i] = MemberFolds(full, i, data.folds, run.failures, nullptr);
+  return full;
+}
+
+// Stage 3: the members whose folds all finished; each finished member gets its out-of-fold
+// outputs (moved out of `folds`) when cross-fitting.
+Status TrainMembers(const Config& chosen, const PreparedData& data, StageRunner& stages,
+                    const std::vector<bool>& folds_ok, StageResults& folds, TrainedRun& run) {
+  std::vector<MemberSpec> specs;
+  for (const MemberSpec& s : MemberSpecs(chosen, data, run.stop_epochs)) {
+    if (folds_ok[s.index]) specs.push_back(s);
+  }
+  CHORUS_ASSIGN_OR_RETURN(StageResults trained, stages.Run("members", specs));
+  for (size_t j = 0; j < specs.size(); ++j) {
+    const int i = specs[j].index;
+    if (!trained.results[j]) {
+      run.failures.push_back("member " + std::to_string(i) + ": " + trained.causes[j]);
+      continue;
+    }
+    MemberResult member = std::move(*trained.results[j]);
+    if (data.folds > 0) {
+      std::vector<MemberResult> mine;
+      std::vector<const MemberResult*> pointers;
+      for (int k = 0; k < data.folds; ++k) mine.push_back(std::move(*folds.results[static_cast<size_t>(i * data.folds + k)]));
+      for (const MemberResult& f : mine) pointers.push_back(&f);
+      AdoptOutOfFoldOutputs(run.fold_of_row, pointers, member);
+      run.member_folds.push_back(std::move(mine));
+    }
+    run.members.push_back(std::move(member));
+  }
+  return Status::Ok();
+}
+
 }  // namespace
 
 StatusOr<TrainedRun> TrainRun(const Config& config, const PreparedData& data,
@@ -119,61 +182,12 @@ StatusOr<TrainedRun> TrainRun(const Config& config, const PreparedData& data,
   run.chosen = config;
   StageRunner stages(data, config_hash, dir, runner);
   CHORUS_RETURN_IF_ERROR(Search(config, data, stages, dir, run));
-  const Config& chosen = run.chosen;
-  const int members = chosen.ensemble.members;
-  std::vector<bool> folds_ok(static_cast<size_t>(members), true);
+  std::vector<bool> folds_ok(static_cast<size_t>(run.chosen.ensemble.members), true);
   StageResults folds;
   if (data.folds > 0) {
-    CHORUS_ASSIGN_OR_RETURN(folds, stages.Run("folds", FoldSpecs(chosen, data)));
-    run.fold_of_row = AssignFolds(data.train, data.folds, FoldSeed(chosen));
-    const bool early = BaseSpec(chosen, data, 0).train.early_stopping.mode == Switch::kOn;
-    std::vector<int> members_with_folds;
-    for (int i = 0; i < members; ++i) {
-      folds_ok[i] = MemberFolds(folds, i, data.folds, run.failures, nullptr);
-      if (folds_ok[i]) members_with_folds.push_back(i);
-    }
-    run.stop_epochs.assign(static_cast<size_t>(members), 0);
-    run.fold_curves.resize(static_cast<size_t>(members));
-    for (int i : members_with_folds) {
-      std::vector<const MemberResult*> mine;
-      MemberFolds(folds, i, data.folds, run.failures, &mine);
-      for (const MemberResult* f : mine) run.fold_curves[i].push_back(f->validation_nll);
-      if (early) run.stop_epochs[i] = BestJointEpoch(mine).epoch;
-    }
-    if (early) {
-      // The second pass: each member's folds replayed to its joint best epoch.
-      CHORUS_ASSIGN_OR_RETURN(folds, stages.Run("folds at the chosen epoch", FoldSpecsAt(chosen, data, run.stop_epochs)));
-      StageResults full(members, data.folds);
-      size_t j = 0;
-      for (int i : members_with_folds) {
-        for (int k = 0; k < data.folds; ++k, ++j) full.Set(i * data.folds + k, std::move(folds.results[j]), folds.causes[j]);
-      }
-      folds = std::move(full);
-      for (int i : members_with_folds) folds_ok[i] = MemberFolds(folds, i, data.folds, run.failures, nullptr);
-    }
+    CHORUS_ASSIGN_OR_RETURN(folds, CrossFit(run.chosen, data, stages, folds_ok, run));
   }
-  std::vector<MemberSpec> member_specs;
-  for (const MemberSpec& s : MemberSpecs(chosen, data, run.stop_epochs)) {
-    if (folds_ok[s.index]) member_specs.push_back(s);
-  }
-  CHORUS_ASSIGN_OR_RETURN(StageResults trained, stages.Run("members", member_specs));
-  for (size_t j = 0; j < member_specs.size(); ++j) {
-    const int i = member_specs[j].index;
-    if (!trained.results[j]) {
-      run.failures.push_back("member " + std::to_string(i) + ": " + trained.causes[j]);
-      continue;
-    }
-    MemberResult member = std::move(*trained.results[j]);
-    if (data.folds > 0) {
-      std::vector<MemberResult> mine;
-      for (int k = 0; k < data.folds; ++k) mine.push_back(std::move(*folds.results[static_cast<size_t>(i * data.folds + k)]));
-      std::vector<const MemberResult*> pointers;
-      for (const MemberResult& f : mine) pointers.push_back(&f);
-      AdoptOutOfFoldOutputs(run.fold_of_row, pointers, member);
-      run.member_folds.push_back(std::move(mine));
-    }
-    run.members.push_back(std::move(member));
-  }
+  CHORUS_RETURN_IF_ERROR(TrainMembers(run.chosen, data, stages, folds_ok, folds, run));
   return run;
 }
 
