@@ -1,7 +1,7 @@
 #include "common/baseline_evaluation.h"
 
-#include <algorithm>
 #include <cmath>
+#include <type_traits>
 
 #include "common/assembly.h"
 #include "common/folds.h"
@@ -42,14 +42,25 @@ MatrixD PredictRegression(const BayesianLinearRegression& m, const Matrix& x, co
   return out;
 }
 
-// Rows of per_fold[k] put back in training-row order (common/folds.h ScatterByFold, in double).
-MatrixD ScatterRows(const std::vector<int>& fold_of_row, const std::vector<MatrixD>& per_fold) {
-  MatrixD out(static_cast<Eigen::Index>(fold_of_row.size()), per_fold[0].cols());
-  std::vector<Eigen::Index> next(per_fold.size(), 0);
-  for (size_t i = 0; i < fold_of_row.size(); ++i) {
-    out.row(static_cast<Eigen::Index>(i)) = per_fold[fold_of_row[i]].row(next[fold_of_row[i]]++);
+// Validation predictions of a model family: with fold_of_row, out of fold (fold k's rows
+// predicted by fit(train rows outside fold k)); otherwise `full` on data.validation.
+// fit(split) -> StatusOr<Model>; predict(model, x) -> M (Matrix or MatrixD).
+template <typename Model, typename Fit, typename Predict>
+StatusOr<std::invoke_result_t<Predict, const Model&, const Matrix&>> ValidationPredictions(
+    const PreparedData& data, const std::vector<int>& fold_of_row, const Model& full,
+    const Fit& fit, const Predict& predict) {
+  using M = std::invoke_result_t<Predict, const Model&, const Matrix&>;
+  if (fold_of_row.empty()) return predict(full, data.validation.x);
+  std::vector<M> parts;
+  for (int k = 0; k < data.folds; ++k) {
+    const FoldRows rows = RowsOfFold(fold_of_row, k);
+    StatusOr<Model> m = fit(SelectRows(data.train, rows.train));
+    if (!m.ok()) return m.status().WithContext("fold " + std::to_string(k));
+    parts.push_back(predict(m.value(), SelectRows(data.train, rows.held_out).x));
   }
-  return out;
+  std::vector<const M*> pointers;
+  for (const M& p : parts) pointers.push_back(&p);
+  return ScatterByFold(fold_of_row, pointers);
 }
 
 MemberGaussian ToMemberGaussian(const MatrixD& m) {
@@ -74,27 +85,16 @@ void ClassificationBaseline(const PreparedData& data, const std::vector<int>& fo
     out.skipped = full.status().message();
     return;
   }
-  Matrix val;
-  if (fold_of_row.empty()) {
-    val = PredictClassifier(full.value(), data.validation.x);
-  } else {
-    std::vector<Matrix> parts;
-    for (int k = 0; k < data.folds; ++k) {
-      const FoldRows rows = RowsOfFold(fold_of_row, k);
-      // The prior precision the evidence chose on all training rows: searching it again per fold
-      // would cost k more evidence searches (seconds each for a few hundred parameters).
-      StatusOr<LaplaceLogisticRegression> m =
-          FitClassifier(SelectRows(data.train, rows.train), classes, full.value().alpha);
-      if (!m.ok()) {
-        out.skipped = "fold " + std::to_string(k) + ": " + m.status().message();
-        return;
-      }
-      parts.push_back(PredictClassifier(m.value(), SelectRows(data.train, rows.held_out).x));
-    }
-    std::vector<const Matrix*> pointers;
-    for (const Matrix& p : parts) pointers.push_back(&p);
-    val = ScatterByFold(fold_of_row, pointers);
+  // The fold fits keep the prior precision the evidence chose on all training rows: searching
+  // it again per fold would cost k more evidence searches (seconds each for a few hundred
+  // parameters).
+  const auto fit = [&](const Split& rows) { return FitClassifier(rows, classes, full.value().alpha); };
+  StatusOr<Matrix> validation = ValidationPredictions(data, fold_of_row, full.value(), fit, PredictClassifier);
+  if (!validation.ok()) {
+    out.skipped = validation.status().message();
+    return;
   }
+  const Matrix& val = validation.value();
   const Split& v = fold_of_row.empty() ? data.validation : data.train;
   const Matrix test = PredictClassifier(full.value(), data.test.x);
   out.temperature = tune ? TuneTemperature({&val}, {1.0}, v.labels) : 1.0;
@@ -111,25 +111,17 @@ void RegressionBaseline(const PreparedData& data, const std::vector<int>& fold_o
     out.skipped = full.status().message();
     return;
   }
-  MatrixD val;
-  if (fold_of_row.empty()) {
-    val = PredictRegression(full.value(), data.validation.x, data);
-  } else {
-    std::vector<MatrixD> parts;
-    for (int k = 0; k < data.folds; ++k) {
-      const FoldRows rows = RowsOfFold(fold_of_row, k);
-      StatusOr<BayesianLinearRegression> m = FitRegression(SelectRows(data.train, rows.train));
-      if (!m.ok()) {
-        out.skipped = "fold " + std::to_string(k) + ": " + m.status().message();
-        return;
-      }
-      parts.push_back(PredictRegression(m.value(), SelectRows(data.train, rows.held_out).x, data));
-    }
-    val = ScatterRows(fold_of_row, parts);
+  const auto predict = [&](const BayesianLinearRegression& m, const Matrix& x) {
+    return PredictRegression(m, x, data);
+  };
+  StatusOr<MatrixD> val = ValidationPredictions(data, fold_of_row, full.value(), FitRegression, predict);
+  if (!val.ok()) {
+    out.skipped = val.status().message();
+    return;
   }
   const std::vector<double> y_val = TargetUnits(fold_of_row.empty() ? data.validation : data.train, data);
   const std::vector<double> y_test = TargetUnits(data.test, data);
-  const MemberGaussian gv = ToMemberGaussian(val);
+  const MemberGaussian gv = ToMemberGaussian(val.value());
   const MemberGaussian gt = ToMemberGaussian(PredictRegression(full.value(), data.test.x, data));
   out.temperature = tune ? TuneStddevScale({&gv}, {1.0}, y_val) : 1.0;
   out.validation_nll = MixtureNll(MixtureGaussians({&gv}, {1.0}, out.temperature), y_val);

@@ -62,17 +62,6 @@ Split SelectRows(const Split& split, const std::vector<int64_t>& rows) {
   return out;
 }
 
-Matrix ScatterByFold(const std::vector<int>& fold_of_row, const std::vector<const Matrix*>& per_fold) {
-  Matrix out(static_cast<Eigen::Index>(fold_of_row.size()), per_fold.empty() ? 0 : per_fold[0]->cols());
-  std::vector<Eigen::Index> next(per_fold.size(), 0);
-  for (size_t i = 0; i < fold_of_row.size(); ++i) {
-    const int k = fold_of_row[i];
-    assert(next[k] < per_fold[k]->rows());
-    out.row(static_cast<Eigen::Index>(i)) = per_fold[k]->row(next[k]++);
-  }
-  return out;
-}
-
 void AdoptOutOfFoldOutputs(const std::vector<int>& fold_of_row,
                            const std::vector<const MemberResult*>& folds, MemberResult& member) {
   std::vector<const Matrix*> point;

@@ -40,8 +40,17 @@ Split SelectRows(const Split& split, const std::vector<int64_t>& rows);
 
 // Out-of-fold rows put back in training-row order: row i of the result is row r of
 // per_fold[fold_of_row[i]], where i is the r-th row of its fold. per_fold[k] has as many rows as
-// fold k, all the same columns.
-Matrix ScatterByFold(const std::vector<int>& fold_of_row, const std::vector<const Matrix*>& per_fold);
+// fold k, all the same columns. M: Matrix or MatrixD.
+template <typename M>
+M ScatterByFold(const std::vector<int>& fold_of_row, const std::vector<const M*>& per_fold) {
+  M out(static_cast<Eigen::Index>(fold_of_row.size()), per_fold.empty() ? 0 : per_fold[0]->cols());
+  std::vector<Eigen::Index> next(per_fold.size(), 0);
+  for (size_t i = 0; i < fold_of_row.size(); ++i) {
+    const int k = fold_of_row[i];
+    out.row(static_cast<Eigen::Index>(i)) = per_fold[k]->row(next[k]++);
+  }
+  return out;
+}
 
 // Gives `member` (trained on all rows) its fold jobs' out-of-fold outputs as validation outputs,
 // so assembly scores it on every training row: validation_outputs and each sample's (sample s

@@ -1,10 +1,9 @@
 // JobRunner in this process: jobs train on a oneTBB arena of compute.threads threads
 // (worker/local_trainer.h), each result written atomically as it finishes.
-#include <unistd.h>
-
 #include <thread>
 
 #include "common/file_util.h"
+#include "common/host_name.h"
 #include "coordinator/cluster_run.h"
 #include "coordinator/job_runner.h"
 #include "coordinator/terminal.h"
@@ -13,12 +12,6 @@
 
 namespace chorus {
 namespace {
-
-std::string HostName() {
-  char buf[256] = {};
-  gethostname(buf, sizeof buf - 1);
-  return buf;
-}
 
 class InProcessRunner final : public JobRunner {
  public:

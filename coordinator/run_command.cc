@@ -1,7 +1,5 @@
 #include "coordinator/run_command.h"
 
-#include <unistd.h>
-
 #include <chrono>
 #include <cstdio>
 #include <filesystem>
@@ -11,6 +9,7 @@
 
 #include "common/basin_scale.h"
 #include "common/file_util.h"
+#include "common/host_name.h"
 #include "common/gemm.h"
 #include "common/log_format.h"
 #include "common/rng.h"
@@ -50,12 +49,6 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
   }
   in.config_hash = ConfigHash(in.config);
   return in;
-}
-
-std::string HostName() {
-  char buf[256] = {};
-  gethostname(buf, sizeof buf - 1);
-  return buf;
 }
 
 json Manifest(const Inputs& in, const std::string& status, const std::string& cause, double seconds,

@@ -34,35 +34,33 @@ class StageRunner {
   StageRunner(const PreparedData& data, const std::string& config_hash, RunDirectory& dir, JobRunner& runner)
       : data_(data), config_hash_(config_hash), dir_(dir), runner_(runner) {}
 
-  // Runs the specs not yet finished on disk, then reads every spec's result back.
+  // Reads every spec's result already on disk (resume), runs the others, then reads theirs.
   StatusOr<StageResults> Run(const std::string& stage, const std::vector<MemberSpec>& specs) {
+    StageResults out;
     std::vector<MemberSpec> pending;
     for (const MemberSpec& s : specs) {
-      if (!Load(s).ok()) pending.push_back(s);
+      StatusOr<MemberResult> r = Load(s);
+      if (!r.ok()) pending.push_back(s);
+      out.results.push_back(r.ok() ? std::optional<MemberResult>(std::move(r).value()) : std::nullopt);
+      out.causes.emplace_back();
     }
     dir_.LogEvent("stage_started", {{"stage", stage}, {"jobs", specs.size()},
                                     {"already_finished", specs.size() - pending.size()}});
-    if (!specs.empty()) {
-      LogPrintf(stderr, LogLevel::kInfo, "%s: %zu jobs (%zu already finished)", stage.c_str(),
-                specs.size(), specs.size() - pending.size());
-    }
-    std::vector<std::string> pending_causes;
-    if (!pending.empty()) {
-      CHORUS_ASSIGN_OR_RETURN(pending_causes, runner_.Run(pending));
-    }
-    StageResults out;
+    if (specs.empty()) return out;
+    LogPrintf(stderr, LogLevel::kInfo, "%s: %zu jobs (%zu already finished)", stage.c_str(),
+              specs.size(), specs.size() - pending.size());
+    if (pending.empty()) return out;
+    CHORUS_ASSIGN_OR_RETURN(const std::vector<std::string> causes, runner_.Run(pending));
     size_t p = 0;
-    for (const MemberSpec& s : specs) {
-      const bool ran = p < pending.size() && JobName(pending[p]) == JobName(s);
-      const std::string cause = ran ? pending_causes[p++] : "";
-      if (!cause.empty()) {
-        out.results.emplace_back();
-        out.causes.push_back(cause);
+    for (size_t j = 0; j < specs.size(); ++j) {
+      if (out.results[j]) continue;  // on disk before: the pending ones are the rest, in order
+      if (!causes[p].empty()) {
+        out.causes[j] = causes[p++];
         continue;
       }
-      CHORUS_ASSIGN_OR_RETURN(MemberResult r, Load(s));
-      out.results.emplace_back(std::move(r));
-      out.causes.emplace_back();
+      ++p;
+      CHORUS_ASSIGN_OR_RETURN(MemberResult r, Load(specs[j]));
+      out.results[j] = std::move(r);
     }
     return out;
   }

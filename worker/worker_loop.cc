@@ -11,6 +11,7 @@
 #include <thread>
 #include <vector>
 
+#include "common/host_name.h"
 #include "common/log_format.h"
 #include "common/member_training.h"
 #include "common/sha256.h"
@@ -31,12 +32,6 @@ void SleepUnlessStopped(double seconds, const std::atomic<bool>& stop) {
   while (!stop.load() && SteadyClock::now() < until) {
     std::this_thread::sleep_for(std::chrono::milliseconds(50));
   }
-}
-
-std::string HostName() {
-  char buf[256] = {};
-  gethostname(buf, sizeof buf - 1);
-  return buf;
 }
 
 // Renews one lease every period seconds with the latest progress, until Stop(). Sets `cancel` if

@@ -87,7 +87,7 @@ TEST(FoldsTest, RowsOfAFoldPartitionTheSplitAndScatterPutsThemBack) {
     for (int64_t r : rows.train) EXPECT_NE(fold_of[r], k);
     held_out.push_back(SelectRows(d.train, rows.held_out).x);
   }
-  const Matrix back = ScatterByFold(fold_of, {&held_out[0], &held_out[1], &held_out[2]});
+  const Matrix back = ScatterByFold<Matrix>(fold_of, {&held_out[0], &held_out[1], &held_out[2]});
   EXPECT_TRUE(back == d.train.x);
 }
 
