@@ -5,7 +5,7 @@
 // member runs through TrainMember, the same code a worker runs for a job (shuffle, gather,
 // forward, head, backward, schedule, SGD step), single-threaded. Two configurations:
 //   threads=1: one member on a tbb::task_arena of 1;
-//   threads=2: two members at once on a tbb::task_arena of 2 (as worker/local_trainer.cc does).
+//   threads=2: two members at once on a tbb::task_arena of 2 (as execution/job_slots.cc does).
 // The first epoch is a warm-up (page faults, caches, frequency ramp). The epoch-end callbacks
 // give the timed window: from the end of each member's first epoch to the end of its last, and
 // the reported rate is all timed samples divided by the union of the members' windows.
@@ -24,9 +24,9 @@
 #include <string>
 #include <vector>
 
-#include "common/dataset.h"
 #include "common/gemm.h"
 #include "common/member_training.h"
+#include "common/prepared_data.h"
 #include "common/rng.h"
 
 namespace chorus {

@@ -8,8 +8,8 @@
 #include <string>
 #include <vector>
 
-#include "common/dataset.h"
-#include "common/evaluation.h"
+#include "common/ensemble_evaluation.h"
+#include "common/prepared_data.h"
 
 namespace chorus {
 

@@ -7,8 +7,8 @@
 
 #include <vector>
 
-#include "common/dataset.h"
 #include "common/member_training.h"
+#include "common/prepared_data.h"
 
 namespace chorus {
 

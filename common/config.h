@@ -149,7 +149,7 @@ struct ComputeConfig {
   int threads = 0;              // members trained at once (oneTBB arena size); 0 = all cores
 };
 
-// Where member jobs run (DESIGN.md, "cluster"). With local_workers > 0 chorus run starts that many
+// Where member jobs run (docs/design.md). With local_workers > 0 chorus run starts that many
 // chorus-worker processes on loopback; with listen set, remote workers may join too; with
 // local_workers 0 and no listen, members train in this process (compute.threads at once).
 struct ClusterConfig {

@@ -8,6 +8,8 @@
 #include <set>
 #include <utility>
 
+#include "common/message_text.h"
+
 namespace chorus {
 namespace {
 
@@ -181,6 +183,17 @@ StatusOr<CsvTable> ReadCsv(const std::string& path) {
   } catch (const std::exception& e) {
     return Status::Internal(path + ": " + e.what());
   }
+}
+
+std::string HeaderPlace(const CsvTable& table) {
+  return table.path + ":" + std::to_string(table.header_line);
+}
+
+StatusOr<int64_t> FindColumn(const CsvTable& table, const std::string& name, const char* role) {
+  const auto it = std::find(table.header.begin(), table.header.end(), name);
+  if (it != table.header.end()) return static_cast<int64_t>(it - table.header.begin());
+  return Status::InvalidInput(HeaderPlace(table) + ": expected a " + role + " column " +
+                              Quoted(name) + " in the header, found " + JoinNames(table.header));
 }
 
 }  // namespace chorus

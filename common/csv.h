@@ -30,4 +30,11 @@ StatusOr<CsvTable> ParseCsv(std::string_view text, const std::string& path);
 // Reads and parses a file; a missing/unreadable file is kInvalidInput naming the path.
 StatusOr<CsvTable> ReadCsv(const std::string& path);
 
+// "PATH:LINE" of the table's header row, for messages.
+std::string HeaderPlace(const CsvTable& table);
+
+// The 0-based position of column `name` in the header. Errors (kInvalidInput, "PATH:LINE: expected
+// a ROLE column "NAME" in the header, found ..."): no such column; `role` says what it is for.
+StatusOr<int64_t> FindColumn(const CsvTable& table, const std::string& name, const char* role);
+
 }  // namespace chorus

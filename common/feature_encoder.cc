@@ -5,12 +5,9 @@
 #include <cmath>
 #include <string_view>
 
+#include "common/message_text.h"
+
 namespace chorus {
-namespace {
-
-std::string Quoted(const std::string& s) { return "\"" + s + "\""; }
-
-}  // namespace
 
 int64_t FeaturePlan::Features() const {
   int64_t n = 0;

@@ -13,9 +13,10 @@
 
 #include "common/basin_fit.h"
 #include "common/config.h"
-#include "common/dataset.h"
 #include "common/matrix.h"
 #include "common/mlp.h"
+#include "common/parallel_for.h"
+#include "common/prepared_data.h"
 #include "common/status.h"
 #include "common/training_step.h"
 

@@ -39,7 +39,7 @@ Predictor::Predictor(const Bundle& bundle)
   target_units_.target_scale = bundle.preprocessing.target_scale;
 }
 
-StatusOr<Predictor> Predictor::Create(const Bundle& bundle, const ParallelFor& parallel_for,
+StatusOr<Predictor> Predictor::Create(const Bundle& bundle, const ParallelFor* parallel,
                                       int64_t max_sample_bytes) {
   CHORUS_RETURN_IF_ERROR(CheckBundle(bundle, "bundle"));
   const int64_t parameters = BundleParameterCount(bundle.widths);
@@ -69,11 +69,7 @@ StatusOr<Predictor> Predictor::Create(const Bundle& bundle, const ParallelFor& p
     DrawBasinSample(m->basin, m->sample_seeds[static_cast<size_t>(s)], bundle.basin_scale,
                     w.data());
   };
-  if (parallel_for) {
-    parallel_for(components, draw);
-  } else {
-    for (int64_t c = 0; c < components; ++c) draw(c);
-  }
+  ParallelForEach(parallel, components, draw);
   return p;
 }
 

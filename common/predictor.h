@@ -12,15 +12,15 @@
 #pragma once
 
 #include <cstdint>
-#include <functional>
 #include <string>
 #include <vector>
 
 #include "common/bundle.h"
-#include "common/dataset.h"
 #include "common/matrix.h"
 #include "common/metrics.h"
 #include "common/mlp.h"
+#include "common/parallel_for.h"
+#include "common/prepared_data.h"
 #include "common/status.h"
 
 namespace chorus {
@@ -58,15 +58,11 @@ class Predictor {
   static constexpr int64_t kBatchRows = 1024;
   static constexpr int64_t kDefaultMaxSampleBytes = int64_t{8} << 30;
 
-  // Calls body(i) once for every i in [0, count), in any order, on any threads, and returns when
-  // all calls have. The caller's way to spread work; empty means one after the other here.
-  using ParallelFor = std::function<void(int64_t count, const std::function<void(int64_t)>& body)>;
-
-  // Checks the bundle (CheckBundle) and draws every sample (through parallel_for; each sample is
-  // a pure function of its fit and seed, so the thread count changes nothing). Memory:
+  // Checks the bundle (CheckBundle) and draws every sample (through `parallel`, null: on this
+  // thread; each sample is a pure function of its fit and seed, so threads change nothing). Memory:
   // components x parameters x 4 bytes, refused with kInvalidInput (before allocating) above
   // max_sample_bytes.
-  static StatusOr<Predictor> Create(const Bundle& bundle, const ParallelFor& parallel_for = {},
+  static StatusOr<Predictor> Create(const Bundle& bundle, const ParallelFor* parallel = nullptr,
                                     int64_t max_sample_bytes = kDefaultMaxSampleBytes);
 
   Task task() const { return target_units_.task; }

@@ -41,7 +41,7 @@ class Status {
   // "invalid input: ..." etc., for logs and terminal output.
   std::string ToString() const;
 
-  // The process exit code DESIGN.md assigns: 0 ok, 2 bad input, 3 refused, 1 anything else.
+  // The process exit code (docs/design.md): 0 ok, 2 bad input, 3 refused, 1 anything else.
   int ExitCode() const;
 
  private:

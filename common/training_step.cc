@@ -31,10 +31,10 @@ TrainingStep::TrainingStep(const Mlp& net, Task task, const OptimizerConfig& opt
   }
 }
 
-void TrainingStep::RunPart(void* context, int s) {
+void TrainingStep::RunPart(void* context, int64_t s) {
   const PartJob& job = *static_cast<const PartJob*>(context);
   TrainingStep& self = *job.step;
-  Part& part = self.parts_[s];
+  Part& part = self.parts_[static_cast<size_t>(s)];
   const int64_t parts = static_cast<int64_t>(self.parts_.size());
   const int64_t begin = s * job.rows / parts, rows = (s + 1) * job.rows / parts - begin;
   if (rows == 0) {  // a minibatch smaller than the number of parts
@@ -65,7 +65,7 @@ double TrainingStep::Run(const ConstMatrixRef& x, const int32_t* labels, const f
   if (parallel != nullptr && parts > 1) {
     parallel->Run(parts, &TrainingStep::RunPart, &job);
   } else {
-    for (int s = 0; s < parts; ++s) RunPart(&job, s);
+    for (int64_t s = 0; s < parts; ++s) RunPart(&job, s);
   }
   double loss = 0.0;
   for (const Part& part : parts_) loss += part.loss;  // in part order

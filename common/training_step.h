@@ -17,16 +17,9 @@
 #include "common/config.h"
 #include "common/matrix.h"
 #include "common/mlp.h"
+#include "common/parallel_for.h"
 
 namespace chorus {
-
-// Runs body(context, i) for i in [0, count), in any order and possibly in parallel; returns when
-// all calls have returned. common/ owns no threads: the worker supplies one over its thread pool.
-class ParallelFor {
- public:
-  virtual ~ParallelFor() = default;
-  virtual void Run(int count, void (*body)(void* context, int i), void* context) const = 0;
-};
 
 class TrainingStep {
  public:
@@ -62,7 +55,7 @@ class TrainingStep {
     double loss = 0.0;         // the part's share of the minibatch's mean loss
   };
   struct PartJob;  // what one call of the parallel body needs
-  static void RunPart(void* job, int part);
+  static void RunPart(void* job, int64_t part);
 
   const Mlp& net_;
   Task task_;

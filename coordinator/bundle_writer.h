@@ -8,9 +8,9 @@
 
 #include "common/bundle.h"
 #include "common/config.h"
-#include "common/dataset.h"
-#include "common/evaluation.h"
+#include "common/ensemble_evaluation.h"
 #include "common/member_training.h"
+#include "common/prepared_data.h"
 #include "common/status.h"
 
 namespace chorus {

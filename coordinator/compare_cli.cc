@@ -5,7 +5,7 @@
 
 #include "coordinator/command.h"
 #include "coordinator/run_comparison.h"
-#include "coordinator/run_report.h"
+#include "report/report_model.h"
 
 namespace chorus {
 namespace {

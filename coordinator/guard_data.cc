@@ -5,11 +5,13 @@
 
 #include <algorithm>
 #include <memory>
+#include <utility>
 
 #include "common/dataset.h"
 #include "common/metrics.h"
 #include "common/prediction_input.h"
 #include "common/predictor.h"
+#include "execution/tbb_parallel_for.h"
 
 namespace chorus {
 namespace {
@@ -142,10 +144,10 @@ StatusOr<GateMetrics> ScoreOnGuard(const Bundle& bundle, const GuardData& guard,
                                 ", the guard data " + TaskName(guard.task));
   }
   tbb::task_arena arena(threads > 0 ? threads : tbb::task_arena::automatic);
-  const Predictor::ParallelFor parallel_for = [&arena](int64_t count, const auto& body) {
-    arena.execute([&] { tbb::parallel_for(int64_t{0}, count, body); });
-  };
-  CHORUS_ASSIGN_OR_RETURN(const Predictor predictor, Predictor::Create(bundle, parallel_for));
+  const TbbParallelFor parallel;  // samples drawn on the arena's threads
+  StatusOr<Predictor> created = Status::Internal("not created");
+  arena.execute([&] { created = Predictor::Create(bundle, &parallel); });
+  CHORUS_ASSIGN_OR_RETURN(const Predictor predictor, std::move(created));
   Collected c;
   CHORUS_RETURN_IF_ERROR(CollectPredictions(predictor, bundle, guard, arena, &c));
   GateMetrics m;

@@ -7,6 +7,7 @@
 #include <cstdio>
 #include <memory>
 #include <thread>
+#include <utility>
 #include <vector>
 
 #include "common/atomic_file.h"
@@ -14,6 +15,7 @@
 #include "common/prediction_input.h"
 #include "common/predictor.h"
 #include "coordinator/prediction_csv.h"
+#include "execution/tbb_parallel_for.h"
 #include "proto/bundle_codec.h"
 
 namespace chorus {
@@ -30,10 +32,10 @@ struct Model {
 
 StatusOr<Model> LoadModel(const std::string& path, tbb::task_arena& arena) {
   CHORUS_ASSIGN_OR_RETURN(const BundleFile file, ReadBundleFile(path));
-  const Predictor::ParallelFor parallel_for = [&arena](int64_t count, const auto& body) {
-    arena.execute([&] { tbb::parallel_for(int64_t{0}, count, body); });
-  };
-  CHORUS_ASSIGN_OR_RETURN(Predictor predictor, Predictor::Create(file.bundle, parallel_for));
+  const TbbParallelFor parallel;  // samples drawn on the arena's threads
+  StatusOr<Predictor> created = Status::Internal("not created");
+  arena.execute([&] { created = Predictor::Create(file.bundle, &parallel); });
+  CHORUS_ASSIGN_OR_RETURN(Predictor predictor, std::move(created));
   return Model{std::move(predictor), file.bundle.preprocessing, file.bundle.class_names};
 }
 

@@ -13,9 +13,9 @@
 #include "common/file_util.h"
 #include "common/log_format.h"
 #include "coordinator/config_loader.h"
-#include "coordinator/html_text.h"
+#include "report/html_text.h"
 #include "coordinator/registry.h"
-#include "coordinator/run_report.h"
+#include "report/report_model.h"
 #include "proto/bundle_codec.h"
 
 namespace chorus {

@@ -1,4 +1,4 @@
-// A registry: a directory of promoted bundles with a pointer to the current one (DESIGN.md).
+// A registry: a directory of promoted bundles with a pointer to the current one (docs/design.md).
 //
 //   DIR/.lock                      flock(2)ed by the one process changing the registry
 //   DIR/current -> versions/ID     symlink; replaced atomically (new link, then rename(2))

@@ -1,11 +1,12 @@
 // `chorus report RUN_DIR`: rewrites a run's report.html from its report.json (coordinator/
-// run_report.h); nothing is recomputed from the run's jobs.
+// report/report_model.h); nothing is recomputed from the run's jobs.
 #include <cstdio>
 #include <memory>
 #include <string>
 
 #include "coordinator/command.h"
-#include "coordinator/run_report.h"
+#include "coordinator/report_files.h"
+#include "report/report_model.h"
 
 namespace chorus {
 namespace {

@@ -8,19 +8,23 @@
 #include <nlohmann/json.hpp>
 
 #include "common/basin_scale.h"
+#include "common/dataset.h"
+#include "common/evaluation.h"
 #include "common/file_util.h"
 #include "common/host_name.h"
 #include "common/gemm.h"
 #include "common/log_format.h"
 #include "common/rng.h"
+#include "common/true_probabilities.h"
 #include "coordinator/bundle_writer.h"
 #include "common/folds.h"
 #include "coordinator/job_runner.h"
 #include "coordinator/run_stages.h"
 #include "coordinator/training_facts.h"
 #include "coordinator/config_loader.h"
+#include "coordinator/report_files.h"
 #include "coordinator/run_directory.h"
-#include "coordinator/run_report.h"
+#include "report/report_model.h"
 #include "coordinator/terminal.h"
 
 namespace chorus {

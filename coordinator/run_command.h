@@ -16,7 +16,7 @@ struct RunOptions {
 
 // Where members train: in this process when cluster.local_workers is 0 and cluster.listen is
 // empty, otherwise on chorus-worker processes over gRPC (coordinator/cluster_run.h).
-// Returns the process exit code (DESIGN.md): 0 success, 1 internal failure, 2 bad input,
+// Returns the process exit code (docs/design.md): 0 success, 1 internal failure, 2 bad input,
 // 3 too few members finished. Progress goes to stderr, the summary table to stdout, errors to
 // stderr. On failure after the run directory exists, manifest.json says "failed" and why and no
 // report.json is written.

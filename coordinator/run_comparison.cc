@@ -5,7 +5,7 @@
 #include <sstream>
 #include <utility>
 
-#include "coordinator/html_text.h"
+#include "report/html_text.h"
 
 namespace chorus {
 namespace {

@@ -38,7 +38,7 @@ struct RunComparison {
   bool same_config() const;  // config hashes are equal
 };
 
-// Requires both reports to have passed ValidateReport (coordinator/run_report.h). Metrics are
+// Requires both reports to have passed ValidateReport (report/report_model.h). Metrics are
 // those of either report's ensemble.test, in the order accuracy, nll, brier, ece, rmse,
 // coverage_90.
 RunComparison CompareReports(const nlohmann::json& a, const nlohmann::json& b,

@@ -1,5 +1,5 @@
 // A run directory: where one execution of a config leaves everything it produced
-// (DESIGN.md, "Run directory"). Thread safety: LogEvent may be called from several threads;
+// (docs/design.md, "Vocabulary"). Thread safety: LogEvent may be called from several threads;
 // everything else from one.
 #pragma once
 

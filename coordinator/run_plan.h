@@ -21,8 +21,8 @@
 #include <vector>
 
 #include "common/config.h"
-#include "common/dataset.h"
 #include "common/member_training.h"
+#include "common/prepared_data.h"
 #include "common/status.h"
 
 namespace chorus {

@@ -9,8 +9,8 @@
 #include <vector>
 
 #include "common/config.h"
-#include "common/dataset.h"
 #include "common/member_training.h"
+#include "common/prepared_data.h"
 #include "coordinator/job_runner.h"
 #include "coordinator/run_directory.h"
 #include "coordinator/run_plan.h"

@@ -7,6 +7,7 @@
 
 #include "common/assembly.h"
 #include "common/log_format.h"
+#include "report/report_model.h"
 
 namespace chorus {
 
@@ -66,28 +67,6 @@ void Row(std::ostringstream& s, const std::string& label, Task task, const Score
 }
 
 }  // namespace
-
-std::string TemperatureAtRangeEndWarning() {
-  return "warning: the tuned temperature sits at the end of its range (0.05 to 20): the "
-         "validation rows did not pin it down (for example, no confident mistake among them), so "
-         "do not trust the calibration; use more validation rows or cross-fitting "
-         "(data.validation.folds).";
-}
-
-std::string BaselineVerdict(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline) {
-  if (!baseline.skipped.empty()) return "linear baseline not fitted: " + baseline.skipped;
-  std::ostringstream s;
-  s << std::fixed << std::setprecision(4);
-  if (baseline.validation_nll < ev.validation_nll_calibrated) {
-    s << "The linear baseline beats the ensemble on validation (nll " << baseline.validation_nll
-      << " vs " << ev.validation_nll_calibrated << "): on this data a linear model may serve as well "
-      << "or better, at a fraction of the cost.";
-  } else {
-    s << "The ensemble beats the linear baseline on validation (nll " << ev.validation_nll_calibrated
-      << " vs " << baseline.validation_nll << ").";
-  }
-  return s.str();
-}
 
 std::string SummaryTable(const EnsembleEvaluation& ev, const BaselineEvaluation* baseline) {
   std::ostringstream s;

@@ -8,7 +8,7 @@
 #include <string>
 
 #include "common/baseline_evaluation.h"
-#include "common/evaluation.h"
+#include "common/ensemble_evaluation.h"
 #include "common/member_training.h"
 
 namespace chorus {
@@ -31,15 +31,8 @@ class ProgressPrinter {
 };
 
 // The closing table: mean member, best member, ensemble before and after temperature and, when
-// given and fitted, the linear baseline, on test; then the verdict of BaselineVerdict.
+// given and fitted, the linear baseline, on test; then the verdict of BaselineVerdict
+// (report/report_model.h).
 std::string SummaryTable(const EnsembleEvaluation& ev, const BaselineEvaluation* baseline = nullptr);
-
-// The warning the closing table and report.json carry when the tuned temperature (or scale)
-// ended at an end of its search range (common/assembly.h AtTuningRangeEnd).
-std::string TemperatureAtRangeEndWarning();
-
-// One sentence: whether the linear baseline or the ensemble has the lower validation NLL (each at
-// its own tuned temperature), or why no baseline was fitted.
-std::string BaselineVerdict(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline);
 
 }  // namespace chorus

@@ -1,4 +1,4 @@
-// The report.json sections on how the members were trained (beside run_report.h's metrics):
+// The report.json sections on how the members were trained (beside report/report_model.h's metrics):
 // validation scheme, early stopping and each member's kept epoch and validation curve, the
 // search grid with its scores and chosen point, the settings used and the basin scale.
 // Thread safety: free functions.
@@ -7,7 +7,7 @@
 #include <nlohmann/json.hpp>
 
 #include "common/config.h"
-#include "common/dataset.h"
+#include "common/prepared_data.h"
 #include "coordinator/run_stages.h"
 
 namespace chorus {

@@ -7,7 +7,7 @@
 #include <cstdint>
 #include <string>
 
-#include "common/dataset.h"
+#include "common/prepared_data.h"
 #include "common/status.h"
 
 namespace google::protobuf::io {

@@ -8,7 +8,7 @@
 #include <mutex>
 #include <string>
 
-#include "common/dataset.h"
+#include "common/prepared_data.h"
 #include "worker/coordinator_client.h"
 
 namespace chorus {

@@ -1,13 +1,14 @@
 #include "worker/worker_loop.h"
 
-#include <tbb/task_arena.h>
 #include <unistd.h>
 
 #include <algorithm>
 #include <chrono>
 #include <condition_variable>
 #include <cstdio>
+#include <memory>
 #include <mutex>
+#include <optional>
 #include <thread>
 #include <vector>
 
@@ -15,10 +16,10 @@
 #include "common/log_format.h"
 #include "common/member_training.h"
 #include "common/sha256.h"
+#include "execution/job_slots.h"
 #include "proto/result_codec.h"
 #include "proto/spec_codec.h"
 #include "worker/data_cache.h"
-#include "worker/tbb_parallel_for.h"
 
 namespace chorus {
 namespace {
@@ -91,10 +92,6 @@ struct Shared {
   DataCache* cache;
   std::string worker_id;
   double lease_seconds;
-  // Training runs in one arena of `slots` threads: a member's minibatch parts (train.parts) can
-  // use the threads of idle slots, and never more threads than slots.
-  tbb::task_arena* arena;
-  const ParallelFor* parallel;
 };
 
 // Sends a result without a second copy of it in memory: one encoding pass for its size and
@@ -116,83 +113,106 @@ Status Upload(const Shared& s, const wire::LeaseReply& lease, const std::vector<
                                 sha.FinishHex(), write, &reply);
 }
 
-// Trains one leased job and reports its outcome.
-void RunJob(const Shared& s, const wire::LeaseReply& lease) {
-  std::atomic<bool> cancel{false};
-  StatusOr<MemberResult> result = Status::Internal("not run");
-  std::string data_hash = lease.data_hash();
-  StatusOr<std::shared_ptr<const PreparedData>> data = s.cache->Get(data_hash);
-  StatusOr<MemberSpec> spec = SpecFromWire(lease.spec());
-  if (!data.ok() || !spec.ok()) {
-    result = !data.ok() ? data.status() : spec.status();
-  } else {
-    wire::HeartbeatRequest base;
-    base.set_worker_id(s.worker_id);
-    base.set_job_id(lease.job_id());
-    base.set_lease_id(lease.lease_id());
-    Heartbeat heartbeat(s.client, base, std::max(0.2, s.lease_seconds / 3), &cancel);
-    const auto start = SteadyClock::now();
-    const double rows = static_cast<double>(data.value()->train.rows());
-    auto progress = [&](const EpochProgress& p) {
-      const double secs = duration<double>(SteadyClock::now() - start).count();
-      heartbeat.Update(p, rows * p.epoch / std::max(secs, 1e-9));
-      if (s.stop.load()) cancel.store(true);
-    };
-    s.arena->execute(
-        [&] { result = TrainMember(spec.value(), *data.value(), progress, &cancel, s.parallel); });
-    heartbeat.Stop();
-  }
-  if (result.ok()) {
-    const Status st = Upload(s, lease, NetworkFor(spec.value().model, *data.value()).widths(),
-                             result.value());
-    if (!st.ok()) {
-      LogLine(stderr, LogLevel::kError, "chorus-worker: upload of job " + lease.job_id() + " failed: " +
-              st.ToString(), {{"job", lease.job_id()}, {"cause", st.ToString()}});
-    }
-    return;
-  }
-  if (result.status().code() == Status::Code::kCancelled) {
-    wire::ReturnLeaseRequest r;
-    r.set_worker_id(s.worker_id);
-    r.set_job_id(lease.job_id());
-    r.set_lease_id(lease.lease_id());
-    s.client->ReturnLease(r);
-    return;
-  }
-  wire::FailureRequest f;
-  f.set_worker_id(s.worker_id);
-  f.set_job_id(lease.job_id());
-  f.set_lease_id(lease.lease_id());
-  f.set_cause(result.status().ToString());
-  f.set_deterministic(result.status().code() == Status::Code::kDiverged);
-  s.client->ReportFailure(f);
-}
+// A leased job: its data from the cache (memory, disk, then FetchData), a heartbeat renewing the
+// lease with the latest progress while it trains, and its outcome sent back: the result uploaded,
+// the lease returned (cancelled) or the failure reported.
+class LeasedJob final : public TakenJob {
+ public:
+  LeasedJob(const Shared& s, wire::LeaseReply lease) : s_(s), lease_(std::move(lease)) {}
 
-// One slot: lease, run, repeat. Returns when stopped or (exit_when_done) when the run is over.
-Status SlotLoop(const Shared& s) {
-  double backoff = 0.25;
-  while (!s.stop.load()) {
-    wire::LeaseRequest request;
-    request.set_worker_id(s.worker_id);
-    wire::LeaseReply lease;
-    const Status st = s.client->Lease(request, &lease);
-    if (st.code() == Status::Code::kInvalidInput) return st;
-    if (!st.ok()) {
-      SleepUnlessStopped(backoff, s.stop);
-      backoff = std::min(backoff * 2, s.options.max_backoff_seconds);
-      continue;
-    }
-    backoff = 0.25;
-    if (lease.kind() == wire::LeaseReply::JOB) {
-      RunJob(s, lease);
-    } else if (lease.kind() == wire::LeaseReply::DONE && s.options.exit_when_done) {
-      return Status::Ok();
-    } else {
-      SleepUnlessStopped(std::max(0.05, lease.retry_after_seconds()), s.stop);
-    }
+  Status Prepare(const MemberSpec** spec, const PreparedData** data) override {
+    StatusOr<std::shared_ptr<const PreparedData>> cached = s_.cache->Get(lease_.data_hash());
+    CHORUS_RETURN_IF_ERROR(cached.status());
+    data_ = std::move(cached).value();
+    StatusOr<MemberSpec> parsed = SpecFromWire(lease_.spec());
+    CHORUS_RETURN_IF_ERROR(parsed.status());
+    spec_ = std::move(parsed).value();
+    wire::HeartbeatRequest base;
+    base.set_worker_id(s_.worker_id);
+    base.set_job_id(lease_.job_id());
+    base.set_lease_id(lease_.lease_id());
+    heartbeat_.emplace(s_.client, base, std::max(0.2, s_.lease_seconds / 3), &cancel);
+    start_ = SteadyClock::now();
+    *spec = &spec_.value();
+    *data = data_.get();
+    return Status::Ok();
   }
-  return Status::Ok();
-}
+
+  void OnProgress(const EpochProgress& p) override {
+    const double secs = duration<double>(SteadyClock::now() - start_).count();
+    const double rows = static_cast<double>(data_->train.rows());
+    heartbeat_->Update(p, rows * p.epoch / std::max(secs, 1e-9));
+    if (s_.stop.load()) cancel.store(true);
+  }
+
+  void Finish(const StatusOr<MemberResult>& outcome) override {
+    if (heartbeat_) heartbeat_->Stop();
+    if (outcome.ok()) {
+      const Status st = Upload(s_, lease_, NetworkFor(spec_->model, *data_).widths(), outcome.value());
+      if (!st.ok()) {
+        LogLine(stderr, LogLevel::kError, "chorus-worker: upload of job " + lease_.job_id() +
+                " failed: " + st.ToString(), {{"job", lease_.job_id()}, {"cause", st.ToString()}});
+      }
+      return;
+    }
+    if (outcome.status().code() == Status::Code::kCancelled) {
+      wire::ReturnLeaseRequest r;
+      r.set_worker_id(s_.worker_id);
+      r.set_job_id(lease_.job_id());
+      r.set_lease_id(lease_.lease_id());
+      s_.client->ReturnLease(r);
+      return;
+    }
+    wire::FailureRequest f;
+    f.set_worker_id(s_.worker_id);
+    f.set_job_id(lease_.job_id());
+    f.set_lease_id(lease_.lease_id());
+    f.set_cause(outcome.status().ToString());
+    f.set_deterministic(outcome.status().code() == Status::Code::kDiverged);
+    s_.client->ReportFailure(f);
+  }
+
+ private:
+  const Shared& s_;
+  const wire::LeaseReply lease_;
+  std::shared_ptr<const PreparedData> data_;
+  std::optional<MemberSpec> spec_;
+  std::optional<Heartbeat> heartbeat_;
+  SteadyClock::time_point start_;
+};
+
+// Jobs leased from the coordinator, with backoff while it is away. A slot ends when stopped or
+// (exit_when_done) when the run is over; a refused token ends it with kInvalidInput.
+class LeaseSource final : public JobSource {
+ public:
+  explicit LeaseSource(const Shared& s) : s_(s) {}
+
+  StatusOr<std::unique_ptr<TakenJob>> Take() override {
+    double backoff = 0.25;
+    while (!s_.stop.load()) {
+      wire::LeaseRequest request;
+      request.set_worker_id(s_.worker_id);
+      wire::LeaseReply lease;
+      const Status st = s_.client->Lease(request, &lease);
+      if (st.code() == Status::Code::kInvalidInput) return st;
+      if (!st.ok()) {
+        SleepUnlessStopped(backoff, s_.stop);
+        backoff = std::min(backoff * 2, s_.options.max_backoff_seconds);
+        continue;
+      }
+      backoff = 0.25;
+      if (lease.kind() == wire::LeaseReply::JOB) {
+        return std::unique_ptr<TakenJob>(std::make_unique<LeasedJob>(s_, std::move(lease)));
+      }
+      if (lease.kind() == wire::LeaseReply::DONE && s_.options.exit_when_done) break;
+      SleepUnlessStopped(std::max(0.05, lease.retry_after_seconds()), s_.stop);
+    }
+    return std::unique_ptr<TakenJob>();
+  }
+
+ private:
+  const Shared& s_;
+};
 
 // Registers, retrying with backoff while the coordinator is unreachable.
 Status RegisterWithBackoff(const WorkerOptions& o, const std::atomic<bool>& stop,
@@ -223,18 +243,9 @@ Status RunWorker(const WorkerOptions& options, const std::atomic<bool>& stop) {
   if (registered.code() == Status::Code::kCancelled) return Status::Ok();
   CHORUS_RETURN_IF_ERROR(registered);
   DataCache cache(client.get(), options.cache_dir);
-  tbb::task_arena arena(options.slots);
-  const TbbParallelFor parallel;
-  const Shared shared{options, stop,           client.get(), &cache, reg.worker_id(),
-                      reg.lease_seconds(), &arena, &parallel};
-  std::vector<Status> outcomes(static_cast<size_t>(options.slots));
-  std::vector<std::thread> slots;
-  for (int i = 0; i < options.slots; ++i) {
-    slots.emplace_back([&, i] { outcomes[i] = SlotLoop(shared); });
-  }
-  for (std::thread& t : slots) t.join();
-  for (const Status& st : outcomes) CHORUS_RETURN_IF_ERROR(st);
-  return Status::Ok();
+  const Shared shared{options, stop, client.get(), &cache, reg.worker_id(), reg.lease_seconds()};
+  LeaseSource source(shared);
+  return RunJobSlots(source, options.slots);
 }
 
 }  // namespace chorus

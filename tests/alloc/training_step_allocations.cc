@@ -14,7 +14,7 @@
 #include "common/rng.h"
 #include "common/training_step.h"
 #include "tests/alloc/counting_allocator.h"
-#include "worker/tbb_parallel_for.h"
+#include "execution/tbb_parallel_for.h"
 
 namespace chorus {
 namespace {

@@ -7,7 +7,7 @@
 
 #include <nlohmann/json.hpp>
 
-#include "coordinator/report_html.h"
+#include "report/report_html.h"
 #include "tests/testing/demo_runs.h"
 #include "tests/testing/process.h"
 #include "tests/testing/reference.h"

@@ -10,6 +10,7 @@
 #include <set>
 
 #include "common/sha256.h"
+#include "common/true_probabilities.h"
 #include "tests/testing/reference.h"
 
 namespace chorus {

@@ -12,7 +12,7 @@
 #include "common/mlp.h"
 #include "common/rng.h"
 #include "common/training_step.h"
-#include "worker/tbb_parallel_for.h"
+#include "execution/tbb_parallel_for.h"
 
 namespace chorus {
 namespace {

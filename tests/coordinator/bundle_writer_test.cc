@@ -7,6 +7,8 @@
 
 #include <filesystem>
 
+#include "common/dataset.h"
+#include "common/evaluation.h"
 #include "common/predictor.h"
 #include "common/rng.h"
 #include "proto/bundle_codec.h"

@@ -171,7 +171,7 @@ TEST(BundleCodecTest, AbsurdDimensionsAreRefusedBeforeAllocating) {
 
 TEST(BundleCodecTest, PredictorRefusesSamplesBeyondItsMemoryBound) {
   const Bundle b = SyntheticBundle({});
-  const StatusOr<Predictor> p = Predictor::Create(b, {}, /*max_sample_bytes=*/100);
+  const StatusOr<Predictor> p = Predictor::Create(b, nullptr, /*max_sample_bytes=*/100);
   EXPECT_EQ(p.status().code(), Status::Code::kInvalidInput);
   EXPECT_NE(p.status().message().find("bytes allowed"), std::string::npos);
 }

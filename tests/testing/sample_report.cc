@@ -3,9 +3,10 @@
 #include <string>
 #include <vector>
 
-#include "common/evaluation.h"
+#include "common/ensemble_evaluation.h"
+#include "common/prepared_data.h"
 #include "common/reliability.h"
-#include "coordinator/run_report.h"
+#include "report/report_model.h"
 
 namespace chorus::testing {
 namespace {

@@ -1,4 +1,4 @@
-// A report.json built in process from a hand-made EnsembleEvaluation (coordinator/run_report.h),
+// A report.json built in process from a hand-made EnsembleEvaluation (report/report_model.h),
 // for tests of what reads reports (the HTML page, its charts, compare) without training anything.
 // Thread safety: reentrant.
 #pragma once

@@ -1,0 +1,55 @@
+// Running member jobs on this machine: `slots` threads each take a job from a JobSource, train it
+// (common/member_training.h TrainMember) and hand the outcome back to the source. chorus-worker
+// (jobs leased from a coordinator over gRPC, worker/worker_loop.h) and chorus run's in-process
+// route (a stage's jobs in a queue, coordinator/in_process_runner.cc) both run jobs this way and
+// differ only in their JobSource, that is, in transport.
+// Training happens on one oneTBB arena of `slots` threads: a member's minibatch parts
+// (train.parts) may use the threads of idle slots, never more threads than slots. A job's result
+// does not depend on the slot count (common/training_step.h).
+// Thread safety: RunJobSlots calls a source's Take from every slot thread at once, and a taken
+// job's methods from the slot (and training) thread that took it.
+#pragma once
+
+#include <atomic>
+#include <memory>
+
+#include "common/member_training.h"
+#include "common/prepared_data.h"
+#include "common/status.h"
+
+namespace chorus {
+
+// One job a slot has taken: what to train, and where its progress and outcome go.
+class TakenJob {
+ public:
+  virtual ~TakenJob() = default;
+
+  // What to train; both stay valid until Finish returns. An error (data that cannot be had, a
+  // malformed spec) becomes the job's outcome without training.
+  virtual Status Prepare(const MemberSpec** spec, const PreparedData** data) = 0;
+
+  // After each epoch, on the thread training the job.
+  virtual void OnProgress(const EpochProgress& progress) = 0;
+
+  // The outcome, on the slot's thread: the result, kCancelled (see `cancel`), kDiverged or
+  // another error.
+  virtual void Finish(const StatusOr<MemberResult>& outcome) = 0;
+
+  // Set from any thread to stop the training at the end of its current epoch (kCancelled).
+  std::atomic<bool> cancel{false};
+};
+
+class JobSource {
+ public:
+  virtual ~JobSource() = default;
+
+  // The next job for a slot, blocking until there is one; null when the slot should end (no more
+  // jobs, or stopped). An error ends the slot.
+  virtual StatusOr<std::unique_ptr<TakenJob>> Take() = 0;
+};
+
+// Runs `slots` (>= 1) slot threads until each has ended; returns the first error a slot ended
+// with, else Ok.
+Status RunJobSlots(JobSource& source, int slots);
+
+}  // namespace chorus

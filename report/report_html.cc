@@ -1,0 +1,264 @@
+#include "report/report_html.h"
+
+#include <algorithm>
+#include <sstream>
+#include <utility>
+#include <vector>
+
+#include "report/html_text.h"
+#include "report/report_charts.h"
+#include "report/report_facts.h"
+#include "report/report_training_html.h"
+#include "report/report_model.h"
+
+namespace chorus {
+namespace {
+
+using nlohmann::json;
+
+constexpr const char* kStyle =
+    "body{font:15px/1.5 system-ui,-apple-system,'Segoe UI',Roboto,'DejaVu Sans',Arial,sans-serif;"
+    "color:#1f2328;background:#f5f6f8;margin:0}"
+    "main{max-width:1000px;margin:0 auto;padding:24px 24px 40px}"
+    "h1{font-size:26px;margin:0 0 4px}h2{font-size:19px;margin:0 0 10px}"
+    ".badge{display:inline-block;font-size:12px;font-weight:600;padding:2px 9px;border-radius:10px;"
+    "background:#e3edf7;color:#0b4a78;vertical-align:middle;margin-left:8px}"
+    ".sub,.note,figcaption,footer,.kpi .label,.kpi .detail{color:#4d5358}"
+    "section{background:#fff;border:1px solid #d5dae0;border-radius:8px;padding:16px 20px;"
+    "margin:16px 0}"
+    "section.caution{border-left:6px solid #a64d00;background:#fff7ef}"
+    ".kpis{display:grid;grid-template-columns:repeat(auto-fit,minmax(170px,1fr));gap:12px;"
+    "margin:16px 0}"
+    ".kpi{background:#fff;border:1px solid #d5dae0;border-radius:8px;padding:10px 14px}"
+    ".kpi .label{font-size:13px}.kpi .detail{font-size:12.5px}"
+    ".kpi .value{font-size:25px;font-weight:650;font-variant-numeric:tabular-nums}"
+    "table{border-collapse:collapse;width:100%;font-variant-numeric:tabular-nums;font-size:14px}"
+    "th,td{padding:5px 10px;border-bottom:1px solid #e3e6ea;text-align:right}"
+    "th:first-child,td:first-child{text-align:left}thead th{background:#f0f2f4;font-weight:600}"
+    "tr.highlight>*{background:#e8f1fa;font-weight:600}"
+    ".facts th{width:28%;font-weight:600}.facts td{text-align:left}"
+    ".charts{display:grid;grid-template-columns:repeat(auto-fill,minmax(430px,1fr));gap:18px}"
+    "figure{margin:0}figure svg{width:100%;height:auto;display:block}"
+    "figcaption{font-size:13px;margin-top:2px}.note{font-style:italic}"
+    ".hash{font-family:ui-monospace,'DejaVu Sans Mono',Menlo,Consolas,monospace;font-size:13px;"
+    "word-break:break-all}"
+    ".wbar{display:inline-block;height:9px;background:#0072B2;border-radius:2px;margin-right:8px}"
+    ".nowrap{white-space:nowrap}footer{font-size:13px;text-align:center}"
+    ".verdict{padding:8px 12px;border-left:5px solid #0072B2;background:#eef5fb}"
+    ".verdict.warn{border-left-color:#a64d00;background:#fff7ef;font-weight:600}"
+    "h3{font-size:16px;margin:14px 0 6px}";
+
+bool IsClassification(const json& r) { return r["task"] == "classification"; }
+
+std::vector<std::pair<const char*, const char*>> MetricColumns(const json& r) {
+  if (IsClassification(r)) {
+    return {{"accuracy", "accuracy"}, {"nll", "NLL"}, {"brier", "Brier"}, {"ece", "ECE"}};
+  }
+  return {{"rmse", "RMSE"}, {"nll", "NLL"}, {"coverage_90", "90% coverage"}};
+}
+
+std::string Num(const json& v, int decimals = 4) {
+  return v.is_number() ? FormatFixed(v.get<double>(), decimals) : EscapeHtml(v.dump());
+}
+
+// The calibration setting at 1 and as tuned: the temperature T (classification) or the scale on
+// every standard deviation (regression).
+std::string AtOne(const json& r) { return IsClassification(r) ? "T = 1" : "scale 1"; }
+
+std::string Tuned(const json& r) {
+  return (IsClassification(r) ? "tuned T = " : "tuned scale = ") + Num(r["temperature"], 3);
+}
+
+std::string Head(const json& r) {
+  return "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+         "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; "
+         "style-src 'unsafe-inline'\"><meta name=\"viewport\" content=\"width=device-width, "
+         "initial-scale=1\"><title>chorus report: " +
+         EscapeHtml(r["name"]) + "</title><style>" + kStyle + "</style></head><body><main>";
+}
+
+std::string Header(const json& r) {
+  return "<header><h1>" + EscapeHtml(r["name"]) + "<span class=\"badge\">" + EscapeHtml(r["task"]) +
+         "</span></h1><p class=\"sub\">chorus ensemble report &middot; data hash <span "
+         "class=\"hash\">" +
+         EscapeHtml(r["data_hash"].get<std::string>().substr(0, 12)) + "</span> &middot; " +
+         std::to_string(r["members"].size()) + " members, " + EscapeHtml(r["weighting"]) +
+         " weights</p></header>";
+}
+
+std::string Caution(const json& r) {
+  return "<section class=\"caution\" role=\"note\"><h2>Caution</h2><p>" + EscapeHtml(kCautionText) +
+         "</p><p>The figures below were measured on the data with hash <span class=\"hash\">" +
+         EscapeHtml(r["data_hash"]) + "</span> and hold for data like it.</p></section>";
+}
+
+std::string Kpi(const std::string& label, const std::string& value, const std::string& detail) {
+  return "<div class=\"kpi\"><div class=\"label\">" + label + "</div><div class=\"value\">" +
+         value + "</div><div class=\"detail\">" + detail + "</div></div>";
+}
+
+std::string KeyFigures(const json& r) {
+  const json& ens = r["ensemble"]["test"];
+  const json& mean = r["mean_member"]["test"];
+  std::string html = "<div class=\"kpis\">";
+  for (const auto& [key, label] : MetricColumns(r)) {
+    if (std::string(key) == "brier") continue;
+    html += Kpi(std::string("test ") + label, Num(ens[key]),
+                "mean member " + Num(mean[key]) + "<br>at " + AtOne(r) + ": " +
+                    Num(r["ensemble"]["test_uncalibrated"][key]));
+  }
+  const int finished = static_cast<int>(r["members"].size());
+  html += Kpi(IsClassification(r) ? "temperature" : "standard-deviation scale",
+              Num(r["temperature"], 3), "tuned on validation only");
+  html += Kpi("members finished", std::to_string(finished) + " of " + Num(r["members_planned"], 0),
+              std::to_string(r["failed_members"].size()) + " failed");
+  return html + "</div>";
+}
+
+// Rows of (label, metrics object) as a table with the task's metric columns; row `highlight` is
+// emphasised.
+std::string MetricsTable(const json& r,
+                         const std::vector<std::pair<std::string, const json*>>& rows,
+                         size_t highlight) {
+  std::string html = "<table><thead><tr><th>test set</th>";
+  for (const auto& [key, label] : MetricColumns(r)) html += std::string("<th>") + label + "</th>";
+  html += "</tr></thead><tbody>";
+  for (size_t i = 0; i < rows.size(); ++i) {
+    html += (i == highlight ? "<tr class=\"highlight\"><td>" : "<tr><td>") +
+            EscapeHtml(rows[i].first) + "</td>";
+    for (const auto& [key, label] : MetricColumns(r)) {
+      html += "<td>" + Num((*rows[i].second)[key]) + "</td>";
+    }
+    html += "</tr>";
+  }
+  return html + "</tbody></table>";
+}
+
+std::string TestSection(const json& r) {
+  const json& ens = r["ensemble"];
+  std::vector<std::pair<std::string, const json*>> rows = {
+      {"mean member (of " + std::to_string(r["members"].size()) + ")", &r["mean_member"]["test"]},
+      {"best member (" + r["best_member"].value("index", json()).dump() + ", by validation NLL)",
+       &r["best_member"]["test"]}};
+  if (ens.contains("test_without_basin")) {
+    rows.push_back({"trained points only (no basin samples), tuned", &ens["test_without_basin"]});
+  }
+  rows.push_back({"ensemble, " + AtOne(r), &ens["test_uncalibrated"]});
+  rows.push_back({"ensemble, " + Tuned(r), &ens["test"]});
+  const size_t ensemble_row = rows.size() - 1;
+  if (r.contains("baseline") && r["baseline"].contains("test")) {
+    rows.push_back({"linear baseline, " + std::string(IsClassification(r) ? "T = " : "scale ") +
+                        FormatFixed(r["baseline"]["temperature"], 3), &r["baseline"]["test"]});
+  }
+  std::string html = "<section><h2>Test set</h2>" + MetricsTable(r, rows, ensemble_row) +
+                     BaselineVerdictHtml(r);
+  if (r.contains("temperature_warning")) {
+    html += "<p class=\"verdict warn\">" + EscapeHtml(r["temperature_warning"].get<std::string>()) + "</p>";
+  }
+  if (r.contains("bayes_optimal_test_nll")) {
+    html += "<p>Bayes-optimal test NLL (the true probabilities of this invented data are known): " +
+            Num(r["bayes_optimal_test_nll"]) + "</p>";
+  }
+  return html + "<p class=\"note\">NLL in nats per input; rates are fractions. The " +
+         std::string(IsClassification(r) ? "temperature" : "scale") +
+         " was tuned on validation data only.</p></section>";
+}
+
+std::string WeightCell(double weight, double max_weight) {
+  const double px = max_weight > 0 ? 70 * weight / max_weight : 0;
+  return "<td class=\"nowrap\"><span class=\"wbar\" style=\"width:" + FormatFixed(px, 1) +
+         "px\"></span>" + FormatFixed(weight, 4) + "</td>";
+}
+
+std::string MembersSection(const json& r) {
+  const json& weights = r["weights"];
+  double max_weight = 0;
+  for (const json& w : weights) max_weight = std::max(max_weight, w.get<double>());
+  std::string html =
+      "<section><h2>Members</h2><table><thead><tr><th>member</th><th>seed</th>"
+      "<th>samples</th><th>weight</th><th>validation NLL</th>";
+  for (const auto& [key, label] : MetricColumns(r)) {
+    html += std::string("<th>test ") + label + "</th>";
+  }
+  html += "</tr></thead><tbody>";
+  for (size_t m = 0; m < r["members"].size(); ++m) {
+    const json& member = r["members"][m];
+    const bool best = member.value("index", -1) == r["best_member"].value("index", -2);
+    html += std::string(best ? "<tr class=\"highlight\">" : "<tr>") + "<td>" +
+            member.value("index", json()).dump() + (best ? " (best)" : "") + "</td><td>" +
+            EscapeHtml(member.value("seed", "")) + "</td><td>" +
+            member.value("samples", json()).dump() + "</td>" + WeightCell(weights[m], max_weight) +
+            "<td>" + Num(member.value("validation_nll", json())) + "</td>";
+    for (const auto& [key, label] : MetricColumns(r)) {
+      html += "<td>" + Num(member["test"][key]) + "</td>";
+    }
+    html += "</tr>";
+  }
+  return html + "</tbody></table><p class=\"note\">Weights (" + EscapeHtml(r["weighting"]) +
+         ") were learned on validation and sum to 1. Each member's test scores are its own, at " +
+         AtOne(r) + ", averaged over its samples.</p></section>";
+}
+
+std::string UncertaintyTable(const json& r) {
+  const json& u = r["uncertainty"];
+  std::string html =
+      "<table><thead><tr><th>test inputs</th><th>total</th><th>aleatoric</th>"
+      "<th>epistemic</th></tr></thead><tbody><tr><td>mean per input, in " +
+      EscapeHtml(u.value("unit", "")) + "</td>";
+  for (const char* part : {"total", "aleatoric", "epistemic"}) {
+    html += "<td>" + Num(u["test_mean"][part]) + "</td>";
+  }
+  html += "</tr>";
+  if (u.contains("auroc_misclassified")) {
+    html += "<tr><td>AUROC for flagging wrong predictions (0.5 = chance)</td>";
+    for (const char* part : {"total", "aleatoric", "epistemic"}) {
+      html += "<td>" + Num(u["auroc_misclassified"][part], 3) + "</td>";
+    }
+    html += "</tr>";
+  }
+  return html + "</tbody></table>";
+}
+
+std::string UncertaintySection(const json& r) {
+  return "<section><h2>Uncertainty</h2><p>" +
+         std::string(
+             IsClassification(r)
+                 ? "Total predictive entropy splits into the expected entropy of the samples "
+                   "(aleatoric: the data leaves it open) and the mutual information (epistemic: "
+                   "the "
+                   "members disagree)."
+                 : "Total predictive variance splits into the mean of the members' variances "
+                   "(aleatoric) and the variance of their means (epistemic).") +
+         "</p>" + UncertaintyTable(r) + UncertaintyFigures(r) + "</section>";
+}
+
+std::string CalibrationSection(const json& r) {
+  return "<section><h2>Calibration</h2><p>" +
+         std::string(IsClassification(r)
+                         ? "Whether the ensemble is right as often as it says, before (T = 1) and "
+                           "after the "
+                           "temperature tuned on validation data."
+                         : "Whether the predictive intervals hold as many test targets as they "
+                           "claim, before "
+                           "and after the standard-deviation scale tuned on validation data.") +
+         "</p>" + CalibrationFigures(r) + "</section>";
+}
+
+std::string SizeSection(const json& r) {
+  return "<section><h2>Ensemble size</h2><p>What another member (or another sample per member) "
+         "buys: test quality of ensembles of every size, each tuned on validation.</p>" +
+         SizeCurveFigures(r) + "</section>";
+}
+
+}  // namespace
+
+std::string ReportHtml(const json& report) {
+  return Head(report) + Header(report) + Caution(report) + KeyFigures(report) +
+         TestSection(report) + SizeSection(report) + CalibrationSection(report) +
+         UncertaintySection(report) + MembersSection(report) + TrainingSectionHtml(report) +
+         FactsSection(report) +
+         "<footer>Written by chorus from report.json alone: one self-contained file, no scripts, "
+         "nothing loaded from the network.</footer></main></body></html>\n";
+}
+
+}  // namespace chorus
