@@ -8,35 +8,12 @@
 
 #include "common/heads.h"
 #include "common/rng.h"
+#include "tests/testing/small_data.h"
 
 namespace chorus {
 namespace {
 
-// Three-class data from a fixed linear rule plus noise: rows x 4 features; labels in [0, 3).
-Split NoisyLinearSplit(Philox& rng, int64_t rows) {
-  Split s;
-  s.x.resize(rows, 4);
-  for (int64_t i = 0; i < rows; ++i) {
-    for (int j = 0; j < 4; ++j) s.x(i, j) = static_cast<float>(rng.NextNormal());
-    const double score = s.x(i, 0) - 0.5 * s.x(i, 1) + 0.5 * rng.NextNormal();
-    s.labels.push_back(score < -0.5 ? 0 : score < 0.5 ? 1 : 2);
-    s.origin.push_back("row " + std::to_string(i));
-  }
-  return s;
-}
-
-PreparedData SmallData(uint64_t seed) {
-  Philox rng(seed);
-  PreparedData d;
-  d.task = Task::kClassification;
-  d.class_names = {"a", "b", "c"};
-  d.feature_names = {"x0", "x1", "x2", "x3"};
-  d.train = NoisyLinearSplit(rng, 150);
-  d.validation = NoisyLinearSplit(rng, 40);
-  d.test = NoisyLinearSplit(rng, 30);
-  d.hash = std::string(64, 'f');
-  return d;
-}
+using testing::SmallClassificationData;
 
 TEST(FoldsTest, ResolvedFoldsFollowTheConfigAndTheDataSize) {
   DataConfig c;  // folds: auto, small below 20000 rows
@@ -52,7 +29,7 @@ TEST(FoldsTest, ResolvedFoldsFollowTheConfigAndTheDataSize) {
 }
 
 TEST(FoldsTest, AssignmentIsSeededCoversEveryRowAndIsStratifiedByLabel) {
-  const PreparedData d = SmallData(3);
+  const PreparedData d = SmallClassificationData(3);
   const std::vector<int> a = AssignFolds(d.train, 5, 11), again = AssignFolds(d.train, 5, 11);
   EXPECT_EQ(a, again);
   EXPECT_NE(a, AssignFolds(d.train, 5, 12));
@@ -76,7 +53,7 @@ TEST(FoldsTest, AssignmentIsSeededCoversEveryRowAndIsStratifiedByLabel) {
 }
 
 TEST(FoldsTest, RowsOfAFoldPartitionTheSplitAndScatterPutsThemBack) {
-  const PreparedData d = SmallData(4);
+  const PreparedData d = SmallClassificationData(4);
   const std::vector<int> fold_of = AssignFolds(d.train, 3, 5);
   std::vector<Matrix> held_out;
   for (int k = 0; k < 3; ++k) {
@@ -110,7 +87,7 @@ MemberSpec Spec(int fold) {
 // A fold job never sees its held-out rows' features: changing them changes its validation
 // outputs only, never its parameters; and its validation outputs are the held-out rows in order.
 TEST(FoldsTest, AFoldJobTrainsOnlyOutsideItsFoldAndPredictsTheFold) {
-  const PreparedData d = SmallData(5);
+  const PreparedData d = SmallClassificationData(5);
   const StatusOr<MemberResult> a = TrainMember(Spec(1), d, nullptr);
   ASSERT_TRUE(a.ok()) << a.status().ToString();
   const FoldRows rows = RowsOfFold(AssignFolds(d.train, 3, 5), 1);
@@ -132,7 +109,7 @@ TEST(FoldsTest, AFoldJobTrainsOnlyOutsideItsFoldAndPredictsTheFold) {
 // stop_epoch (same schedule, same shuffles) has bit-identical parameters, and the kept
 // validation NLL is the lowest of the curve.
 TEST(EarlyStoppingTest, KeptParametersAreThoseOfTheBestEpoch) {
-  const PreparedData d = SmallData(6);
+  const PreparedData d = SmallClassificationData(6);
   MemberSpec spec = Spec(-1);
   spec.train.epochs = 40;
   spec.train.optimizer.lr = 0.3;  // fast enough to overfit 150 rows within 40 epochs
@@ -158,7 +135,7 @@ TEST(EarlyStoppingTest, KeptParametersAreThoseOfTheBestEpoch) {
 }
 
 TEST(EarlyStoppingTest, OffTrainsEveryEpochAndStillRecordsTheCurve) {
-  const PreparedData d = SmallData(7);
+  const PreparedData d = SmallClassificationData(7);
   const StatusOr<MemberResult> r = TrainMember(Spec(-1), d, nullptr);
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r.value().epoch_loss.size(), 6u);

@@ -9,33 +9,10 @@
 #include <vector>
 
 #include "common/rng.h"
+#include "tests/testing/small_data.h"
 
 namespace chorus {
 namespace {
-
-// Two-class data from a linear rule plus noise: rows x 3 features.
-Split NoisySplit(Philox& rng, int64_t rows) {
-  Split s;
-  s.x.resize(rows, 3);
-  for (int64_t i = 0; i < rows; ++i) {
-    for (int j = 0; j < 3; ++j) s.x(i, j) = static_cast<float>(rng.NextNormal());
-    s.labels.push_back(s.x(i, 0) + 0.5 * rng.NextNormal() > 0 ? 1 : 0);
-    s.origin.push_back("row " + std::to_string(i));
-  }
-  return s;
-}
-
-PreparedData SmallData() {
-  Philox rng(17);
-  PreparedData d;
-  d.class_names = {"no", "yes"};
-  d.feature_names = {"x0", "x1", "x2"};
-  d.train = NoisySplit(rng, 120);
-  d.validation = NoisySplit(rng, 30);
-  d.test = NoisySplit(rng, 30);
-  d.hash = std::string(64, 'e');
-  return d;
-}
 
 std::vector<MemberSpec> Specs(int count) {
   std::vector<MemberSpec> specs;
@@ -108,7 +85,7 @@ class RecordingSource final : public JobSource {
 };
 
 TEST(JobSlotsTest, EveryJobRunsOnceAndGivesTheSameResultAsTrainingItAloneWhateverTheSlots) {
-  const PreparedData data = SmallData();
+  const PreparedData data = testing::SmallClassificationData(17);
   const std::vector<MemberSpec> specs = Specs(5);
   std::vector<MemberResult> alone;
   for (const MemberSpec& spec : specs) alone.push_back(TrainMember(spec, data, nullptr).value());
@@ -128,7 +105,7 @@ TEST(JobSlotsTest, EveryJobRunsOnceAndGivesTheSameResultAsTrainingItAloneWhateve
 }
 
 TEST(JobSlotsTest, APreparationErrorIsTheJobsOutcomeAndTheOtherJobsStillRun) {
-  const PreparedData data = SmallData();
+  const PreparedData data = testing::SmallClassificationData(17);
   const std::vector<MemberSpec> specs = Specs(3);
   RecordingSource source(specs, data);
   source.failing_position = 1;
@@ -141,7 +118,7 @@ TEST(JobSlotsTest, APreparationErrorIsTheJobsOutcomeAndTheOtherJobsStillRun) {
 }
 
 TEST(JobSlotsTest, AJobCancelledDuringTrainingEndsCancelledAtTheEndOfThatEpoch) {
-  const PreparedData data = SmallData();
+  const PreparedData data = testing::SmallClassificationData(17);
   const std::vector<MemberSpec> specs = Specs(2);
   RecordingSource source(specs, data);
   source.cancel_at_epoch = 2;
