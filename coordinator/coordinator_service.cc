@@ -10,6 +10,7 @@
 #include "common/log_format.h"
 #include "common/sha256.h"
 #include "proto/result_codec.h"
+#include "proto/result_upload.h"
 #include "proto/spec_codec.h"
 
 namespace chorus {
@@ -167,27 +168,17 @@ grpc::Status CoordinatorService::UploadResult(grpc::ServerContext* ctx,
                                               grpc::ServerReader<wire::ResultChunk>* reader,
                                               wire::UploadReply* reply) {
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  ResultUpload upload(kMaxResultBytes);
   wire::ResultChunk chunk;
-  wire::ResultChunk header;
-  std::string bytes;
   while (reader->Read(&chunk)) {
-    if (bytes.empty() && header.job_id().empty()) {
-      header = chunk;
-      if (header.total_bytes() < 0 || header.total_bytes() > kMaxResultBytes) return Invalid("result too large");
-      bytes.reserve(static_cast<size_t>(header.total_bytes()));
-    }
-    if (static_cast<int64_t>(bytes.size() + chunk.payload().size()) > header.total_bytes()) {
-      return Invalid("more result bytes than announced");
-    }
-    bytes += chunk.payload();
+    if (Status st = upload.Add(chunk); !st.ok()) return Invalid(st.message());
   }
+  const wire::ResultChunk& header = upload.header();
   const int job = JobIndex(header.job_id());
   if (job < 0) return Invalid("unknown job " + header.job_id());
-  if (static_cast<int64_t>(bytes.size()) != header.total_bytes() ||
-      Sha256Hex(bytes.data(), bytes.size()) != header.sha256()) {
-    return Invalid("result transfer incomplete or corrupted");
-  }
-  return Store(job, header.worker_id(), bytes, reply);
+  StatusOr<std::string> bytes = upload.Finish();
+  if (!bytes.ok()) return Invalid(bytes.status().message());
+  return Store(job, header.worker_id(), bytes.value(), reply);
 }
 
 grpc::Status CoordinatorService::Store(int job, const std::string& worker, const std::string& bytes,

@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # One-command set-up for a fresh Debian 12 machine, run as root from anywhere:
 #   scripts/setup.sh demo   install what is missing, build, write the invented demo data, run it
-#   scripts/setup.sh test   the same, then the whole test suite (CTest)
+#   scripts/setup.sh test   the same, then the whole test suite (CTest) and 60 s of fuzzing per
+#                           parser (scripts/fuzz.sh)
 # Idempotent: installed packages are skipped, the build is incremental.
 set -euo pipefail
 mode="${1:-demo}"
@@ -15,9 +16,11 @@ build_packages=(cmake make g++ pkg-config libtbb-dev libeigen3-dev libprotobuf-d
 # Fashion-MNIST), headless Chromium for the report.html check, and for the deploy/ checks a real
 # one-node Slurm cluster (slurm-wlm, munge), systemd-analyze (systemd) and PyYAML. OpenBLAS
 # (libopenblas0-pthread) becomes PyTorch's BLAS in place of the reference BLAS, so that bench/run
-# compares chorus with a peer at full speed.
+# compares chorus with a peer at full speed. clang-14 with its runtime libraries (libFuzzer,
+# sanitizers) builds the fuzz targets.
 test_packages=(python3 python3-numpy python3-scipy python3-sklearn python3-torch dataset-fashion-mnist
-  iproute2 openssl chromium slurm-wlm munge systemd python3-yaml libopenblas0-pthread)
+  iproute2 openssl chromium slurm-wlm munge systemd python3-yaml libopenblas0-pthread clang-14
+  libclang-rt-14-dev)
 wanted=("${build_packages[@]}")
 [ "$mode" = test ] && wanted+=("${test_packages[@]}")
 
@@ -44,4 +47,5 @@ build/chorus run configs/demo.yaml --out runs
 
 if [ "$mode" = test ]; then
   ctest --test-dir build --output-on-failure -j "$jobs" --timeout 900
+  scripts/fuzz.sh --seconds 60 --jobs "$jobs"
 fi
