@@ -53,11 +53,6 @@ StatusOr<std::shared_ptr<grpc::ServerCredentials>> ServerCredentials(const Clust
   return grpc::SslServerCredentials(ssl);
 }
 
-int LocalWorkerCount(const ClusterConfig& c) {
-  if (c.local_workers >= 0) return c.local_workers;
-  return std::max(1u, std::thread::hardware_concurrency());
-}
-
 std::vector<std::string> LocalWorkerArgs(const ClusterConfig& c, const Config& config, int port,
                                          const std::string& token_path) {
   std::vector<std::string> args = {"--coordinator", "127.0.0.1:" + std::to_string(port),
@@ -206,6 +201,12 @@ class WorkerPoolRunner final : public JobRunner {
 };
 
 }  // namespace
+
+int LocalWorkerCount(const ClusterConfig& c) {
+  if (c.local_workers >= 0) return c.local_workers;
+  return std::max(1u, std::thread::hardware_concurrency());
+}
+
 
 std::unique_ptr<JobRunner> MakeWorkerPoolRunner(const RunJobsInputs& inputs, RunDirectory& dir) {
   return std::make_unique<WorkerPoolRunner>(inputs, dir);

@@ -12,4 +12,8 @@ namespace chorus {
 
 std::unique_ptr<JobRunner> MakeWorkerPoolRunner(const RunJobsInputs& inputs, RunDirectory& dir);
 
+// The chorus-worker processes started on this machine: cluster.local_workers, or one per core
+// when it is -1. Each runs one job at a time.
+int LocalWorkerCount(const ClusterConfig& c);
+
 }  // namespace chorus

@@ -119,6 +119,10 @@ class InProcessRunner final : public JobRunner {
 
 bool TrainsInProcess(const Config& c) { return c.cluster.local_workers == 0 && c.cluster.listen.empty(); }
 
+int JobsAtOnceOnThisMachine(const Config& c) {
+  return TrainsInProcess(c) ? SlotCount(c) : LocalWorkerCount(c.cluster);
+}
+
 std::unique_ptr<JobRunner> MakeJobRunner(const RunJobsInputs& inputs, RunDirectory& dir) {
   if (TrainsInProcess(*inputs.config)) return std::make_unique<InProcessRunner>(inputs, dir);
   return MakeWorkerPoolRunner(inputs, dir);

@@ -52,4 +52,8 @@ std::unique_ptr<JobRunner> MakeJobRunner(const RunJobsInputs& inputs, RunDirecto
 // Whether the config trains in this process.
 bool TrainsInProcess(const Config& config);
 
+// How many jobs run at once on this machine: compute.threads (0: one per core) in process, else
+// one per embedded worker (remote workers' jobs not counted).
+int JobsAtOnceOnThisMachine(const Config& config);
+
 }  // namespace chorus

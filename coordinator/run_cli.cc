@@ -27,6 +27,8 @@ void RegisterRunCommand(CLI::App& app, CommandRunner* runner) {
                   "local worker processes (default: cluster.local_workers; 0 with no cluster.listen "
                   "= train in this process)")
       ->check(CLI::Range(0, 4096));
+  cmd->add_flag("--no-memory-check", options->skip_memory_check,
+                "run even when the estimated memory need exceeds this machine's memory");
   auto log_format = std::make_shared<std::string>("text");
   cmd->add_option("--log-format", *log_format,
                   "log lines on stderr: text, or json (one object per line: time, level, msg, "

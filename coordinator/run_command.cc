@@ -13,7 +13,9 @@
 #include "common/file_util.h"
 #include "common/host_name.h"
 #include "common/gemm.h"
+#include "common/host_memory.h"
 #include "common/log_format.h"
+#include "common/memory_estimate.h"
 #include "common/rng.h"
 #include "common/true_probabilities.h"
 #include "coordinator/bundle_writer.h"
@@ -53,6 +55,21 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
   }
   in.config_hash = ConfigHash(in.config);
   return in;
+}
+
+// Refuses, before anything is written, a run whose estimated memory exceeds what this process
+// may use; logs the estimate either way.
+Status CheckMemory(const Inputs& in, bool refuse) {
+  const MemoryEstimate need = EstimateRunMemory(in.config, in.data, JobsAtOnceOnThisMachine(in.config));
+  const MemoryLimit have = UsableMemory();
+  LogLine(stderr, LogLevel::kInfo, "memory: estimated " + need.Breakdown() + "; usable " + ByteText(have.bytes),
+          {{"estimated_bytes", need.Total()}, {"usable_bytes", have.bytes}});
+  if (!refuse || need.Total() <= have.bytes) return Status::Ok();
+  return Status::InvalidInput(
+      "the run needs an estimated " + need.Breakdown() + ", more than the " + ByteText(have.bytes) +
+      " this machine allows (" + have.source + "); train fewer members at once (compute.threads, "
+      "cluster.local_workers), or use smaller model.hidden, ensemble.basin.rank or samples, or more "
+      "remote workers; --no-memory-check runs it anyway");
 }
 
 json Manifest(const Inputs& in, const std::string& status, const std::string& cause, double seconds,
@@ -176,6 +193,10 @@ int RunCommand(const RunOptions& options) {
     return loaded.status().ExitCode();
   }
   const Inputs& in = loaded.value();
+  if (const Status st = CheckMemory(in, !options.skip_memory_check); !st.ok()) {
+    LogPrintf(stderr, LogLevel::kError, "chorus run: %s", st.ToString().c_str());
+    return st.ExitCode();
+  }
   StatusOr<RunDirectory> opened = OpenOrCreate(options, in);
   if (!opened.ok()) {
     LogPrintf(stderr, LogLevel::kError, "chorus run: %s", opened.status().ToString().c_str());

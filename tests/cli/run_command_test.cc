@@ -229,7 +229,12 @@ TEST_F(RunCommandTest, BadInputExitsTwoNamingThePlaceAndLeavesNoRunDirectory) {
              "alarms_test.csv:"},
       BadRun{"MissingTarget", "a,b,c\n1,2,3\n", "", "cause"},
       BadRun{"UnknownConfigKey", "", "trian: {epochs: 1}\n", "bad.yaml:5:1: trian: unknown key"},
-      BadRun{"WrongConfigType", "", "train: {epochs: lots}\n", "bad.yaml:5:17: train.epochs"}};
+      BadRun{"WrongConfigType", "", "train: {epochs: lots}\n", "bad.yaml:5:17: train.epochs"},
+      // About 10 TiB of held outputs (100000 members x 10000 samples x 580 rows x 5 classes x 4
+      // bytes): refused by the estimate before anything is written (common/memory_estimate.h).
+      BadRun{"MemoryBeyondTheMachine", "",
+             "ensemble: {members: 100000, basin: {method: gaussian_diag, samples: 10000}}\n",
+             "this machine allows"}};
   for (const BadRun& c : cases) {
     SCOPED_TRACE(c.name);
     std::string train = "data/alarms_train.csv";
