@@ -52,7 +52,7 @@ Status WriteFileAtomic(const std::string& path, const std::string& contents) {
 }
 
 Status AppendLine(const std::string& path, const std::string& line) {
-  const int fd = ::open(path.c_str(), O_WRONLY | O_CREAT | O_APPEND | O_CLOEXEC, 0644);
+  const int fd = ::open(path.c_str(), O_WRONLY | O_CREAT | O_APPEND | O_CLOEXEC | O_NOFOLLOW, 0644);
   if (fd < 0) return Status::Io(path + ": cannot open for append: " + Errno());
   Status st = WriteAll(fd, line + "\n", path);
   ::close(fd);

@@ -18,7 +18,8 @@ StatusOr<std::string> ReadFileToString(const std::string& path, int64_t max_byte
 // Errors are kIo naming the path.
 Status WriteFileAtomic(const std::string& path, const std::string& contents);
 
-// Appends one line (a '\n' is added) and flushes; for event logs. Errors are kIo.
+// Appends one line (a '\n' is added) and flushes; for event logs. A symbolic link at `path` is
+// not followed: it is an error, so a planted link cannot redirect the log. Errors are kIo.
 Status AppendLine(const std::string& path, const std::string& line);
 
 // mkdir -p. Errors are kIo naming the path.

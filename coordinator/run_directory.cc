@@ -5,6 +5,7 @@
 #include <cerrno>
 #include <cstring>
 #include <ctime>
+#include <filesystem>
 
 #include "common/file_util.h"
 
@@ -18,6 +19,11 @@ std::string FormatUtc(const char* format) {
   char buf[64];
   std::strftime(buf, sizeof buf, format, &tm);
   return buf;
+}
+
+Status NotALink(const std::string& path) {
+  return Status::InvalidInput(path + ": is a symbolic link; a run directory holds only the files "
+                              "and directories chorus made, and chorus makes no links");
 }
 
 }  // namespace
@@ -43,12 +49,20 @@ StatusOr<RunDirectory> RunDirectory::Open(const std::string& path) {
   if (::stat((path + "/config.yaml").c_str(), &st) != 0) {
     return Status::InvalidInput(path + ": not a run directory (no config.yaml)");
   }
+  std::error_code ec;
+  for (auto it = std::filesystem::recursive_directory_iterator(path, ec);
+       !ec && it != std::filesystem::recursive_directory_iterator(); it.increment(ec)) {
+    if (it->is_symlink(ec)) return NotALink(it->path().string());
+  }
+  if (ec) return Status::Io(path + ": cannot list the run directory: " + ec.message());
   CHORUS_RETURN_IF_ERROR(MakeDirectories(path + "/jobs"));
   return RunDirectory(path);
 }
 
 StatusOr<std::string> RunDirectory::JobDir(const std::string& name) const {
   const std::string dir = path_ + "/jobs/" + name;
+  struct stat st {};
+  if (::lstat(dir.c_str(), &st) == 0 && S_ISLNK(st.st_mode)) return NotALink(dir);
   CHORUS_RETURN_IF_ERROR(MakeDirectories(dir));
   return dir;
 }

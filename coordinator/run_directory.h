@@ -17,12 +17,15 @@ class RunDirectory {
  public:
   // Creates OUT_DIR/NAME-YYYYMMDD-HHMMSS (UTC; "-2", "-3"... appended if taken) with jobs/ inside.
   static StatusOr<RunDirectory> Create(const std::string& out_dir, const std::string& name);
-  // An existing run directory (for --resume); kInvalidInput if it has no config.yaml.
+  // An existing run directory (for --resume). kInvalidInput if it has no config.yaml, or if
+  // anything inside it is a symbolic link (a planted link could send results or logs elsewhere;
+  // chorus itself never makes one).
   static StatusOr<RunDirectory> Open(const std::string& path);
 
   const std::string& path() const { return path_; }
   std::string File(const std::string& name) const { return path_ + "/" + name; }
-  // jobs/<name>/ (name: common/member_training.h JobName), created on first use.
+  // jobs/<name>/ (name: common/member_training.h JobName), created on first use; kInvalidInput
+  // if it is a symbolic link.
   StatusOr<std::string> JobDir(const std::string& name) const;
   // jobs/<name>/result.pb, whether or not it exists.
   std::string JobResultPath(const std::string& name) const { return path_ + "/jobs/" + name + "/result.pb"; }
