@@ -1,11 +1,15 @@
 // The chorus command line. Each subcommand lives in its own *_cli.cc file and registers itself
 // here (coordinator/command.h).
+#include <csignal>
 #include <cstdio>
 #include <exception>
 
 #include "coordinator/command.h"
 
 int main(int argc, char** argv) {
+  // Past a file size limit (RLIMIT_FSIZE) a write fails with EFBIG instead of killing the process,
+  // so the atomic writer removes its temporary file and the error names the file.
+  std::signal(SIGXFSZ, SIG_IGN);
   CLI::App app{
       "chorus: train ensembles of neural networks on CPUs and turn them into one calibrated,\n"
       "uncertainty-aware predictor.\n\nExit codes: 0 success, 1 internal failure, 2 bad input or "

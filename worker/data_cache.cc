@@ -65,19 +65,39 @@ StatusOr<std::shared_ptr<const PreparedData>> DataCache::Load(const std::string&
       return std::make_shared<const PreparedData>(std::move(data).value());
     }
   }
+  // The disk copy is only a cache: if it cannot be written (full disk, file size limit), the
+  // worker says so and goes on with the data in memory; the temporary file is removed.
   std::unique_ptr<AtomicFile> file;
+  const auto give_up_caching = [&](const Status& why) {
+    LogLine(stderr, LogLevel::kWarning, "chorus-worker: not caching the data on disk: " + why.ToString(),
+            {{"cause", why.ToString()}});
+    file.reset();
+  };
   if (!path.empty()) {
-    CHORUS_RETURN_IF_ERROR(MakeDirectories(cache_dir_));
-    CHORUS_ASSIGN_OR_RETURN(file, AtomicFile::Create(path));
+    StatusOr<std::unique_ptr<AtomicFile>> created = Status::Internal("not created");
+    const Status made = MakeDirectories(cache_dir_);
+    if (made.ok()) created = AtomicFile::Create(path);
+    if (made.ok() && created.ok()) {
+      file = std::move(created).value();
+    } else {
+      give_up_caching(made.ok() ? created.status() : made);
+    }
   }
   StatusOr<PreparedData> data = Status::Internal("FetchData did not decode");
   const auto decode = [&](google::protobuf::io::ZeroCopyInputStream* bytes) {
     data = DecodePreparedData(bytes, "fetched data", hash);
     return data.status();
   };
-  const auto keep = [&](std::string_view bytes) { return file ? file->Append(bytes) : Status::Ok(); };
+  const auto keep = [&](std::string_view bytes) {
+    if (file) {
+      if (const Status st = file->Append(bytes); !st.ok()) give_up_caching(st);
+    }
+    return Status::Ok();
+  };
   CHORUS_RETURN_IF_ERROR(client_->FetchData(hash, kMaxDataBytes, decode, keep));
-  if (file) CHORUS_RETURN_IF_ERROR(file->Commit());
+  if (file) {
+    if (const Status st = file->Commit(); !st.ok()) give_up_caching(st);
+  }
   LogReady(data.value(), "the coordinator");
   return std::make_shared<const PreparedData>(std::move(data).value());
 }

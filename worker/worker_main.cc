@@ -92,6 +92,7 @@ int main(int argc, char** argv) {
     return 2;
   }
   o.connection.token = token.value().substr(0, token.value().find_first_of("\r\n"));
+  std::signal(SIGXFSZ, SIG_IGN);  // past RLIMIT_FSIZE a cache write fails (EFBIG) instead
   std::signal(SIGTERM, OnSignal);
   std::signal(SIGINT, OnSignal);
   if (exit_with_parent) {

@@ -249,5 +249,58 @@ TEST_F(RunCommandTest, BadInputExitsTwoNamingThePlaceAndLeavesNoRunDirectory) {
   }
 }
 
+// --resume continues only an unfinished run of the config and data it started with: a complete
+// run, changed data, an unreadable manifest and a directory that is not a run are each refused
+// with exit 2, naming the place, before anything is trained or rewritten.
+TEST_F(RunCommandTest, ResumeRefusesACompleteRunChangedDataABadManifestAndANonRunDirectory) {
+  const std::string cfg = WriteConfig("resume-refused", "train: {epochs: 1, batch_size: 64}\n"
+                                                         "ensemble: {members: 2}\n");
+  const auto first = Chorus("run " + cfg + " --out " + dir_ + "/runs");
+  ASSERT_EQ(first.exit_code, 0) << first.output;
+  const std::string run = testing::RunDirUnder(dir_ + "/runs");
+  ASSERT_FALSE(run.empty());
+  const std::string manifest_text = testing::ReadTextFile(run + "/manifest.json");
+  ASSERT_EQ(nlohmann::json::parse(manifest_text)["status"], "complete");
+
+  const auto complete = Chorus("run --resume " + run);
+  EXPECT_EQ(complete.exit_code, 2) << complete.output;
+  EXPECT_NE(complete.output.find(run + ": run already complete"), std::string::npos) << complete.output;
+  EXPECT_EQ(testing::ReadTextFile(run + "/manifest.json"), manifest_text) << "a refused resume rewrites nothing";
+
+  // A copy marked unfinished (as a killed coordinator leaves it), resumed after one byte of the
+  // training data changed: a digit of the first data row, so the file still loads.
+  const std::string copy = dir_ + "/copy";
+  fs::copy(run, copy, fs::copy_options::recursive);
+  auto manifest = nlohmann::json::parse(manifest_text);
+  manifest["status"] = "running";
+  testing::WriteTextFile(copy + "/manifest.json", manifest.dump());
+  const std::string csv = dir_ + "/data/alarms_train.csv";
+  const std::string original = testing::ReadTextFile(csv);
+  std::string changed = original;
+  const size_t digit = changed.find_first_of("0123456789", changed.find('\n'));
+  ASSERT_NE(digit, std::string::npos);
+  changed[digit] = changed[digit] == '9' ? '8' : static_cast<char>(changed[digit] + 1);
+  testing::WriteTextFile(csv, changed);
+  const auto data_changed = Chorus("run --resume " + copy);
+  testing::WriteTextFile(csv, original);
+  EXPECT_EQ(data_changed.exit_code, 2) << data_changed.output;
+  EXPECT_NE(data_changed.output.find(copy + ": the config or the data changed since the run started"),
+            std::string::npos)
+      << data_changed.output;
+  EXPECT_EQ(nlohmann::json::parse(testing::ReadTextFile(copy + "/manifest.json"))["status"], "running");
+
+  testing::WriteTextFile(copy + "/manifest.json", "{not json");
+  const auto bad_manifest = Chorus("run --resume " + copy);
+  EXPECT_EQ(bad_manifest.exit_code, 2) << bad_manifest.output;
+  EXPECT_NE(bad_manifest.output.find(copy + "/manifest.json: not JSON"), std::string::npos) << bad_manifest.output;
+
+  const std::string empty = dir_ + "/empty";
+  fs::create_directory(empty);
+  const auto not_a_run = Chorus("run --resume " + empty);
+  EXPECT_EQ(not_a_run.exit_code, 2) << not_a_run.output;
+  EXPECT_NE(not_a_run.output.find(empty + "/config.yaml: cannot read file"), std::string::npos) << not_a_run.output;
+  EXPECT_TRUE(fs::is_empty(empty)) << "nothing is created in a directory that is not a run";
+}
+
 }  // namespace
 }  // namespace chorus

@@ -120,6 +120,16 @@ std::vector<BadInput> CsvBadInputs() {
       {"non-numeric value",
        [](const std::string& d) { return WriteCsv(d, "a,b,y\n1,2,p\n3,abc,q\n", kTest); },
        {"train.csv:3:2: expected a number in column \"b\", found \"abc\""}},
+      {"empty numeric cell",
+       [](const std::string& d) { return WriteCsv(d, "a,b,y\n1,2,p\n3,,q\n", kTest); },
+       {"train.csv:3:2: expected a number in column \"b\", found \"\""}},
+      {"non-numeric regression target",
+       [](const std::string& d) {
+         DataConfig c = WriteCsv(d, "a,y\n1,2.5\n2,high\n3,4\n", "a,y\n1,2\n");
+         c.task = Task::kRegression;
+         return c;
+       },
+       {"train.csv:3:2: expected a number in column \"y\", found \"high\""}},
       {"NaN",
        [](const std::string& d) { return WriteCsv(d, kTrain, "a,b,y\n1,nan,p\n"); },
        {"test.csv:2:2: expected a finite number in column \"b\", found \"nan\""}},
@@ -135,6 +145,41 @@ std::vector<BadInput> CsvBadInputs() {
       {"missing feature column in test",
        [](const std::string& d) { return WriteCsv(d, kTrain, "a,y\n1,p\n"); },
        {"test.csv:1: expected a feature column \"b\""}},
+      {"missing categorical column",
+       [](const std::string& d) {
+         DataConfig c = WriteCsv(d, kTrain, kTest);
+         c.categorical = {"site"};
+         return c;
+       },
+       {"train.csv:1: expected a categorical column \"site\" in the header, found a, b, y"}},
+      {"categorical target",
+       [](const std::string& d) {
+         DataConfig c = WriteCsv(d, kTrain, kTest);
+         c.categorical = {"y"};
+         return c;
+       },
+       {"data.categorical: \"y\" is the target column"}},
+      {"no feature columns",
+       [](const std::string& d) { return WriteCsv(d, "y\np\nq\np\nq\n", "y\np\n"); },
+       {"train.csv:1: expected feature columns besides the target \"y\", found none"}},
+      {"one class in train",
+       [](const std::string& d) {
+         return WriteCsv(d, "a,y\n1,p\n2,p\n3,p\n4,p\n5,p\n", "a,y\n1,p\n");
+       },
+       {"train.csv: expected at least 2 classes in the training rows, found 1 (p)"}},
+      // One row: the holdout takes at least one row (fraction 0.2 of 1 rounds up to 1), which
+      // would leave none to train on.
+      {"too few rows for the holdout",
+       [](const std::string& d) { return WriteCsv(d, "a,b,y\n1,2,p\n", kTest); },
+       {"train.csv: expected enough rows to hold out validation fraction 0.2 and keep some, "
+        "found 1 row"}},
+      {"more folds than rows",
+       [](const std::string& d) {
+         DataConfig c = WriteCsv(d, "a,b,y\n1,2,p\n3,4,q\n", kTest);
+         c.folds = 5;
+         return c;
+       },
+       {"train.csv: expected at least 5 rows for data.validation.folds = 5, found 2"}},
       {"test label never seen in train",
        [](const std::string& d) { return WriteCsv(d, kTrain, "a,b,y\n1,2,p\n3,4,r\n"); },
        {"test.csv:3:3: label \"r\" never appears in the training rows"}},
@@ -163,6 +208,18 @@ std::vector<BadInput> IdxBadInputs() {
          return WriteIdx(d, TrainImages(), Idx(0x08, {5}, Bytes({0, 1, 0, 1, 0})));
        },
        {"train-images.idx: holds 6 rows but ", "train-labels.idx holds 5 labels"}},
+      {"IDX labels file that is not 1-D",
+       [](const std::string& d) {
+         return WriteIdx(d, TrainImages(), Idx(0x08, {6, 1}, Bytes({10, 2, 0, 2, 10, 0})));
+       },
+       {"train-labels.idx: expected a 1-dimensional labels file, found 2 dimensions"}},
+      {"IDX test images narrower than train",
+       [](const std::string& d) {
+         const DataConfig c = WriteIdx(d, TrainImages(), TrainLabels());
+         WriteFile(c.test_idx.images, Idx(0x08, {2, 3}, Bytes(std::vector<int>(6, 1))));
+         return c;
+       },
+       {"test-images.idx: expected 4 values per row like the training images, found 3"}},
       {"IDX label that is not an integer",
        [](const std::string& d) {
          return WriteIdx(d, TrainImages(),
@@ -190,6 +247,14 @@ std::vector<BadInput> IdxBadInputs() {
          const std::string gz((std::istreambuf_iterator<char>(in)),
                               std::istreambuf_iterator<char>());
          c.train_idx.images = WriteFile(d + "/train-images.idx.gz", gz.substr(0, gz.size() - 12));
+         return c;
+       },
+       {"train-images.idx.gz: bad gzip data"}},
+      {"gzip magic followed by garbage",
+       [](const std::string& d) {
+         DataConfig c = WriteIdx(d, TrainImages(), TrainLabels());
+         c.train_idx.images = WriteFile(d + "/train-images.idx.gz",
+                                        Bytes({0x1f, 0x8b}) + std::string(40, 'z'));
          return c;
        },
        {"train-images.idx.gz: bad gzip data"}},

@@ -3,6 +3,7 @@
 #include <gtest/gtest.h>
 
 #include <filesystem>
+#include <fstream>
 
 #include "tests/testing/reference.h"
 
@@ -116,8 +117,31 @@ TEST(ConfigLoaderTest, BadConfigsAreRejectedWithTheirPlace) {
                   "cfg.yaml:3:11: train.epochs: expected an epoch count, found \"many\""},
       BadConfig{"OutOfRange", "data: {train: a, test: b, target: y}\ntrain: {batch_size: 0}\n",
                   "cfg.yaml:2:21: train.batch_size: expected a batch size in [1,"},
+      BadConfig{"ZeroMembers", "data: {train: a, test: b, target: y}\nensemble: {members: 0}\n",
+                "cfg.yaml:2:21: ensemble.members: expected a member count in [1, 100000], found 0"},
+      BadConfig{"NegativeEpochs", "data: {train: a, test: b, target: y}\ntrain: {epochs: -3}\n",
+                "cfg.yaml:2:17: train.epochs: expected an epoch count in [1, 1000000], found -3"},
+      // Too large for an int: yaml-cpp cannot decode it, so it is reported as the wrong type
+      // rather than out of range.
+      BadConfig{"OverflowingEpochs", "data: {train: a, test: b, target: y}\ntrain: {epochs: 99999999999}\n",
+                "cfg.yaml:2:17: train.epochs: expected an epoch count, found \"99999999999\""},
+      // NaN fails every comparison, so the range check refuses it like any value outside it.
+      BadConfig{"NanLearningRate", "data: {train: a, test: b, target: y}\ntrain: {optimizer: {lr: .nan}}\n",
+                "cfg.yaml:2:25: train.optimizer.lr: expected a learning rate in [1e-12, 1e+06], found .nan"},
+      BadConfig{"ZeroLearningRate", "data: {train: a, test: b, target: y}\ntrain: {optimizer: {lr: 0}}\n",
+                "cfg.yaml:2:25: train.optimizer.lr: expected a learning rate in [1e-12, 1e+06], found 0"},
+      BadConfig{"NegativeLearningRate", "data: {train: a, test: b, target: y}\ntrain: {optimizer: {lr: -1}}\n",
+                "cfg.yaml:2:25: train.optimizer.lr: expected a learning rate in [1e-12, 1e+06], found -1"},
+      BadConfig{"FractionAboveHalf", "data: {train: a, test: b, target: y, validation: {fraction: 0.7}}\n",
+                "cfg.yaml:1:61: data.validation.fraction: expected a fraction in [1e-09, 0.5], found 0.7"},
       BadConfig{"BadEnum", "data: {train: a, test: b, target: y}\nmodel: {activation: swish}\n",
                   "model.activation: expected one of relu, tanh, gelu, found \"swish\""},
+      BadConfig{"BadFormat", "data: {format: parquet, train: a, test: b, target: y}\n",
+                "cfg.yaml:1:16: data.format: expected one of csv, idx, found \"parquet\""},
+      BadConfig{"BadTask", "data: {train: a, test: b, target: y, task: ranking}\n",
+                "cfg.yaml:1:44: data.task: expected one of classification, regression, found \"ranking\""},
+      BadConfig{"BadOptimizer", "data: {train: a, test: b, target: y}\ntrain: {optimizer: {kind: adam}}\n",
+                "cfg.yaml:2:27: train.optimizer.kind: expected sgd, found \"adam\""},
       BadConfig{"MinAboveMembers", "data: {train: a, test: b, target: y}\nensemble: {members: 2, min_members: 3}\n",
                   "ensemble.min_members"},
       BadConfig{"RankAboveSnapshots",
@@ -126,8 +150,16 @@ TEST(ConfigLoaderTest, BadConfigsAreRejectedWithTheirPlace) {
       BadConfig{"PartsAboveBatch", "data: {train: a, test: b, target: y}\ntrain: {batch_size: 8, parts: 9}\n",
                 "train.parts: expected a part count (at most batch_size) in [1, 8]"},
       BadConfig{"MissingTarget", "data: {train: a, test: b}\n", "data.target: required"},
+      // A missing key has no place of its own: the message points at the section that lacks it.
+      BadConfig{"MissingTrain", "data: {test: b, target: y}\n", "cfg.yaml:1:7: data.train: required"},
       BadConfig{"MissingData", "run: {seed: 1}\n", "data: required"},
       BadConfig{"NotYaml", "data: [unclosed\n", "cfg.yaml:"},
+      BadConfig{"EmptyConfig", "", "cfg.yaml: expected a YAML mapping at the top level"},
+      BadConfig{"TopLevelList", "- data\n- train\n", "cfg.yaml: expected a YAML mapping at the top level"},
+      // Binding beyond loopback without a token would let anyone on the network submit jobs.
+      BadConfig{"ListenBeyondLoopbackWithoutToken",
+                "data: {train: a, test: b, target: y}\ncluster: {listen: \"0.0.0.0:7070\"}\n",
+                "cfg.yaml:2:19: cluster.listen: listening beyond loopback needs cluster.token_file"},
       BadConfig{"BadRunName", "run: {name: ../x}\ndata: {train: a, test: b, target: y}\n",
                   "run.name: expected letters"},
       BadConfig{"OneFold", "data: {train: a, test: b, target: y, validation: {folds: 1}}\n",
@@ -151,6 +183,39 @@ TEST(ConfigLoaderTest, BadConfigsAreRejectedWithTheirPlace) {
     EXPECT_EQ(parsed.status().code(), Status::Code::kInvalidInput);
     EXPECT_NE(parsed.status().message().find(c.expected), std::string::npos) << parsed.status().message();
   }
+}
+
+// LoadConfigFile reads at most 1 MiB: a missing file and a larger one are refused before parsing,
+// naming the path.
+TEST(ConfigLoaderTest, MissingAndOversizedConfigFilesAreRefusedNamingThePath) {
+  const std::string dir = testing::MakeTempDir("config_loader");
+  const std::string missing = dir + "/missing.yaml";
+  StatusOr<Config> c = LoadConfigFile(missing);
+  ASSERT_FALSE(c.ok());
+  EXPECT_EQ(c.status().code(), Status::Code::kInvalidInput);
+  EXPECT_NE(c.status().message().find(missing + ": cannot read file:"), std::string::npos)
+      << c.status().message();
+
+  const std::string big = dir + "/big.yaml";
+  {
+    // A valid config padded with a comment to one byte over the limit.
+    std::ofstream out(big, std::ios::binary);
+    const std::string head = std::string(kMinimal) + "#";
+    out << head << std::string((1 << 20) + 1 - head.size() - 1, 'x') << "\n";
+  }
+  ASSERT_EQ(std::filesystem::file_size(big), (1u << 20) + 1);
+  c = LoadConfigFile(big);
+  ASSERT_FALSE(c.ok());
+  EXPECT_EQ(c.status().code(), Status::Code::kInvalidInput);
+  EXPECT_NE(c.status().message().find(big + ": file is 1048577 bytes, more than the limit of 1048576"),
+            std::string::npos)
+      << c.status().message();
+
+  // The same file one byte shorter is within the limit and loads.
+  std::filesystem::resize_file(big, 1 << 20);
+  c = LoadConfigFile(big);
+  EXPECT_TRUE(c.ok()) << c.status().ToString();
+  std::filesystem::remove_all(dir);
 }
 
 }  // namespace
