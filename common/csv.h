@@ -1,13 +1,15 @@
-// Reading CSV text (RFC 4180: header row, comma separator, double-quoted fields with "" escapes,
-// CRLF or LF line ends, quoted fields may span lines) into rows of strings.
-// Thread safety: free functions, reentrant.
+// Reading a whole CSV file (training, validation and test data; common/csv_reader.h's dialect:
+// RFC 4180, header row, comma separator, double-quoted fields with "" escapes that may span lines,
+// CRLF or LF line ends, blank lines skipped, a UTF-8 byte order mark ignored) into rows of strings,
+// through the same streaming reader `chorus predict` uses, so no record is ever held beyond its
+// bound. Thread safety: free functions, reentrant.
 #pragma once
 
 #include <cstdint>
 #include <string>
-#include <string_view>
 #include <vector>
 
+#include "common/csv_reader.h"
 #include "common/status.h"
 
 namespace chorus {
@@ -21,14 +23,13 @@ struct CsvTable {
   std::vector<int64_t> lines;                 // 1-based line where each row starts
 };
 
-// Parses `text`; `path` is only used in messages ("PATH:LINE:COLUMN: what was expected").
-// Errors (kInvalidInput): empty input, no data rows, duplicate or empty column name, ragged row,
-// unterminated quote, characters after a closing quote. A trailing newline is allowed; blank
-// lines are skipped; a '"' inside an unquoted field is kept as a literal character.
-StatusOr<CsvTable> ParseCsv(std::string_view text, const std::string& path);
-
-// Reads and parses a file; a missing/unreadable file is kInvalidInput naming the path.
-StatusOr<CsvTable> ReadCsv(const std::string& path);
+// Reads the file at `path`. Errors (kInvalidInput, "PATH[:LINE[:COLUMN]]: what was expected"): a
+// missing or unreadable file, an empty file, no data rows, a duplicate or empty column name, a
+// ragged row, an unterminated quote, characters after a closing quote, a record longer than
+// max_record_bytes; the first malformed record ends the reading. A '"' inside an unquoted field
+// is kept as a literal character. kIo for a failed read.
+StatusOr<CsvTable> ReadCsv(const std::string& path,
+                           int64_t max_record_bytes = CsvReader::kDefaultMaxRecordBytes);
 
 // "PATH:LINE" of the table's header row, for messages.
 std::string HeaderPlace(const CsvTable& table);

@@ -11,7 +11,10 @@ constexpr size_t kNamesInMessages = 20;
 
 }  // namespace
 
-std::string Quoted(const std::string& s) { return "\"" + s + "\""; }
+std::string Quoted(const std::string& s) {
+  if (s.size() <= kMaxQuotedBytes) return "\"" + s + "\"";
+  return "\"" + s.substr(0, kMaxQuotedBytes - 20) + "...\" (" + std::to_string(s.size()) + " bytes)";
+}
 
 std::string JoinNames(const std::vector<std::string>& names) {
   std::string text;

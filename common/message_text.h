@@ -2,12 +2,15 @@
 // Thread safety: pure functions, reentrant.
 #pragma once
 
+#include <cstddef>
 #include <string>
 #include <vector>
 
 namespace chorus {
 
-// `s` between double quotes, unescaped: "site".
+// `s` between double quotes, unescaped: "site". Past kMaxQuotedBytes only the start is shown, then
+// how long the whole is: "xxxx..." (1048576 bytes), so that a huge field cannot flood a message.
+constexpr size_t kMaxQuotedBytes = 80;
 std::string Quoted(const std::string& s);
 
 // The first 20 names joined by ", ", then ", ..." when there are more.

@@ -2,6 +2,7 @@
 
 #include <gtest/gtest.h>
 
+#include <filesystem>
 #include <fstream>
 
 #include "tests/testing/reference.h"
@@ -9,14 +10,27 @@
 namespace chorus {
 namespace {
 
+// ReadCsv on `text` written to a file named t.csv in a fresh directory; messages are shown with
+// the directory removed ("t.csv:3:3: ...").
+StatusOr<CsvTable> ReadText(std::string_view text, int64_t max_record_bytes = CsvReader::kDefaultMaxRecordBytes) {
+  const std::string dir = testing::MakeTempDir("csv_test");
+  std::ofstream(dir + "/t.csv", std::ios::binary) << text;
+  StatusOr<CsvTable> table = ReadCsv(dir + "/t.csv", max_record_bytes);
+  std::filesystem::remove_all(dir);
+  if (table.ok()) return table;
+  std::string message = table.status().message();
+  for (size_t at; (at = message.find(dir + "/")) != std::string::npos;) message.erase(at, dir.size() + 1);
+  return Status::InvalidInput(message);
+}
+
 CsvTable ParseOk(std::string_view text) {
-  StatusOr<CsvTable> table = ParseCsv(text, "t.csv");
+  StatusOr<CsvTable> table = ReadText(text);
   EXPECT_TRUE(table.ok()) << table.status().ToString();
   return table.ok() ? table.value() : CsvTable();
 }
 
-std::string ParseError(std::string_view text) {
-  StatusOr<CsvTable> table = ParseCsv(text, "t.csv");
+std::string ParseError(std::string_view text, int64_t max_record_bytes = CsvReader::kDefaultMaxRecordBytes) {
+  StatusOr<CsvTable> table = ReadText(text, max_record_bytes);
   EXPECT_FALSE(table.ok());
   EXPECT_EQ(table.status().code(), Status::Code::kInvalidInput);
   return table.status().message();
@@ -82,6 +96,14 @@ TEST(CsvTest, MalformedInputIsRejectedWithItsPlace) {
             std::string::npos);
   EXPECT_NE(ParseError("a,b\n\"x\"y,2\n").find("t.csv:2:1: expected ',' or the end of the line"),
             std::string::npos);
+}
+
+// A record past the bound (16 MiB by default; a 10 GB line would be one) ends the reading with
+// its line, before it is held in memory.
+TEST(CsvTest, ARecordLongerThanTheBoundIsRefusedWithItsLine) {
+  const std::string long_field(300, 'x');
+  EXPECT_EQ(ParseError("a,b\n1,2\n" + long_field + ",3\n", 100),
+            "t.csv:3: a record longer than 100 bytes (an unterminated quote?)");
 }
 
 TEST(CsvTest, ReadCsvReadsAFileAndNamesAMissingOne) {
