@@ -31,6 +31,11 @@ StatusOr<std::unique_ptr<CsvReader>> CsvReader::Open(const std::string& path,
     const std::string& name = header.fields[i];
     const std::string where = reader->Where(header.line, static_cast<int64_t>(i) + 1);
     if (name.empty()) return Status::InvalidInput(where + ": expected a column name, found \"\"");
+    if (name.find('\r') != std::string::npos) {
+      return Status::InvalidInput(where + ": a carriage return inside the header: expected LF or CRLF "
+                                  "line ends (a file with CR-only line ends, as old Mac programs wrote, "
+                                  "must be converted first)");
+    }
     if (!seen.insert(name).second) {
       return Status::InvalidInput(where + ": duplicate column name \"" + name + "\"");
     }

@@ -1,7 +1,8 @@
 // Reading a CSV file one record at a time with bounded memory: chorus's one CSV parser, for
 // training data (common/csv.h ReadCsv) and predict input alike. The dialect: RFC 4180, header row,
 // comma separator, double-quoted fields with "" escapes that may span lines, CRLF or LF line
-// ends, blank lines skipped, a UTF-8 byte order mark ignored. A malformed record does not end the
+// ends (a lone CR is no line end, and a header holding one is refused as CR-only line ends),
+// blank lines skipped, a UTF-8 byte order mark ignored. A malformed record does not end the
 // reading: it comes back with its problem, and the reader goes on after it, so a caller can skip
 // bad rows (predict) or stop at the first (ReadCsv).
 // Thread safety: a CsvReader is used by one thread at a time.

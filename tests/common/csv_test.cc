@@ -92,6 +92,8 @@ TEST(CsvTest, MalformedInputIsRejectedWithItsPlace) {
   EXPECT_EQ(ParseError("a,b\n"), "t.csv:1: expected data rows after the header, found none");
   EXPECT_EQ(ParseError("a,a\n1,2\n"), "t.csv:1:2: duplicate column name \"a\"");
   EXPECT_EQ(ParseError("a,\n1,2\n"), "t.csv:1:2: expected a column name, found \"\"");
+  EXPECT_NE(ParseError("a,b\r1,2\r3,4\r").find("t.csv:1:2: a carriage return inside the header"),
+            std::string::npos);
   EXPECT_NE(ParseError("a,b\n1,\"open\n2,3\n").find("t.csv:2:2: expected a closing '\"'"),
             std::string::npos);
   EXPECT_NE(ParseError("a,b\n\"x\"y,2\n").find("t.csv:2:1: expected ',' or the end of the line"),
