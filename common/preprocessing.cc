@@ -126,6 +126,25 @@ Status ClassIndices(const RowSet<Scalar>& set, const std::vector<std::string>& c
   return Status::Ok();
 }
 
+// With a holdout from the training file: a class whose every row fell into validation leaves no
+// training row, which ClassIndices would report as a label never seen; say what happened instead.
+template <typename Scalar>
+Status CheckHeldOutClassesKeepTrainingRows(const RowSet<Scalar>& train, const RowSet<Scalar>& validation,
+                                           const std::string& file, double fraction) {
+  std::set<std::string> known;
+  for (int64_t r : train.rows) known.insert(train.raw->labels[r]);
+  for (int64_t r : validation.rows) {
+    const std::string& label = validation.raw->labels[r];
+    if (known.count(label) == 0) {
+      return Status::InvalidInput(
+          file + ": every row of class " + Quoted(label) + " fell into the validation holdout " +
+          "(data.validation.fraction " + NumberText(fraction) + "), so no training row has it; " +
+          "cross-fit instead (data.validation.folds, stratified by class) or add rows of this class");
+    }
+  }
+  return Status::Ok();
+}
+
 // Train mean and population standard deviation of the regression target (scale 1 if ~0).
 template <typename Scalar>
 void FitTarget(const RowSet<Scalar>& train, PreparedData* data) {
@@ -185,6 +204,10 @@ StatusOr<PreparedData> Preprocess(const RawData<Scalar>& raw, const DataConfig& 
   data.feature_names = plan.FeatureNames();
   data.plan = plan;
   if (data.task == Task::kClassification) {
+    if (validation.raw == &raw.train) {
+      CHORUS_RETURN_IF_ERROR(CheckHeldOutClassesKeepTrainingRows(train, validation, raw.train_file,
+                                                                  config.validation_fraction));
+    }
     CHORUS_ASSIGN_OR_RETURN(data.class_names, ClassNames(train, raw.train_file));
   } else {
     FitTarget(train, &data);

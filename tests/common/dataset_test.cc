@@ -331,6 +331,30 @@ TEST_F(DatasetTest, StandardizerUsesTrainStatisticsOnly) {
   EXPECT_NEAR(data.standardizer.mean[0], sum / data.train.rows(), 1e-4);
 }
 
+// A class with one row lands in validation for some seeds; the message then says so, instead of
+// calling the label unseen.
+TEST_F(DatasetTest, AClassWhoseRowsAllFallIntoTheHoldoutIsNamed) {
+  std::string train = "a,b,y\n";
+  for (int i = 0; i < 19; ++i) train += std::to_string(i) + "," + std::to_string(i % 3) + (i % 2 ? ",p\n" : ",q\n");
+  train += "50,1,r\n";
+  const DataConfig config = WriteCsv(dir_, train, kTest);
+  int held_out = 0, trained = 0;
+  for (uint64_t seed = 1; seed <= 30; ++seed) {
+    const StatusOr<PreparedData> data = LoadPreparedData(config, seed);
+    if (data.ok()) {
+      EXPECT_EQ(data.value().class_names, (std::vector<std::string>{"p", "q", "r"}));
+      ++trained;
+    } else {
+      EXPECT_EQ(data.status().message(), config.train + ": every row of class \"r\" fell into the validation "
+                "holdout (data.validation.fraction 0.2), so no training row has it; cross-fit instead "
+                "(data.validation.folds, stratified by class) or add rows of this class");
+      ++held_out;
+    }
+  }
+  EXPECT_GT(held_out, 0);
+  EXPECT_GT(trained, 0);
+}
+
 TEST_F(DatasetTest, ConstantColumnGetsScaleOne) {
   const PreparedData data =
       LoadOk(WriteCsv(dir_, "a,b,y\n1,5,p\n2,5,q\n3,5,p\n4,5,q\n5,5,p\n", kTest));
