@@ -176,6 +176,13 @@ grpc::Status CoordinatorService::UploadResult(grpc::ServerContext* ctx,
   const wire::ResultChunk& header = upload.header();
   const int job = JobIndex(header.job_id());
   if (job < 0) return Invalid("unknown job " + header.job_id());
+  if (!table_->WasLeasedTo(job, header.lease_id(), header.worker_id())) {
+    const std::string why = "job " + header.job_id() + " was never leased to worker " + header.worker_id() +
+                            " under lease " + std::to_string(header.lease_id());
+    dir_->LogEvent("result_refused", {{"job", header.job_id()}, {"worker", header.worker_id()},
+                                      {"peer", ctx->peer()}, {"why", why}});
+    return grpc::Status(grpc::StatusCode::PERMISSION_DENIED, why);
+  }
   StatusOr<std::string> bytes = upload.Finish();
   if (!bytes.ok()) return Invalid(bytes.status().message());
   return Store(job, header.worker_id(), bytes.value(), reply);

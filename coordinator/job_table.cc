@@ -1,5 +1,10 @@
 #include "coordinator/job_table.h"
 
+#include <openssl/rand.h>
+
+#include <algorithm>
+#include <stdexcept>
+
 namespace chorus {
 
 const char* JobStateName(JobState s) {
@@ -24,6 +29,22 @@ int JobTable::AddJobs(int jobs) {
   return first;
 }
 
+uint64_t JobTable::NewLeaseId() {
+  uint64_t id = 0;
+  while (id == 0) {
+    if (RAND_bytes(reinterpret_cast<unsigned char*>(&id), sizeof id) != 1) {
+      throw std::runtime_error("no random bytes for a lease id");
+    }
+  }
+  return id;
+}
+
+bool JobTable::WasLeasedTo(int job, uint64_t lease_id, const std::string& worker) const {
+  std::lock_guard<std::mutex> lock(mu_);
+  const std::vector<std::pair<uint64_t, std::string>>& issued = jobs_[job].issued;
+  return std::find(issued.begin(), issued.end(), std::make_pair(lease_id, worker)) != issued.end();
+}
+
 void JobTable::MarkFinished(int job) {
   std::lock_guard<std::mutex> lock(mu_);
   jobs_[job].state = JobState::kFinished;
@@ -35,8 +56,9 @@ std::optional<JobLease> JobTable::Lease(const std::string& worker, Clock::time_p
     Job& j = jobs_[i];
     if (j.state != JobState::kQueued) continue;
     j.state = JobState::kLeased;
-    j.lease_id = next_lease_id_++;
+    j.lease_id = NewLeaseId();
     j.worker = worker;
+    j.issued.emplace_back(j.lease_id, worker);
     j.deadline = now + lease_;
     ++j.attempts;
     return JobLease{static_cast<int>(i), j.lease_id, j.attempts};

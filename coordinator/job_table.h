@@ -9,6 +9,7 @@
 #include <mutex>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 namespace chorus {
@@ -56,6 +57,10 @@ class JobTable {
   // Extends the lease; false if (job, lease_id) is not the job's current lease.
   bool Renew(int job, uint64_t lease_id, Clock::time_point now);
 
+  // Whether `worker` was ever given `lease_id` for `job` (current or stale): the service accepts a
+  // job's result only from a worker it leased the job to.
+  bool WasLeasedTo(int job, uint64_t lease_id, const std::string& worker) const;
+
   // Records a result for `job` from any lease, current or stale (results are deterministic).
   // Returns false if the job was already finished (the caller compares and drops the duplicate).
   bool Finish(int job);
@@ -83,10 +88,13 @@ class JobTable {
     std::string worker;
     Clock::time_point deadline;
     std::string cause;
+    std::vector<std::pair<uint64_t, std::string>> issued;  // every (lease id, worker) so far
   };
   bool IsCurrent(const Job& j, uint64_t lease_id) const {
     return j.state == JobState::kLeased && j.lease_id == lease_id;
   }
+  // A random, non-zero 64-bit id (OpenSSL's generator), so a worker cannot guess another's lease.
+  static uint64_t NewLeaseId();
   // Ends a job's current lease: failed if out of attempts (or deterministic), else queued.
   bool EndLease(Job& j, const std::string& cause, bool deterministic);
 
@@ -94,7 +102,6 @@ class JobTable {
   const Clock::duration lease_;
   mutable std::mutex mu_;
   std::vector<Job> jobs_;   // guarded by mu_
-  uint64_t next_lease_id_ = 1;  // guarded by mu_
 };
 
 }  // namespace chorus
