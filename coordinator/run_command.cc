@@ -4,6 +4,7 @@
 #include <cstdio>
 #include <filesystem>
 #include <thread>
+#include <utility>
 
 #include <nlohmann/json.hpp>
 
@@ -58,13 +59,11 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
 }
 
 // Refuses, before anything is written, a run whose estimated memory exceeds what this process
-// may use; logs the estimate either way.
-Status CheckMemory(const Inputs& in, bool refuse) {
+// may use; the estimate against the limit otherwise.
+StatusOr<std::pair<MemoryEstimate, MemoryLimit>> CheckMemory(const Inputs& in, bool refuse) {
   const MemoryEstimate need = EstimateRunMemory(in.config, in.data, JobsAtOnceOnThisMachine(in.config));
   const MemoryLimit have = UsableMemory();
-  LogLine(stderr, LogLevel::kInfo, "memory: estimated " + need.Breakdown() + "; usable " + ByteText(have.bytes),
-          {{"estimated_bytes", need.Total()}, {"usable_bytes", have.bytes}});
-  if (!refuse || need.Total() <= have.bytes) return Status::Ok();
+  if (!refuse || need.Total() <= have.bytes) return std::make_pair(need, have);
   return Status::InvalidInput(
       "the run needs an estimated " + need.Breakdown() + ", more than the " + ByteText(have.bytes) +
       " this machine allows (" + have.source + "); train fewer members at once (compute.threads, "
@@ -193,9 +192,10 @@ int RunCommand(const RunOptions& options) {
     return loaded.status().ExitCode();
   }
   const Inputs& in = loaded.value();
-  if (const Status st = CheckMemory(in, !options.skip_memory_check); !st.ok()) {
-    LogPrintf(stderr, LogLevel::kError, "chorus run: %s", st.ToString().c_str());
-    return st.ExitCode();
+  const StatusOr<std::pair<MemoryEstimate, MemoryLimit>> memory = CheckMemory(in, !options.skip_memory_check);
+  if (!memory.ok()) {
+    LogPrintf(stderr, LogLevel::kError, "chorus run: %s", memory.status().ToString().c_str());
+    return memory.status().ExitCode();
   }
   StatusOr<RunDirectory> opened = OpenOrCreate(options, in);
   if (!opened.ok()) {
@@ -207,6 +207,9 @@ int RunCommand(const RunOptions& options) {
   LogPrintf(stderr, LogLevel::kInfo, "data: %lld train, %lld validation, %lld test rows; %lld features",
             static_cast<long long>(in.data.train.rows()), static_cast<long long>(in.data.validation.rows()),
             static_cast<long long>(in.data.test.rows()), static_cast<long long>(in.data.features()));
+  const auto& [need, have] = memory.value();
+  LogLine(stderr, LogLevel::kInfo, "memory: estimated " + need.Breakdown() + "; usable " + ByteText(have.bytes),
+          {{"estimated_bytes", need.Total()}, {"usable_bytes", have.bytes}});
   std::unique_ptr<JobRunner> runner = MakeJobRunner({&in.config, &in.data, in.config_hash}, dir);
   StatusOr<TrainedRun> trained = TrainRun(in.config, in.data, in.config_hash, dir, *runner);
   runner->Close();

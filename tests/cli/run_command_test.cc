@@ -288,6 +288,10 @@ TEST_F(RunCommandTest, ResumeRefusesACompleteRunChangedDataABadManifestAndANonRu
             std::string::npos)
       << data_changed.output;
   EXPECT_EQ(nlohmann::json::parse(testing::ReadTextFile(copy + "/manifest.json"))["status"], "running");
+  // With the data restored the same copy resumes: the refusal was the changed byte, not the copy.
+  const auto restored = Chorus("run --resume " + copy);
+  EXPECT_EQ(restored.exit_code, 0) << restored.output;
+  EXPECT_EQ(nlohmann::json::parse(testing::ReadTextFile(copy + "/manifest.json"))["status"], "complete");
 
   testing::WriteTextFile(copy + "/manifest.json", "{not json");
   const auto bad_manifest = Chorus("run --resume " + copy);
