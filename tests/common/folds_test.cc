@@ -69,14 +69,7 @@ TEST(FoldsTest, RowsOfAFoldPartitionTheSplitAndScatterPutsThemBack) {
 }
 
 MemberSpec Spec(int fold) {
-  MemberSpec spec;
-  spec.index = 2;
-  spec.seed = Derive(9, 2);
-  spec.model.hidden = {8};
-  spec.train.epochs = 6;
-  spec.train.batch_size = 16;
-  spec.train.optimizer.lr = 0.05;
-  spec.train.early_stopping.mode = Switch::kOff;
+  MemberSpec spec = testing::SmallMemberSpec(2, 9, 6, 16);
   spec.role = fold >= 0 ? JobRole::kFold : JobRole::kMember;
   spec.fold = fold;
   spec.folds = fold >= 0 ? 3 : 0;

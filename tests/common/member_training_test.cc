@@ -9,17 +9,7 @@
 namespace chorus {
 namespace {
 
-MemberSpec SpecWithBatch(int batch_size) {
-  MemberSpec spec;
-  spec.index = 0;
-  spec.seed = Derive(13, 0);
-  spec.model.hidden = {8};
-  spec.train.epochs = 3;
-  spec.train.batch_size = batch_size;
-  spec.train.optimizer.lr = 0.05;
-  spec.train.early_stopping.mode = Switch::kOff;
-  return spec;
-}
+MemberSpec SpecWithBatch(int batch_size) { return testing::SmallMemberSpec(0, 13, 3, batch_size); }
 
 // A deliberate choice: a batch larger than the training rows is not an error; it is clamped to
 // the row count (one full-batch step per epoch), so it trains exactly like batch_size = rows.

@@ -27,16 +27,7 @@ namespace fs = std::filesystem;
 constexpr char kToken[] = "service-test-token-7c1e";
 constexpr char kConfigHash[] = "service-test-config";
 
-MemberSpec Spec(int index) {
-  MemberSpec spec;
-  spec.index = index;
-  spec.seed = Derive(11, static_cast<uint64_t>(index));
-  spec.model.hidden = {4};
-  spec.train.epochs = 1;
-  spec.train.batch_size = 32;
-  spec.train.early_stopping.mode = Switch::kOff;
-  return spec;
-}
+MemberSpec Spec(int index) { return testing::SmallMemberSpec(index, 11, 1, 32); }
 
 class CoordinatorServiceTest : public ::testing::Test {
  protected:

@@ -17,14 +17,8 @@ namespace {
 std::vector<MemberSpec> Specs(int count) {
   std::vector<MemberSpec> specs;
   for (int i = 0; i < count; ++i) {
-    MemberSpec spec;
-    spec.index = i;
-    spec.seed = Derive(3, static_cast<uint64_t>(i));
-    spec.model.hidden = {8};
-    spec.train.epochs = 4;
-    spec.train.batch_size = 16;
+    MemberSpec spec = testing::SmallMemberSpec(i, 3, 4, 16);
     spec.train.parts = 2;  // the parts go through the slots' ParallelFor
-    spec.train.early_stopping.mode = Switch::kOff;
     specs.push_back(spec);
   }
   return specs;

@@ -34,4 +34,16 @@ PreparedData SmallClassificationData(uint64_t seed) {
   return d;
 }
 
+MemberSpec SmallMemberSpec(int index, uint64_t run_seed, int epochs, int batch_size) {
+  MemberSpec spec;
+  spec.index = index;
+  spec.seed = Derive(run_seed, static_cast<uint64_t>(index));
+  spec.model.hidden = {8};
+  spec.train.epochs = epochs;
+  spec.train.batch_size = batch_size;
+  spec.train.optimizer.lr = 0.05;
+  spec.train.early_stopping.mode = Switch::kOff;
+  return spec;
+}
+
 }  // namespace chorus::testing

@@ -5,11 +5,16 @@
 
 #include <cstdint>
 
+#include "common/member_training.h"
 #include "common/prepared_data.h"
 
 namespace chorus::testing {
 
 // The same seed gives the same data; the hash is a fixed placeholder.
 PreparedData SmallClassificationData(uint64_t seed);
+
+// A member quick to train on that data: one hidden layer of 8 units, SGD at rate 0.05, no early
+// stopping; seed Derive(run_seed, index).
+MemberSpec SmallMemberSpec(int index, uint64_t run_seed, int epochs, int batch_size);
 
 }  // namespace chorus::testing
