@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <charconv>
 #include <cmath>
+#include <limits>
 #include <string_view>
 
 #include "common/message_text.h"
@@ -52,6 +53,11 @@ Status ParseNumber(const std::string& field, const std::string& place, const std
   if (error == std::errc::result_out_of_range || !std::isfinite(*value)) {
     return Status::InvalidInput(place + ": expected a finite number" + found);
   }
+  // Features and targets end up as floats (their training mean and scale too), so a value past
+  // float range could never be represented.
+  if (std::abs(*value) > std::numeric_limits<float>::max()) {
+    return Status::InvalidInput(place + ": expected a number within float range (about +-3.4e38)" + found);
+  }
   return Status::Ok();
 }
 
@@ -77,10 +83,20 @@ template void EncodeRow<float>(const FeaturePlan&, const float*, const std::vect
 template void EncodeRow<double>(const FeaturePlan&, const double*, const std::vector<std::string>*,
                                 double*);
 
-void StandardizeRow(const Standardizer& s, const double* row, float* out) {
+Status StandardizeRow(const FeaturePlan& plan, const Standardizer& s, const double* row,
+                      const std::string& place, float* out) {
   for (size_t j = 0; j < s.mean.size(); ++j) {
-    out[j] = static_cast<float>((row[j] - s.mean[j]) / s.scale[j]);
+    const double standardised = (row[j] - s.mean[j]) / s.scale[j];
+    out[j] = static_cast<float>(standardised);
+    if (!std::isfinite(out[j])) {
+      return Status::InvalidInput(place + ": feature " + Quoted(plan.FeatureNames()[j]) + " = " +
+                                  NumberText(row[j]) + " standardises to " + NumberText(standardised) +
+                                  " (training mean " + NumberText(s.mean[j]) + ", scale " +
+                                  NumberText(s.scale[j]) + "), beyond float range: expected a value "
+                                  "nearer the training data");
+    }
   }
+  return Status::Ok();
 }
 
 StatusOr<CsvRowEncoder> CsvRowEncoder::ForHeader(const FeaturePlan& plan, const Standardizer& s,
@@ -116,8 +132,7 @@ Status CsvRowEncoder::Encode(const std::vector<std::string>& fields, const std::
   }
   std::vector<double> row(static_cast<size_t>(features_));
   EncodeRow(*plan_, numeric.data(), &categories, row.data());
-  StandardizeRow(*standardizer_, row.data(), out);
-  return Status::Ok();
+  return StandardizeRow(*plan_, *standardizer_, row.data(), line_place, out);
 }
 
 }  // namespace chorus

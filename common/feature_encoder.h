@@ -47,8 +47,9 @@ struct FeaturePlan {
   std::vector<std::string> FeatureNames() const;
 };
 
-// Reads a whole field as a finite double, independent of the locale. Surrounding spaces and tabs
-// and a leading '+' are allowed. Errors (kInvalidInput) start with `place` and name `column`.
+// Reads a whole field as a finite double within float range (|value| <= 3.4e38), independent of
+// the locale. Surrounding spaces and tabs and a leading '+' are allowed. Errors (kInvalidInput)
+// start with `place` and name `column`.
 Status ParseNumber(const std::string& field, const std::string& place, const std::string& column,
                    double* value);
 
@@ -60,8 +61,11 @@ void EncodeRow(const FeaturePlan& plan, const Scalar* numeric,
                const std::vector<std::string>* categories, double* out);
 
 // out_j = float((row_j - mean_j) / scale_j) for j < s.mean.size(), computed in double from the
-// stored float statistics, so that training and prediction give the same floats.
-void StandardizeRow(const Standardizer& s, const double* row, float* out);
+// stored float statistics, so that training and prediction give the same floats. Error
+// (kInvalidInput, "PLACE: ..."): a value so far from the training data that it standardises
+// beyond float range (|out_j| > 3.4e38), naming the feature; `out` is then partly written.
+Status StandardizeRow(const FeaturePlan& plan, const Standardizer& s, const double* row,
+                      const std::string& place, float* out);
 
 // Encodes CSV records whose header may order columns differently from training, hold extra
 // columns (ignored) and hold or lack the target column (ignored either way).

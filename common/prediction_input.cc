@@ -71,14 +71,17 @@ class IdxInput : public InputReader {
       const int64_t index = reader_->next_row();
       CHORUS_ASSIGN_OR_RETURN(const int64_t got, reader_->Read(1, raw.data()));
       if (got == 0) break;
-      const Status problem = CheckFinite(raw, index);
+      Status problem = CheckFinite(raw, index);
+      if (problem.ok()) {
+        EncodeRow(p_.plan, raw.data(), nullptr, encoded.data());
+        problem = StandardizeRow(p_.plan, p_.standardizer, encoded.data(),
+                                 reader_->path() + "[" + std::to_string(index) + "]",
+                                 batch->x.row(static_cast<Eigen::Index>(batch->ids.size())).data());
+      }
       if (!problem.ok()) {
         CHORUS_RETURN_IF_ERROR(on_bad_row(problem));
         continue;
       }
-      EncodeRow(p_.plan, raw.data(), nullptr, encoded.data());
-      StandardizeRow(p_.standardizer, encoded.data(),
-                     batch->x.row(static_cast<Eigen::Index>(batch->ids.size())).data());
       batch->ids.push_back(index);
     }
     return FinishBatch(batch);

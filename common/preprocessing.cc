@@ -73,13 +73,14 @@ Standardizer FitStandardizer(const RowSet<Scalar>& train, const FeaturePlan& pla
 // x' = (x - mean) / scale with the stored float statistics, so that applying the standardizer
 // later to new inputs gives the same numbers.
 template <typename Scalar>
-Matrix Standardize(const RowSet<Scalar>& set, const FeaturePlan& plan, const Standardizer& s) {
+StatusOr<Matrix> Standardize(const RowSet<Scalar>& set, const FeaturePlan& plan, const Standardizer& s) {
   const int64_t features = plan.Features();
   Matrix x(static_cast<Eigen::Index>(set.rows.size()), features);
   std::vector<double> row(static_cast<size_t>(features));
   for (size_t i = 0; i < set.rows.size(); ++i) {
     EncodeRawRow(*set.raw, set.rows[i], plan, row.data());
-    StandardizeRow(s, row.data(), x.row(static_cast<Eigen::Index>(i)).data());
+    CHORUS_RETURN_IF_ERROR(StandardizeRow(plan, s, row.data(), set.raw->origin[set.rows[i]],
+                                          x.row(static_cast<Eigen::Index>(i)).data()));
   }
   return x;
 }
@@ -164,7 +165,7 @@ template <typename Scalar>
 StatusOr<Split> MakeSplit(const RowSet<Scalar>& set, const FeaturePlan& plan,
                           const PreparedData& data) {
   Split split;
-  split.x = Standardize(set, plan, data.standardizer);
+  CHORUS_ASSIGN_OR_RETURN(split.x, Standardize(set, plan, data.standardizer));
   for (int64_t r : set.rows) split.origin.push_back(set.raw->origin[r]);
   if (data.task == Task::kClassification) {
     CHORUS_RETURN_IF_ERROR(ClassIndices(set, data.class_names, &split.labels));

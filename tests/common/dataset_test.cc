@@ -123,6 +123,14 @@ std::vector<BadInput> CsvBadInputs() {
       {"empty numeric cell",
        [](const std::string& d) { return WriteCsv(d, "a,b,y\n1,2,p\n3,,q\n", kTest); },
        {"train.csv:3:2: expected a number in column \"b\", found \"\""}},
+      {"test value beyond float range once standardised",  // column a's training scale is ~5e-7
+       [](const std::string& d) {
+         return WriteCsv(d, "a,b,y\n1,2,p\n1.000001,2,q\n1,2,p\n", "a,b,y\n1e38,2,p\n");
+       },
+       {"test.csv:2: feature \"a\" = 1e+38 standardises to", "beyond float range"}},
+      {"value past float range",
+       [](const std::string& d) { return WriteCsv(d, "a,b,y\n1,2,p\n3,1e39,q\n", kTest); },
+       {"train.csv:3:2: expected a number within float range"}},
       {"non-numeric regression target",
        [](const std::string& d) {
          DataConfig c = WriteCsv(d, "a,y\n1,2.5\n2,high\n3,4\n", "a,y\n1,2\n");

@@ -76,5 +76,23 @@ TEST_F(FeatureEncoderTest, MissingColumnsAndBadFieldsNameTheirPlace) {
             std::string::npos);
 }
 
+// Found by the predict_input fuzz target (tests/fuzz/regressions/predict_input/): a finite double
+// far from the training data standardised to float infinity and reached the networks.
+TEST_F(FeatureEncoderTest, AValueThatStandardisesBeyondFloatRangeIsRefusedNamingTheFeature) {
+  FeaturePlan plan;
+  plan.columns = {{"a", false, 0}, {"b", false, 1}};
+  const Standardizer s{{0.5f, 0.5f}, {2, 1e-6f}};
+  const CsvRowEncoder encoder = CsvRowEncoder::ForHeader(plan, s, {"a", "b"}, "in:1").value();
+  float out[2];
+  EXPECT_TRUE(encoder.Encode({"3e38", "1e30"}, "in:2", out).ok()) << "3e38 / 2 and 1e36 are floats";
+  const Status st = encoder.Encode({"1", "1e33"}, "in:3", out);
+  EXPECT_EQ(st.code(), Status::Code::kInvalidInput);
+  EXPECT_NE(st.message().find("in:3: feature \"b\" = 1e+33 standardises to"), std::string::npos)
+      << st.message() << " (1e33 / 1e-6 = 1e39 overflows float)";
+  EXPECT_NE(st.message().find("beyond float range"), std::string::npos) << st.message();
+  EXPECT_NE(encoder.Encode({"1e300", "1"}, "in:4", out).message().find("in:4:1: expected a number within float range"),
+            std::string::npos) << "past float range before any standardising";
+}
+
 }  // namespace
 }  // namespace chorus
