@@ -2,9 +2,11 @@
 # Builds the libFuzzer targets (tests/fuzz/, clang-14, ASan + UBSan) and fuzzes each on a copy of
 # its seed corpus; then replays every input in tests/fuzz/regressions/<target>/ (inputs that once
 # crashed a target; each must now pass).
-#   scripts/fuzz.sh [--seconds N] [--jobs J] [--out DIR] [TARGET...]
+#   scripts/fuzz.sh [--seconds N] [--jobs J] [--seed S] [--out DIR] [TARGET...]
 #     --seconds N  fuzzing time per target (default 60; the README's figures used 1800)
 #     --jobs J     targets fuzzed at once (default 1)
+#     --seed S     libFuzzer's random seed (default: a new one each run); CI fixes it, so a
+#                  failure there replays the same mutations
 #     --out DIR    working corpora, logs and crash inputs (default build-fuzz/runs)
 #     TARGET       csv idx config bundle result predict_input (default: all)
 # Prints one line per target: seconds, executions, coverage (edges, features), corpus size, and
@@ -15,6 +17,7 @@ cd "$(dirname "$0")/.."
 root="$(pwd)"
 seconds=60
 jobs=1
+seed=0
 out=""
 targets=()
 while [ $# -gt 0 ]; do
@@ -22,7 +25,8 @@ while [ $# -gt 0 ]; do
     --seconds) seconds="$2"; shift 2 ;;
     --jobs) jobs="$2"; shift 2 ;;
     --out) out="$2"; shift 2 ;;
-    -h|--help) sed -n '2,14p' "$0"; exit 0 ;;
+    --seed) seed="$2"; shift 2 ;;
+    -h|--help) sed -n '2,16p' "$0"; exit 0 ;;
     -*) echo "fuzz.sh: unknown option $1 (see --help)" >&2; exit 2 ;;
     *) targets+=("$1"); shift ;;
   esac
@@ -32,7 +36,8 @@ all=(csv idx config bundle result predict_input)
 for t in "${targets[@]}"; do
   [ -d "tests/fuzz/corpus/$t" ] || { echo "fuzz.sh: no target $t (one of: ${all[*]})" >&2; exit 2; }
 done
-[[ "$seconds" =~ ^[0-9]+$ && "$jobs" =~ ^[1-9][0-9]*$ ]] || { echo "fuzz.sh: --seconds and --jobs take whole numbers" >&2; exit 2; }
+[[ "$seconds" =~ ^[0-9]+$ && "$jobs" =~ ^[1-9][0-9]*$ && "$seed" =~ ^[0-9]+$ ]] ||
+  { echo "fuzz.sh: --seconds, --jobs and --seed take whole numbers" >&2; exit 2; }
 build="${CHORUS_FUZZ_BUILD_DIR:-$root/build-fuzz}"
 out="${out:-$build/runs}"
 
@@ -51,7 +56,7 @@ fuzz_one() {
   local start rc=0
   start=$(date +%s)
   "$build"/fuzz/"${t}_fuzzer" "${dict[@]}" -max_total_time="$seconds" -timeout=10 -rss_limit_mb=2048 \
-    -print_final_stats=1 -artifact_prefix="$dir/crashes/" "$dir/corpus" >"$dir/log" 2>&1 || rc=$?
+    -seed="$seed" -print_final_stats=1 -artifact_prefix="$dir/crashes/" "$dir/corpus" >"$dir/log" 2>&1 || rc=$?
   local execs cov ft crashes
   execs=$(grep -o 'stat::number_of_executed_units: *[0-9]*' "$dir/log" | grep -o '[0-9]*$' || echo 0)
   cov=$(grep -oE 'cov: [0-9]+ ft: [0-9]+' "$dir/log" | tail -1 || true)

@@ -47,5 +47,5 @@ build/chorus run configs/demo.yaml --out runs
 
 if [ "$mode" = test ]; then
   ctest --test-dir build --output-on-failure -j "$jobs" --timeout 900
-  scripts/fuzz.sh --seconds 60 --jobs "$jobs"
+  scripts/fuzz.sh --seconds 60 --jobs "$jobs" --seed 1
 fi
