@@ -230,7 +230,7 @@ class BenchCoordinator {
   static DispatchInputs Inputs() {
     const PreparedData data = TinyData();
     return {EncodePreparedData(data), data.hash, "capacity-bench-config", 30.0,
-            kToken};
+            kToken, ServiceLimits{}};
   }
 
   JobTable table_;

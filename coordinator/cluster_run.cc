@@ -129,13 +129,13 @@ class WorkerPoolRunner final : public JobRunner {
     CHORUS_ASSIGN_OR_RETURN(auto creds, ServerCredentials(c_));
     service_ = std::make_unique<CoordinatorService>(
         DispatchInputs{EncodePreparedData(*in_.data), in_.data->hash, in_.config_hash, c_.lease_seconds,
-                       token.first}, &table_, &dir_);
+                       token.first, ServiceLimits{}}, &table_, &dir_);
     const std::string address = c_.listen.empty() ? "127.0.0.1:0" : c_.listen;
     int port = 0;
     grpc::ServerBuilder builder;
     builder.AddListeningPort(address, creds, &port);
     builder.RegisterService(service_.get());
-    builder.SetMaxReceiveMessageSize(8 << 20);
+    builder.SetMaxReceiveMessageSize(kMaxReceiveMessageBytes);
     server_ = builder.BuildAndStart();
     if (!server_ || port == 0) {
       server_.reset();

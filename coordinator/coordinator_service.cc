@@ -1,13 +1,16 @@
 #include "coordinator/coordinator_service.h"
 
 #include <openssl/crypto.h>
+#include <openssl/rand.h>
 
 #include <algorithm>
 #include <cstdio>
 #include <filesystem>
+#include <stdexcept>
 
 #include "common/file_util.h"
 #include "common/log_format.h"
+#include "common/message_text.h"
 #include "common/sha256.h"
 #include "proto/result_codec.h"
 #include "proto/result_upload.h"
@@ -18,14 +21,45 @@ namespace {
 
 constexpr size_t kChunkBytes = 1 << 20;
 constexpr int64_t kMaxResultBytes = int64_t{4} << 30;
+// How much of a peer's unknown worker id an event or message shows. Bytes.
+constexpr size_t kShownIdBytes = 40;
 
 grpc::Status Invalid(const std::string& msg) { return grpc::Status(grpc::StatusCode::INVALID_ARGUMENT, msg); }
+
+// A worker id from a peer, fit for a message and the event log: at most kShownIdBytes, bytes
+// outside printable ASCII as '?', and the full length when it was cut.
+std::string ShownId(const std::string& id) {
+  std::string shown = id.substr(0, kShownIdBytes);
+  for (char& c : shown) {
+    if (c < 0x20 || c > 0x7e) c = '?';
+  }
+  if (id.size() > kShownIdBytes) shown += "... (" + std::to_string(id.size()) + " bytes)";
+  return "\"" + shown + "\"";
+}
+
+// "w<n>-<16 hex digits from OpenSSL's generator>": the counter keeps ids short to read in the
+// progress view, the random part makes them impossible to guess.
+std::string NewWorkerId(int n) {
+  unsigned char raw[8];
+  if (RAND_bytes(raw, sizeof raw) != 1) throw std::runtime_error("no random bytes for a worker id");
+  std::string id = "w" + std::to_string(n) + "-";
+  for (unsigned char b : raw) id += "0123456789abcdef"[b >> 4], id += "0123456789abcdef"[b & 15];
+  return id;
+}
 
 }  // namespace
 
 CoordinatorService::CoordinatorService(DispatchInputs inputs, JobTable* table, RunDirectory* dir)
     : in_(std::move(inputs)), data_sha_(Sha256Hex(in_.data_bytes.data(), in_.data_bytes.size())),
-      table_(table), dir_(dir) {}
+      table_(table), dir_(dir),
+      refusals_(in_.limits.refusal_window_seconds, in_.limits.max_tracked_peers),
+      uploads_(in_.limits.max_uploads, in_.limits.upload_idle_seconds) {}
+
+CoordinatorService::~CoordinatorService() {
+  for (const RefusalThrottle::Unlogged& u : refusals_.TakeUnlogged()) {
+    dir_->LogEvent(u.kind, {{"peer_address", u.address}, {"unlogged", u.count}, {"summary", true}});
+  }
+}
 
 int CoordinatorService::AddJobs(const std::vector<MemberSpec>& specs) {
   std::lock_guard<std::mutex> lock(mu_);
@@ -43,6 +77,21 @@ MemberSpec CoordinatorService::Spec(int job) const {
   return specs_[static_cast<size_t>(job)];
 }
 
+RefusalThrottle::Verdict CoordinatorService::Refuse(const std::string& peer, const std::string& kind,
+                                                    nlohmann::json fields, const std::string& message) {
+  const std::string address = PeerAddress(peer);
+  const RefusalThrottle::Verdict verdict = refusals_.Count(kind, address, Clock::now());
+  if (!verdict.log) return verdict;
+  fields["peer"] = peer;
+  if (verdict.unlogged > 0) fields["unlogged"] = verdict.unlogged;
+  LogLine(stderr, LogLevel::kWarning, "refused a call from " + peer + ": " + message +
+          (verdict.unlogged > 0 ? " (and " + std::to_string(verdict.unlogged) +
+                                  " such refusals from this address since the last report)" : ""),
+          {{"peer", peer}, {"event", kind}});
+  dir_->LogEvent(kind, std::move(fields));
+  return verdict;
+}
+
 grpc::Status CoordinatorService::Authenticate(grpc::ServerContext* ctx) {
   const auto& md = ctx->client_metadata();
   const auto it = md.find("x-chorus-token");
@@ -54,10 +103,25 @@ grpc::Status CoordinatorService::Authenticate(grpc::ServerContext* ctx) {
     ++refused_;
   }
   const std::string why = it == md.end() ? "no token" : "wrong token";
-  LogLine(stderr, LogLevel::kWarning, "refused a call from " + ctx->peer() + ": " + why,
-          {{"peer", ctx->peer()}, {"why", why}});
-  dir_->LogEvent("call_refused", {{"peer", ctx->peer()}, {"why", why}});
+  const RefusalThrottle::Verdict verdict = Refuse(ctx->peer(), "call_refused", {{"why", why}}, why);
+  if (verdict.in_window > in_.limits.max_token_failures) {
+    return grpc::Status(grpc::StatusCode::UNAUTHENTICATED,
+                        "missing or wrong token; throttled: " + std::to_string(verdict.in_window) +
+                        " refused from " + PeerAddress(ctx->peer()) + " within " +
+                        NumberText(in_.limits.refusal_window_seconds) + " s");
+  }
   return grpc::Status(grpc::StatusCode::UNAUTHENTICATED, "missing or wrong token");
+}
+
+grpc::Status CoordinatorService::CheckRegistered(grpc::ServerContext* ctx, const std::string& worker,
+                                                 const char* call) {
+  {
+    std::lock_guard<std::mutex> lock(mu_);
+    if (workers_.count(worker) > 0) return grpc::Status::OK;
+  }
+  const std::string why = "worker " + ShownId(worker) + " is not registered; register first";
+  Refuse(ctx->peer(), "worker_unknown", {{"worker", ShownId(worker)}, {"call", call}}, std::string(call) + ": " + why);
+  return grpc::Status(grpc::StatusCode::FAILED_PRECONDITION, why);
 }
 
 int CoordinatorService::JobIndex(const std::string& job_id) const {
@@ -92,11 +156,25 @@ void CoordinatorService::Seen(const std::string& worker, const std::string& job,
 grpc::Status CoordinatorService::Register(grpc::ServerContext* ctx, const wire::RegisterRequest* req,
                                           wire::RegisterReply* reply) {
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  if (req->host().size() > in_.limits.max_host_bytes) {
+    const std::string why = "host name of " + std::to_string(req->host().size()) + " bytes; at most " +
+                            std::to_string(in_.limits.max_host_bytes) + " are accepted";
+    Refuse(ctx->peer(), "registration_refused", {{"why", why}}, why);
+    return Invalid(why);
+  }
   std::string id;
   {
     std::lock_guard<std::mutex> lock(mu_);
-    id = "w" + std::to_string(next_worker_++);
-    workers_[id] = WorkerView{req->host(), "", 0, 0, 0, 0, Clock::now()};
+    if (static_cast<int>(workers_.size()) < in_.limits.max_workers) {
+      id = NewWorkerId(next_worker_++);
+      workers_[id] = WorkerView{req->host(), "", 0, 0, 0, 0, Clock::now()};
+    }
+  }
+  if (id.empty()) {
+    const std::string why = "the coordinator has registered its limit of " +
+                            std::to_string(in_.limits.max_workers) + " workers";
+    Refuse(ctx->peer(), "registration_refused", {{"why", why}, {"host", req->host()}}, why);
+    return grpc::Status(grpc::StatusCode::RESOURCE_EXHAUSTED, why);
   }
   reply->set_worker_id(id);
   reply->set_lease_seconds(in_.lease_seconds);
@@ -108,6 +186,7 @@ grpc::Status CoordinatorService::Register(grpc::ServerContext* ctx, const wire::
 grpc::Status CoordinatorService::Lease(grpc::ServerContext* ctx, const wire::LeaseRequest* req,
                                        wire::LeaseReply* reply) {
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  if (grpc::Status st = CheckRegistered(ctx, req->worker_id(), "Lease"); !st.ok()) return st;
   const std::optional<JobLease> lease = table_->Lease(req->worker_id(), Clock::now());
   if (!lease) {
     bool closed = false;
@@ -136,6 +215,7 @@ grpc::Status CoordinatorService::Lease(grpc::ServerContext* ctx, const wire::Lea
 grpc::Status CoordinatorService::Heartbeat(grpc::ServerContext* ctx, const wire::HeartbeatRequest* req,
                                            wire::HeartbeatReply* reply) {
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  if (grpc::Status st = CheckRegistered(ctx, req->worker_id(), "Heartbeat"); !st.ok()) return st;
   const int job = JobIndex(req->job_id());
   if (job < 0) return Invalid("unknown job " + req->job_id());
   reply->set_keep_going(table_->Renew(job, req->lease_id(), Clock::now()));
@@ -164,28 +244,48 @@ grpc::Status CoordinatorService::FetchData(grpc::ServerContext* ctx, const wire:
   return grpc::Status::OK;
 }
 
+grpc::Status CoordinatorService::CheckUploader(grpc::ServerContext* ctx, const wire::ResultChunk& header,
+                                               int* job) {
+  if (grpc::Status st = CheckRegistered(ctx, header.worker_id(), "UploadResult"); !st.ok()) return st;
+  *job = JobIndex(header.job_id());
+  if (*job < 0) return Invalid("unknown job " + header.job_id());
+  if (table_->WasLeasedTo(*job, header.lease_id(), header.worker_id())) return grpc::Status::OK;
+  const std::string why = "job " + header.job_id() + " was never leased to worker " + header.worker_id() +
+                          " under lease " + std::to_string(header.lease_id());
+  Refuse(ctx->peer(), "result_refused", {{"job", header.job_id()}, {"worker", header.worker_id()}, {"why", why}}, why);
+  return grpc::Status(grpc::StatusCode::PERMISSION_DENIED, why);
+}
+
 grpc::Status CoordinatorService::UploadResult(grpc::ServerContext* ctx,
                                               grpc::ServerReader<wire::ResultChunk>* reader,
                                               wire::UploadReply* reply) {
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  const std::string peer = ctx->peer();
+  std::unique_ptr<UploadSlots::Slot> slot = uploads_.Acquire([ctx] { ctx->TryCancel(); });
+  if (!slot) {
+    const std::string why = std::to_string(in_.limits.max_uploads) + " uploads are open already; retry later";
+    Refuse(ctx->peer(), "upload_refused", {{"why", why}}, why);
+    return grpc::Status(grpc::StatusCode::RESOURCE_EXHAUSTED, why);
+  }
   ResultUpload upload(kMaxResultBytes);
   wire::ResultChunk chunk;
+  int job = -1;
   while (reader->Read(&chunk)) {
+    slot->Touch();
     if (Status st = upload.Add(chunk); !st.ok()) return Invalid(st.message());
+    if (job < 0) {
+      if (grpc::Status st = CheckUploader(ctx, upload.header(), &job); !st.ok()) return st;
+    }
   }
-  const wire::ResultChunk& header = upload.header();
-  const int job = JobIndex(header.job_id());
-  if (job < 0) return Invalid("unknown job " + header.job_id());
-  if (!table_->WasLeasedTo(job, header.lease_id(), header.worker_id())) {
-    const std::string why = "job " + header.job_id() + " was never leased to worker " + header.worker_id() +
-                            " under lease " + std::to_string(header.lease_id());
-    dir_->LogEvent("result_refused", {{"job", header.job_id()}, {"worker", header.worker_id()},
-                                      {"peer", ctx->peer()}, {"why", why}});
-    return grpc::Status(grpc::StatusCode::PERMISSION_DENIED, why);
+  if (slot->cancelled_for_idling()) {
+    const std::string why = "no chunk for " + NumberText(in_.limits.upload_idle_seconds) + " s";
+    Refuse(peer, "upload_cancelled", {{"why", why}}, "upload cancelled: " + why);
+    return grpc::Status(grpc::StatusCode::CANCELLED, "upload cancelled: " + why);
   }
+  slot.reset();  // the stream is read: storing may take longer than the idle bound
   StatusOr<std::string> bytes = upload.Finish();
   if (!bytes.ok()) return Invalid(bytes.status().message());
-  return Store(job, header.worker_id(), bytes.value(), reply);
+  return Store(job, upload.header().worker_id(), bytes.value(), reply);
 }
 
 grpc::Status CoordinatorService::Store(int job, const std::string& worker, const std::string& bytes,
@@ -224,6 +324,7 @@ grpc::Status CoordinatorService::Store(int job, const std::string& worker, const
 grpc::Status CoordinatorService::ReportFailure(grpc::ServerContext* ctx, const wire::FailureRequest* req,
                                                wire::FailureReply*) {
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  if (grpc::Status st = CheckRegistered(ctx, req->worker_id(), "ReportFailure"); !st.ok()) return st;
   const int job = JobIndex(req->job_id());
   if (job < 0) return Invalid("unknown job " + req->job_id());
   const bool failed = table_->Fail(job, req->lease_id(), req->cause(), req->deterministic());
@@ -240,6 +341,7 @@ grpc::Status CoordinatorService::ReportFailure(grpc::ServerContext* ctx, const w
 grpc::Status CoordinatorService::ReturnLease(grpc::ServerContext* ctx, const wire::ReturnLeaseRequest* req,
                                              wire::ReturnLeaseReply*) {
   if (grpc::Status st = Authenticate(ctx); !st.ok()) return st;
+  if (grpc::Status st = CheckRegistered(ctx, req->worker_id(), "ReturnLease"); !st.ok()) return st;
   const int job = JobIndex(req->job_id());
   if (job < 0) return Invalid("unknown job " + req->job_id());
   table_->Return(job, req->lease_id());

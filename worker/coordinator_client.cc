@@ -136,9 +136,12 @@ Status FromGrpc(const grpc::Status& status, const std::string& call) {
     case grpc::StatusCode::PERMISSION_DENIED:
     case grpc::StatusCode::INVALID_ARGUMENT:
       return Status::InvalidInput(msg);
+    case grpc::StatusCode::FAILED_PRECONDITION:
+      return Status::Refused(msg);
     case grpc::StatusCode::UNAVAILABLE:
     case grpc::StatusCode::DEADLINE_EXCEEDED:
     case grpc::StatusCode::CANCELLED:
+    case grpc::StatusCode::RESOURCE_EXHAUSTED:
       return Status::Unavailable(msg);
     default:
       return Status::Internal(msg);

@@ -31,8 +31,10 @@ class CoordinatorClient {
   // Builds the channel; a bad TLS file is kInvalidInput. Nothing is sent yet.
   static StatusOr<std::unique_ptr<CoordinatorClient>> Create(const ConnectionOptions& options);
 
-  // kUnavailable when the coordinator cannot be reached (retry later); kInvalidInput when it
-  // refused our token (UNAUTHENTICATED: retrying cannot help).
+  // kUnavailable when the coordinator cannot be reached or is busy (RESOURCE_EXHAUSTED, e.g. all
+  // its upload slots are taken: retry later); kInvalidInput when it refused our token
+  // (UNAUTHENTICATED: retrying cannot help); kRefused when it does not know our worker id
+  // (FAILED_PRECONDITION: it was restarted since we registered, so register again).
   Status Register(const wire::RegisterRequest& request, wire::RegisterReply* reply);
   Status Lease(const wire::LeaseRequest& request, wire::LeaseReply* reply);
   Status Heartbeat(const wire::HeartbeatRequest& request, wire::HeartbeatReply* reply);
@@ -69,7 +71,7 @@ class CoordinatorClient {
   std::string token_;
 };
 
-// grpc::Status -> chorus::Status, naming the call.
+// grpc::Status -> chorus::Status, naming the call (the codes as listed above).
 Status FromGrpc(const grpc::Status& status, const std::string& call);
 
 }  // namespace chorus

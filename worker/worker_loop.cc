@@ -70,7 +70,8 @@ class Heartbeat {
       lock.unlock();
       wire::HeartbeatReply reply;
       const Status st = client_->Heartbeat(request, &reply);
-      if (st.ok() && !reply.keep_going()) cancel_->store(true);
+      // kRefused: the coordinator no longer knows this worker (it restarted), so neither the lease.
+      if ((st.ok() && !reply.keep_going()) || st.code() == Status::Code::kRefused) cancel_->store(true);
       lock.lock();
     }
   }
@@ -85,136 +86,7 @@ class Heartbeat {
   std::thread thread_;
 };
 
-struct Shared {
-  const WorkerOptions& options;
-  const std::atomic<bool>& stop;
-  CoordinatorClient* client;
-  DataCache* cache;
-  std::string worker_id;
-  double lease_seconds;
-};
-
-// Sends a result without a second copy of it in memory: one encoding pass for its size and
-// SHA-256 (which the protocol's first chunk carries), a second straight into the upload stream.
-Status Upload(const Shared& s, const wire::LeaseReply& lease, const std::vector<int>& widths,
-              const MemberResult& result) {
-  const auto write = [&](const ByteSink& sink) {
-    return WriteJobResult(result, widths, lease.data_hash(), lease.config_hash(), sink);
-  };
-  Sha256 sha;
-  int64_t total = 0;
-  write([&](const char* bytes, size_t n) {
-    sha.Update(bytes, n);
-    total += static_cast<int64_t>(n);
-    return true;
-  });
-  wire::UploadReply reply;
-  return s.client->UploadResult(s.worker_id, lease.job_id(), lease.lease_id(), total,
-                                sha.FinishHex(), write, &reply);
-}
-
-// A leased job: its data from the cache (memory, disk, then FetchData), a heartbeat renewing the
-// lease with the latest progress while it trains, and its outcome sent back: the result uploaded,
-// the lease returned (cancelled) or the failure reported.
-class LeasedJob final : public TakenJob {
- public:
-  LeasedJob(const Shared& s, wire::LeaseReply lease) : s_(s), lease_(std::move(lease)) {}
-
-  Status Prepare(const MemberSpec** spec, const PreparedData** data) override {
-    StatusOr<std::shared_ptr<const PreparedData>> cached = s_.cache->Get(lease_.data_hash());
-    CHORUS_RETURN_IF_ERROR(cached.status());
-    data_ = std::move(cached).value();
-    StatusOr<MemberSpec> parsed = SpecFromWire(lease_.spec());
-    CHORUS_RETURN_IF_ERROR(parsed.status());
-    spec_ = std::move(parsed).value();
-    wire::HeartbeatRequest base;
-    base.set_worker_id(s_.worker_id);
-    base.set_job_id(lease_.job_id());
-    base.set_lease_id(lease_.lease_id());
-    heartbeat_.emplace(s_.client, base, std::max(0.2, s_.lease_seconds / 3), &cancel);
-    start_ = SteadyClock::now();
-    *spec = &spec_.value();
-    *data = data_.get();
-    return Status::Ok();
-  }
-
-  void OnProgress(const EpochProgress& p) override {
-    const double secs = duration<double>(SteadyClock::now() - start_).count();
-    const double rows = static_cast<double>(data_->train.rows());
-    heartbeat_->Update(p, rows * p.epoch / std::max(secs, 1e-9));
-    if (s_.stop.load()) cancel.store(true);
-  }
-
-  void Finish(const StatusOr<MemberResult>& outcome) override {
-    if (heartbeat_) heartbeat_->Stop();
-    if (outcome.ok()) {
-      const Status st = Upload(s_, lease_, NetworkFor(spec_->model, *data_).widths(), outcome.value());
-      if (!st.ok()) {
-        LogLine(stderr, LogLevel::kError, "chorus-worker: upload of job " + lease_.job_id() +
-                " failed: " + st.ToString(), {{"job", lease_.job_id()}, {"cause", st.ToString()}});
-      }
-      return;
-    }
-    if (outcome.status().code() == Status::Code::kCancelled) {
-      wire::ReturnLeaseRequest r;
-      r.set_worker_id(s_.worker_id);
-      r.set_job_id(lease_.job_id());
-      r.set_lease_id(lease_.lease_id());
-      s_.client->ReturnLease(r);
-      return;
-    }
-    wire::FailureRequest f;
-    f.set_worker_id(s_.worker_id);
-    f.set_job_id(lease_.job_id());
-    f.set_lease_id(lease_.lease_id());
-    f.set_cause(outcome.status().ToString());
-    f.set_deterministic(outcome.status().code() == Status::Code::kDiverged);
-    s_.client->ReportFailure(f);
-  }
-
- private:
-  const Shared& s_;
-  const wire::LeaseReply lease_;
-  std::shared_ptr<const PreparedData> data_;
-  std::optional<MemberSpec> spec_;
-  std::optional<Heartbeat> heartbeat_;
-  SteadyClock::time_point start_;
-};
-
-// Jobs leased from the coordinator, with backoff while it is away. A slot ends when stopped or
-// (exit_when_done) when the run is over; a refused token ends it with kInvalidInput.
-class LeaseSource final : public JobSource {
- public:
-  explicit LeaseSource(const Shared& s) : s_(s) {}
-
-  StatusOr<std::unique_ptr<TakenJob>> Take() override {
-    double backoff = 0.25;
-    while (!s_.stop.load()) {
-      wire::LeaseRequest request;
-      request.set_worker_id(s_.worker_id);
-      wire::LeaseReply lease;
-      const Status st = s_.client->Lease(request, &lease);
-      if (st.code() == Status::Code::kInvalidInput) return st;
-      if (!st.ok()) {
-        SleepUnlessStopped(backoff, s_.stop);
-        backoff = std::min(backoff * 2, s_.options.max_backoff_seconds);
-        continue;
-      }
-      backoff = 0.25;
-      if (lease.kind() == wire::LeaseReply::JOB) {
-        return std::unique_ptr<TakenJob>(std::make_unique<LeasedJob>(s_, std::move(lease)));
-      }
-      if (lease.kind() == wire::LeaseReply::DONE && s_.options.exit_when_done) break;
-      SleepUnlessStopped(std::max(0.05, lease.retry_after_seconds()), s_.stop);
-    }
-    return std::unique_ptr<TakenJob>();
-  }
-
- private:
-  const Shared& s_;
-};
-
-// Registers, retrying with backoff while the coordinator is unreachable.
+// Registers, retrying with backoff while the coordinator is unreachable or busy.
 Status RegisterWithBackoff(const WorkerOptions& o, const std::atomic<bool>& stop,
                            CoordinatorClient* client, wire::RegisterReply* reply) {
   wire::RegisterRequest request;
@@ -233,17 +105,214 @@ Status RegisterWithBackoff(const WorkerOptions& o, const std::atomic<bool>& stop
   return Status::Cancelled("stopped before registering");
 }
 
+// The id this worker is registered under, shared by its slot threads. A coordinator resumed after
+// a restart knows none of the ids its predecessor gave out and refuses them: the first slot to
+// be refused registers again and the others then use the new id.
+class Registration {
+ public:
+  Registration(const WorkerOptions& o, const std::atomic<bool>& stop, CoordinatorClient* client)
+      : options_(o), stop_(stop), client_(client) {}
+
+  // Registers (again, if `stale` is still the current id; otherwise another slot already did).
+  // kCancelled if stopped first, kInvalidInput if the token was refused.
+  Status Renew(const std::string& stale) {
+    std::lock_guard<std::mutex> lock(mu_);
+    if (id_ != stale) return Status::Ok();
+    wire::RegisterReply reply;
+    CHORUS_RETURN_IF_ERROR(RegisterWithBackoff(options_, stop_, client_, &reply));
+    if (!id_.empty()) {
+      LogLine(stderr, LogLevel::kWarning, "chorus-worker: the coordinator no longer knows worker " + id_ +
+              " (it restarted?); registered again as " + reply.worker_id(),
+              {{"stale_worker", id_}, {"worker", reply.worker_id()}});
+    }
+    id_ = reply.worker_id();
+    lease_seconds_ = reply.lease_seconds();
+    return Status::Ok();
+  }
+
+  std::string id() const {
+    std::lock_guard<std::mutex> lock(mu_);
+    return id_;
+  }
+  double lease_seconds() const {
+    std::lock_guard<std::mutex> lock(mu_);
+    return lease_seconds_;
+  }
+
+ private:
+  const WorkerOptions& options_;
+  const std::atomic<bool>& stop_;
+  CoordinatorClient* client_;
+  mutable std::mutex mu_;
+  std::string id_;              // guarded by mu_; "" before the first registration
+  double lease_seconds_ = 0;    // guarded by mu_
+};
+
+struct Shared {
+  const WorkerOptions& options;
+  const std::atomic<bool>& stop;
+  CoordinatorClient* client;
+  DataCache* cache;
+  Registration* registration;
+};
+
+// How long a finished job's upload is retried while the coordinator is unreachable or busy (all
+// its upload slots taken). Seconds.
+constexpr double kUploadRetrySeconds = 300;
+
+// Sends a result without a second copy of it in memory: one encoding pass for its size and
+// SHA-256 (which the protocol's first chunk carries), then a second straight into the upload
+// stream, repeated with backoff while the coordinator answers kUnavailable, up to
+// kUploadRetrySeconds or until stopped.
+Status Upload(const Shared& s, const std::string& worker_id, const wire::LeaseReply& lease,
+              const std::vector<int>& widths, const MemberResult& result) {
+  const auto write = [&](const ByteSink& sink) {
+    return WriteJobResult(result, widths, lease.data_hash(), lease.config_hash(), sink);
+  };
+  Sha256 sha;
+  int64_t total = 0;
+  write([&](const char* bytes, size_t n) {
+    sha.Update(bytes, n);
+    total += static_cast<int64_t>(n);
+    return true;
+  });
+  const std::string sha256 = sha.FinishHex();
+  const auto give_up = SteadyClock::now() + duration<double>(kUploadRetrySeconds);
+  double backoff = 0.25;
+  while (true) {
+    wire::UploadReply reply;
+    const Status st = s.client->UploadResult(worker_id, lease.job_id(), lease.lease_id(), total, sha256,
+                                             write, &reply);
+    if (st.code() != Status::Code::kUnavailable || s.stop.load() || SteadyClock::now() >= give_up) return st;
+    LogPrintf(stderr, LogLevel::kWarning, "chorus-worker: upload of job %s: %s; retrying in %.1fs",
+              lease.job_id().c_str(), st.ToString().c_str(), backoff);
+    SleepUnlessStopped(backoff, s.stop);
+    backoff = std::min(backoff * 2, s.options.max_backoff_seconds);
+  }
+}
+
+// A leased job: its data from the cache (memory, disk, then FetchData), a heartbeat renewing the
+// lease with the latest progress while it trains, and its outcome sent back: the result uploaded,
+// the lease returned (cancelled) or the failure reported.
+class LeasedJob final : public TakenJob {
+ public:
+  // `worker_id`: the id the job was leased under.
+  LeasedJob(const Shared& s, std::string worker_id, wire::LeaseReply lease)
+      : s_(s), worker_id_(std::move(worker_id)), lease_(std::move(lease)) {}
+
+  Status Prepare(const MemberSpec** spec, const PreparedData** data) override {
+    StatusOr<std::shared_ptr<const PreparedData>> cached = s_.cache->Get(lease_.data_hash());
+    CHORUS_RETURN_IF_ERROR(cached.status());
+    data_ = std::move(cached).value();
+    StatusOr<MemberSpec> parsed = SpecFromWire(lease_.spec());
+    CHORUS_RETURN_IF_ERROR(parsed.status());
+    spec_ = std::move(parsed).value();
+    wire::HeartbeatRequest base;
+    base.set_worker_id(worker_id_);
+    base.set_job_id(lease_.job_id());
+    base.set_lease_id(lease_.lease_id());
+    heartbeat_.emplace(s_.client, base, std::max(0.2, s_.registration->lease_seconds() / 3), &cancel);
+    start_ = SteadyClock::now();
+    *spec = &spec_.value();
+    *data = data_.get();
+    return Status::Ok();
+  }
+
+  void OnProgress(const EpochProgress& p) override {
+    const double secs = duration<double>(SteadyClock::now() - start_).count();
+    const double rows = static_cast<double>(data_->train.rows());
+    heartbeat_->Update(p, rows * p.epoch / std::max(secs, 1e-9));
+    if (s_.stop.load()) cancel.store(true);
+  }
+
+  void Finish(const StatusOr<MemberResult>& outcome) override {
+    if (heartbeat_) heartbeat_->Stop();
+    if (outcome.ok()) {
+      const Status st = Upload(s_, worker_id_, lease_, NetworkFor(spec_->model, *data_).widths(), outcome.value());
+      if (!st.ok()) {
+        LogLine(stderr, LogLevel::kError, "chorus-worker: upload of job " + lease_.job_id() +
+                " failed: " + st.ToString(), {{"job", lease_.job_id()}, {"cause", st.ToString()}});
+      }
+      return;
+    }
+    if (outcome.status().code() == Status::Code::kCancelled) {
+      wire::ReturnLeaseRequest r;
+      r.set_worker_id(worker_id_);
+      r.set_job_id(lease_.job_id());
+      r.set_lease_id(lease_.lease_id());
+      s_.client->ReturnLease(r);
+      return;
+    }
+    wire::FailureRequest f;
+    f.set_worker_id(worker_id_);
+    f.set_job_id(lease_.job_id());
+    f.set_lease_id(lease_.lease_id());
+    f.set_cause(outcome.status().ToString());
+    f.set_deterministic(outcome.status().code() == Status::Code::kDiverged);
+    s_.client->ReportFailure(f);
+  }
+
+ private:
+  const Shared& s_;
+  const std::string worker_id_;
+  const wire::LeaseReply lease_;
+  std::shared_ptr<const PreparedData> data_;
+  std::optional<MemberSpec> spec_;
+  std::optional<Heartbeat> heartbeat_;
+  SteadyClock::time_point start_;
+};
+
+// Jobs leased from the coordinator, with backoff while it is away, registering again when it no
+// longer knows this worker. A slot ends when stopped or (exit_when_done) when the run is over; a
+// refused token ends it with kInvalidInput.
+class LeaseSource final : public JobSource {
+ public:
+  explicit LeaseSource(const Shared& s) : s_(s) {}
+
+  StatusOr<std::unique_ptr<TakenJob>> Take() override {
+    double backoff = 0.25;
+    while (!s_.stop.load()) {
+      const std::string worker_id = s_.registration->id();
+      wire::LeaseRequest request;
+      request.set_worker_id(worker_id);
+      wire::LeaseReply lease;
+      const Status st = s_.client->Lease(request, &lease);
+      if (st.code() == Status::Code::kInvalidInput) return st;
+      if (st.code() == Status::Code::kRefused) {
+        const Status renewed = s_.registration->Renew(worker_id);
+        if (renewed.code() == Status::Code::kInvalidInput) return renewed;
+        continue;
+      }
+      if (!st.ok()) {
+        SleepUnlessStopped(backoff, s_.stop);
+        backoff = std::min(backoff * 2, s_.options.max_backoff_seconds);
+        continue;
+      }
+      backoff = 0.25;
+      if (lease.kind() == wire::LeaseReply::JOB) {
+        return std::unique_ptr<TakenJob>(std::make_unique<LeasedJob>(s_, worker_id, std::move(lease)));
+      }
+      if (lease.kind() == wire::LeaseReply::DONE && s_.options.exit_when_done) break;
+      SleepUnlessStopped(std::max(0.05, lease.retry_after_seconds()), s_.stop);
+    }
+    return std::unique_ptr<TakenJob>();
+  }
+
+ private:
+  const Shared& s_;
+};
+
 }  // namespace
 
 Status RunWorker(const WorkerOptions& options, const std::atomic<bool>& stop) {
   CHORUS_ASSIGN_OR_RETURN(std::unique_ptr<CoordinatorClient> client,
                           CoordinatorClient::Create(options.connection));
-  wire::RegisterReply reg;
-  const Status registered = RegisterWithBackoff(options, stop, client.get(), &reg);
+  Registration registration(options, stop, client.get());
+  const Status registered = registration.Renew("");
   if (registered.code() == Status::Code::kCancelled) return Status::Ok();
   CHORUS_RETURN_IF_ERROR(registered);
   DataCache cache(client.get(), options.cache_dir);
-  const Shared shared{options, stop, client.get(), &cache, reg.worker_id(), reg.lease_seconds()};
+  const Shared shared{options, stop, client.get(), &cache, &registration};
   LeaseSource source(shared);
   return RunJobSlots(source, options.slots);
 }

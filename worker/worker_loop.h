@@ -2,7 +2,8 @@
 // of `slots` slot threads lease a job, make sure its data is at hand (memory, then the disk cache
 // by hash, then FetchData), train it while a heartbeat thread renews the lease and carries
 // progress, and upload the result or report the failure. Reconnects with backoff while the
-// coordinator is away.
+// coordinator is away, registers again when a restarted coordinator no longer knows its worker id,
+// and retries an upload the coordinator is too busy to take (all its upload slots held).
 // Thread safety: RunWorker is called once per process; `stop` may be set from a signal handler.
 #pragma once
 
