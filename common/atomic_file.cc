@@ -30,6 +30,7 @@ AtomicFile::~AtomicFile() {
 
 Status AtomicFile::Append(std::string_view bytes) {
   if (std::fwrite(bytes.data(), 1, bytes.size(), file_) != bytes.size()) {
+    failure_errno_ = errno;
     return Status::Io(temp_ + ": write failed: " + Errno());
   }
   return Status::Ok();
@@ -38,9 +39,13 @@ Status AtomicFile::Append(std::string_view bytes) {
 Status AtomicFile::Commit() {
   Status st;
   if (std::fflush(file_) != 0 || ::fsync(::fileno(file_)) != 0) {
+    failure_errno_ = errno;
     st = Status::Io(temp_ + ": flush failed: " + Errno());
   }
-  if (std::fclose(file_) != 0 && st.ok()) st = Status::Io(temp_ + ": close failed: " + Errno());
+  if (std::fclose(file_) != 0 && st.ok()) {
+    failure_errno_ = errno;
+    st = Status::Io(temp_ + ": close failed: " + Errno());
+  }
   file_ = nullptr;
   if (st.ok() && std::rename(temp_.c_str(), path_.c_str()) != 0) {
     st = Status::Io(path_ + ": rename failed: " + Errno());
@@ -48,5 +53,7 @@ Status AtomicFile::Commit() {
   committed_ = st.ok();
   return st;
 }
+
+bool AtomicFile::FailedForSpace() const { return failure_errno_ == ENOSPC || failure_errno_ == EDQUOT; }
 
 }  // namespace chorus

@@ -29,6 +29,10 @@ class AtomicFile {
   // leave the path untouched.
   Status Commit();
 
+  // True when the last failed Append or Commit failed because the file system is full (ENOSPC,
+  // or EDQUOT: the user's quota), a condition that may pass.
+  bool FailedForSpace() const;
+
  private:
   AtomicFile(std::FILE* file, std::string path, std::string temp)
       : file_(file), path_(std::move(path)), temp_(std::move(temp)) {}
@@ -37,6 +41,7 @@ class AtomicFile {
   std::string path_;
   std::string temp_;
   bool committed_ = false;
+  int failure_errno_ = 0;  // errno of the last failed Append or Commit
 };
 
 }  // namespace chorus

@@ -94,7 +94,7 @@ std::vector<SizeCurvePoint> SizeGrid(
   Philox rng(seed);
   std::vector<SizeCurvePoint> curve;
   for (int s : SampleGrid(samples)) {
-    for (int k = 1; k <= members; ++k) {
+    for (int k : MemberGrid(members)) {
       SubsetScores scores;
       for (const Subset& subset : ChooseSubsets(members, k, subsets, &rng)) score(subset, s, &scores);
       SizeCurvePoint point;
@@ -121,6 +121,16 @@ std::vector<int> SampleGrid(int samples) {
     }
   }
   grid.push_back(samples);
+  return grid;
+}
+
+std::vector<int> MemberGrid(int members) {
+  constexpr int kEverySizeUpTo = 10;
+  std::vector<int> grid;
+  for (int k = 1; k <= members; k = k < kEverySizeUpTo ? k + 1 : std::max(k + 1, (k * 5 + 2) / 4)) {
+    grid.push_back(k);
+  }
+  if (grid.empty() || grid.back() != members) grid.push_back(members);
   return grid;
 }
 

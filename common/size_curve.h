@@ -22,11 +22,11 @@ struct SizeCurvePoint {
   Spread nll, accuracy, ece, rmse, coverage_90;
 };
 
-// For k = 1..M: `subsets` subsets of k distinct members drawn with Philox(seed) (for k = M, or
+// For k in MemberGrid(M): `subsets` subsets of k distinct members drawn with Philox(seed) (for k = M, or
 // when fewer distinct subsets exist, every subset once at most `subsets` times), each assembled
 // with uniform weights and a temperature tuned on validation, then scored on test.
 // Members given as their samples' outputs: samples[m][s] is member m's sample s (all members must
-// have the same number S of samples). The grid is k = 1..M members times s in SampleGrid(S)
+// have the same number S of samples). The grid is k in MemberGrid(M) members times s in SampleGrid(S)
 // samples per member (the first s of each); each point's subsets are drawn as above and each
 // subset is the uniform mixture of its k * s components, temperature tuned on validation.
 using MemberSamples = std::vector<std::vector<const Matrix*>>;
@@ -34,6 +34,11 @@ using MemberSampleGaussians = std::vector<std::vector<const MemberGaussian*>>;
 
 // {1, 2, 5, 10, 20, 50, ...} up to S, plus S itself; ascending.
 std::vector<int> SampleGrid(int samples);
+
+// Every size 1..10, then steps of about a quarter (13, 16, 20, 25, 31, ...), plus M itself;
+// ascending. Scoring a subset of k members costs about k, so the curve of a 200-member ensemble
+// costs about 1/18 of what every size 1..200 would, and small ensembles keep every size.
+std::vector<int> MemberGrid(int members);
 
 std::vector<SizeCurvePoint> ClassificationSizeGrid(
     const MemberSamples& validation_logits, const std::vector<int32_t>& validation_labels,

@@ -281,6 +281,28 @@ TEST(SizeCurveTest, RegressionFullPointMatchesWholeEnsemble) {
   EXPECT_DOUBLE_EQ(curve[2].rmse.min, curve[2].rmse.max);
 }
 
+// Large ensembles get a size grid, not every size: all sizes up to 10, then steps of about a
+// quarter, always ending at the whole ensemble, so the curve's cost grows about linearly.
+TEST(SizeCurveTest, LargeEnsemblesAreScoredOnAGridOfSizes) {
+  EXPECT_EQ(MemberGrid(1), (std::vector<int>{1}));
+  EXPECT_EQ(MemberGrid(6), (std::vector<int>{1, 2, 3, 4, 5, 6}));
+  EXPECT_EQ(MemberGrid(10), (std::vector<int>{1, 2, 3, 4, 5, 6, 7, 8, 9, 10}));
+  EXPECT_EQ(MemberGrid(12), (std::vector<int>{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 12}));
+  const std::vector<int> big = MemberGrid(200);
+  EXPECT_EQ(big, (std::vector<int>{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 13, 16, 20, 25, 31, 39, 49, 61, 76,
+                                   95, 119, 149, 186, 200}));
+  int cost = 0;
+  for (int k : big) cost += k;
+  EXPECT_LT(cost * 15, 200 * 201 / 2) << "under 1/15 of scoring every size";
+
+  const Ensemble e = RandomEnsemble(14, 100, 3, 93);
+  const auto curve = ClassificationSizeCurve(e.Validation(), e.validation_labels, e.Test(),
+                                             e.test_labels, 2, 10, 5);
+  const std::vector<int> grid = MemberGrid(14);
+  ASSERT_EQ(curve.size(), grid.size());
+  for (size_t i = 0; i < grid.size(); ++i) EXPECT_EQ(curve[i].members, grid[i]);
+}
+
 TEST(SizeCurveTest, SubsetsAreDeterministicForASeed) {
   const Ensemble e = RandomEnsemble(6, 200, 4, 91);
   const auto curve = [&](uint64_t seed) {
