@@ -6,9 +6,14 @@
 #include <vector>
 
 #include "execution/tbb_parallel_for.h"
+#include "execution/tsan_handoff.h"
 
 namespace chorus {
 namespace {
+
+// The hand-off edges for TSan (execution/tsan_handoff.h). Fixed addresses, because a task cannot
+// read a token from its functor before TSan knows the functor was handed over.
+const char kJobStart = 0, kJobEnd = 0;
 
 // One slot: take, train, hand back, until the source has nothing more for it.
 Status RunSlot(JobSource& source, tbb::task_arena& arena, const ParallelFor& parallel) {
@@ -21,7 +26,15 @@ Status RunSlot(JobSource& source, tbb::task_arena& arena, const ParallelFor& par
     StatusOr<MemberResult> outcome = prepared.ok() ? Status::Internal("not run") : prepared;
     if (prepared.ok()) {
       const ProgressFn progress = [&job](const EpochProgress& p) { job->OnProgress(p); };
-      arena.execute([&] { outcome = TrainMember(*spec, *data, progress, &job->cancel, &parallel); });
+      // execute() may run the job on another of the arena's threads; TSan is told of the hand-off.
+      const auto train = [&] {
+        TsanTakeOver(&kJobStart);
+        outcome = TrainMember(*spec, *data, progress, &job->cancel, &parallel);
+        TsanHandOff(&kJobEnd);
+      };
+      TsanHandOff(&kJobStart);  // after `train` exists: the thread running it reads it
+      arena.execute(train);
+      TsanTakeOver(&kJobEnd);
     }
     job->Finish(outcome);
   }

@@ -42,8 +42,12 @@ build="${CHORUS_FUZZ_BUILD_DIR:-$root/build-fuzz}"
 out="${out:-$build/runs}"
 
 command -v clang++-14 >/dev/null || { echo "fuzz.sh: clang++-14 is missing (Debian: clang-14 libfuzzer-14-dev)" >&2; exit 2; }
-CC=clang-14 CXX=clang++-14 cmake -S . -B "$build" -DCMAKE_BUILD_TYPE=Release -DCHORUS_FUZZ=ON \
-  -DCHORUS_BUILD_TESTS=OFF -DCHORUS_BUILD_BENCH=OFF >/dev/null
+# A build directory configured already with CHORUS_FUZZ=ON (setup.sh's build-asan/, which also
+# holds the sanitized test suite) is used as it is; otherwise one with the fuzzers only is made.
+if ! grep -q '^CHORUS_FUZZ:BOOL=ON$' "$build/CMakeCache.txt" 2>/dev/null; then
+  CC=clang-14 CXX=clang++-14 cmake -S . -B "$build" -DCMAKE_BUILD_TYPE=Release -DCHORUS_FUZZ=ON \
+    -DCHORUS_BUILD_TESTS=OFF -DCHORUS_BUILD_BENCH=OFF >/dev/null
+fi
 cmake --build "$build" -j "$(nproc)" --target chorus_fuzzers >/dev/null
 
 # Runs one target; its summary line goes to $out/<target>/summary.

@@ -1,8 +1,9 @@
 #!/usr/bin/env bash
 # One-command set-up for a fresh Debian 12 machine, run as root from anywhere:
 #   scripts/setup.sh demo   install what is missing, build, write the invented demo data, run it
-#   scripts/setup.sh test   the same, then the whole test suite (CTest) and 60 s of fuzzing per
-#                           parser (scripts/fuzz.sh)
+#   scripts/setup.sh test   the same, then the whole test suite (CTest) under the sanitizers,
+#                           60 s of fuzzing per parser (scripts/fuzz.sh) and a 2-minute chaos
+#                           soak (scripts/chaos_soak.py)
 # Idempotent: installed packages are skipped, the build is incremental.
 set -euo pipefail
 mode="${1:-demo}"
@@ -39,13 +40,34 @@ if [ ${#missing[@]} -gt 0 ]; then
 fi
 
 jobs="$(nproc)"
-cmake -S . -B build -DCMAKE_BUILD_TYPE=Release
+# In test mode the plain build holds only the tests that need it (below); the rest of the suite
+# is built and run under the sanitizers.
+cmake -S . -B build -DCMAKE_BUILD_TYPE=Release -DCHORUS_PLAIN_ONLY_TESTS="$([ "$mode" = test ] && echo ON || echo OFF)"
 cmake --build build -j "$jobs"
 
 build/chorus-demo-data data/demo
 build/chorus run configs/demo.yaml --out runs
 
 if [ "$mode" = test ]; then
+  # Every test runs once, in the build where it checks the most (README, "Tests, sanitizers,
+  # fuzzing and the chaos soak"); only the concurrency tests run twice, once per sanitizer.
+  # 1. The plain build: the tests no sanitizer can host (allocation counting replaces malloc) and
+  #    the open-data quality checks (the code paths of smaller tests, on 10-100x their data).
   ctest --test-dir build --output-on-failure -j "$jobs" --timeout 900
-  scripts/fuzz.sh --seconds 60 --jobs "$jobs" --seed 1
+  # 2. AddressSanitizer + UndefinedBehaviorSanitizer (clang): every other test, then the fuzz
+  #    targets, which share this build.
+  CC=clang-14 CXX=clang++-14 cmake -S . -B build-asan -DCMAKE_BUILD_TYPE=Release -DCHORUS_FUZZ=ON \
+    -DCHORUS_BUILD_BENCH=OFF
+  cmake --build build-asan -j "$jobs"
+  ctest --test-dir build-asan --output-on-failure -j "$jobs" --timeout 900
+  CHORUS_FUZZ_BUILD_DIR="$PWD/build-asan" scripts/fuzz.sh --seconds 60 --jobs "$jobs" --seed 1
+  # 3. ThreadSanitizer: the concurrency tests (the job table, the coordinator's service, job slots
+  #    on the oneTBB arena, training steps over threads, workers over gRPC, multi-threaded runs).
+  CC=clang-14 CXX=clang++-14 cmake -S . -B build-tsan -DCMAKE_BUILD_TYPE=Release -DCHORUS_SANITIZE=thread \
+    -DCHORUS_BUILD_BENCH=OFF
+  cmake --build build-tsan -j "$jobs" --target chorus_tests
+  TSAN_OPTIONS="halt_on_error=1 second_deadlock_stack=1 suppressions=$PWD/tests/sanitizers/tsan.supp" \
+    ctest --test-dir build-tsan --output-on-failure -j "$jobs" --timeout 900
+  # 4. The chaos soak, short: one round of 40 jobs under faults, checked against an undisturbed run.
+  python3 scripts/chaos_soak.py --minutes 1 --members 40 --epochs 40 --seed 1 --skip-if-unable
 fi

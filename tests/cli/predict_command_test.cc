@@ -317,9 +317,9 @@ TEST_F(PredictCommandTest, TargetColumnMayBeAbsentButFeatureColumnsMayNot) {
 }
 
 // Each corrupt file is refused by inspect and predict with exit 2, under a 1 GiB address-space
-// limit: a large allocation would fail and exit 1 instead. (Under AddressSanitizer, which
-// reserves terabytes of address space for its shadow memory, the limit is left out; ASan's own
-// allocation-size checks stand in for it.)
+// limit: a large allocation would fail and exit 1 instead. (Sanitizers reserve terabytes of
+// address space for their shadow memory, so there the limit is ASan's instead: any single
+// allocation over 1 GiB fails, as it would under the address-space limit.)
 TEST_F(PredictCommandTest, CorruptBundlesExitTwoWithoutLargeAllocations) {
   const std::string run = Run("corrupt", kClassification);
   const std::string good = ReadTextFile(run + "/bundle.chorus");
@@ -338,7 +338,8 @@ TEST_F(PredictCommandTest, CorruptBundlesExitTwoWithoutLargeAllocations) {
       {"version", version},
       {"absurd", testing::FrameBundlePayload(absurd.SerializeAsString())}};
 #if defined(CHORUS_SANITIZED)
-  const std::string limit;
+  const std::string limit =
+      "ASAN_OPTIONS=\"$ASAN_OPTIONS:max_allocation_size_mb=1024:allocator_may_return_null=1\" ";
 #else
   const std::string limit = "ulimit -v 1048576; ";
 #endif

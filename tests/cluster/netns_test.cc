@@ -18,6 +18,7 @@
 #include "tests/testing/process.h"
 #include "tests/testing/run_dir.h"
 #include "tests/testing/reference.h"
+#include "tests/testing/sanitizer.h"
 
 namespace chorus {
 namespace {
@@ -145,15 +146,17 @@ class NetnsTest : public ::testing::Test {
     if (!HasFailure()) fs::remove_all(dir_);
   }
 
-  // Two members of ~3 s each (a holdout and no early stopping, so there are no fold jobs and
-  // each job runs all its epochs), listening on `listen` with a one-second lease.
+  // Two members of ~3 s each in any build (epochs divided by the sanitizer slowdown; a holdout
+  // and no early stopping, so there are no fold jobs and each job runs all its epochs),
+  // listening on `listen` with a one-second lease.
   std::string WriteConfig(const std::string& listen) {
     const std::string path = dir_ + "/netns.yaml";
     testing::WriteTextFile(path, "run: {name: netns, seed: 5}\n"
         "data: {train: data/alarms_train.csv, test: data/alarms_test.csv, target: cause,\n"
         "       categorical: [station], validation: {fraction: 0.2}}\n"
         "model: {hidden: [48, 48]}\n"
-        "train: {epochs: 3000, batch_size: 32, early_stopping: {mode: off}}\n"
+        "train: {epochs: " + std::to_string(3000 / testing::kSanitizerSlowdown) +
+        ", batch_size: 32, early_stopping: {mode: off}}\n"
         "ensemble: {members: 2}\n"
         "cluster: {local_workers: 0, listen: \"" + listen + "\", token_file: " + dir_ +
         "/token, lease_seconds: 1}\n");

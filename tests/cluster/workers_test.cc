@@ -14,6 +14,7 @@
 #include "tests/testing/process.h"
 #include "tests/testing/run_dir.h"
 #include "tests/testing/reference.h"
+#include "tests/testing/sanitizer.h"
 
 namespace chorus {
 namespace {
@@ -27,6 +28,11 @@ using testing::ReadEvents;
 using testing::RunDirUnder;
 using testing::WaitFor;
 using testing::WaitForCoordinator;
+
+// Epochs of jobs that must still be running when a worker or the coordinator is killed: divided
+// by the build's slowdown, so that they last about as long under a sanitizer.
+constexpr int kKillWorkerEpochs = 3000 / testing::kSanitizerSlowdown;
+constexpr int kResumeEpochs = 600 / testing::kSanitizerSlowdown;
 
 class WorkersTest : public ::testing::Test {
  protected:
@@ -43,12 +49,12 @@ class WorkersTest : public ::testing::Test {
   // A classification config; `epochs` sets how long each job takes, `cluster` is YAML for the
   // cluster section's contents. Minibatches are cut into two parts, so that every comparison also
   // checks that parts computed on whatever threads a worker has give the in-process bits. Short
-  // runs keep the small-data defaults (cross-fitting, early stopping); long ones (100 epochs or
+  // runs keep the small-data defaults (cross-fitting, early stopping); long ones (50 epochs or
   // more, for killing a worker or coordinator mid-job) use a holdout and no early stopping, so
   // that each of their few jobs really takes that long.
   std::string WriteConfig(const std::string& name, int members, int epochs, const std::string& cluster) {
     const std::string path = dir_ + "/" + name + ".yaml";
-    const bool long_jobs = epochs >= 100;
+    const bool long_jobs = epochs >= 50;
     testing::WriteTextFile(path, "run: {name: " + name + ", seed: 5}\n"
         "data: {train: data/alarms_train.csv, test: data/alarms_test.csv, target: cause,\n"
         "       categorical: [station]" + (long_jobs ? ", validation: {fraction: 0.2}" : "") + "}\n"
@@ -105,7 +111,7 @@ TEST_F(WorkersTest, ResultsAreBitIdenticalWithOneTwoThreeWorkersAndInProcess) {
 }
 
 TEST_F(WorkersTest, KilledWorkersJobIsLeasedAgainAndTheRunCompletesIdentically) {
-  const std::string cfg = WriteConfig("kill-worker", 2, 3000,
+  const std::string cfg = WriteConfig("kill-worker", 2, kKillWorkerEpochs,
                                       "local_workers: 0, listen: \"127.0.0.1:0\", lease_seconds: 1");
   const std::string out = dir_ + "/runs";
   BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
@@ -121,11 +127,11 @@ TEST_F(WorkersTest, KilledWorkersJobIsLeasedAgainAndTheRunCompletesIdentically) 
   EXPECT_GE(CountEvents(run, "lease_expired"), 1);
   EXPECT_EQ(CountEvents(run, "member_finished"), 2);
   EXPECT_EQ(rescuer->Wait(30), 0);
-  EXPECT_TRUE(JobResults(run) == InProcessResults("kill-worker-reference", 2, 3000));
+  EXPECT_TRUE(JobResults(run) == InProcessResults("kill-worker-reference", 2, kKillWorkerEpochs));
 }
 
 TEST_F(WorkersTest, KilledCoordinatorResumesWithoutRerunningFinishedJobs) {
-  const std::string cfg = WriteConfig("resume", 4, 600, "local_workers: 1, lease_seconds: 2");
+  const std::string cfg = WriteConfig("resume", 4, kResumeEpochs, "local_workers: 1, lease_seconds: 2");
   const std::string out = dir_ + "/runs";
   {
     BackgroundProcess coordinator(Chorus({"run", cfg, "--out", out}), dir_ + "/coordinator.log");
@@ -147,7 +153,7 @@ TEST_F(WorkersTest, KilledCoordinatorResumesWithoutRerunningFinishedJobs) {
   }
   ASSERT_EQ(finishes.size(), 4u);
   for (const auto& [member, count] : finishes) EXPECT_EQ(count, 1) << "member " << member << " ran twice";
-  EXPECT_TRUE(JobResults(run) == InProcessResults("resume-reference", 4, 600));
+  EXPECT_TRUE(JobResults(run) == InProcessResults("resume-reference", 4, kResumeEpochs));
   EXPECT_TRUE(fs::exists(run + "/report.json"));
 }
 
