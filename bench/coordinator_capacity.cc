@@ -27,6 +27,7 @@
 #include <thread>
 #include <vector>
 
+#include "bench/tiny_run.h"
 #include "coordinator/coordinator_service.h"
 #include "proto/data_codec.h"
 
@@ -37,30 +38,6 @@ using BenchClock = std::chrono::steady_clock;
 
 constexpr char kToken[] = "capacity-bench-token-3f9a51c0";
 constexpr int kJobsPerWorker = 4;
-
-// Two features, two classes, a handful of rows: the data set only has to exist and encode.
-PreparedData TinyData() {
-  PreparedData data;
-  data.feature_names = {"x0", "x1"};
-  data.class_names = {"a", "b"};
-  for (Split* split : {&data.train, &data.validation, &data.test}) {
-    split->x = Matrix::Constant(4, 2, 0.5f);
-    split->labels = {0, 1, 0, 1};
-  }
-  data.hash = "capacity-bench-data";
-  return data;
-}
-
-std::vector<MemberSpec> TinySpecs(int jobs) {
-  std::vector<MemberSpec> specs(static_cast<size_t>(jobs));
-  for (int i = 0; i < jobs; ++i) {
-    specs[i].index = i;
-    specs[i].seed = static_cast<uint64_t>(i);
-    specs[i].model.hidden = {4};
-    specs[i].train.epochs = 1;
-  }
-  return specs;
-}
 
 // What one simulated worker measured inside the timed window.
 struct WorkerStats {
@@ -205,7 +182,7 @@ class BenchCoordinator {
   BenchCoordinator(int jobs, const std::string& scratch)
       : table_(0, INT_MAX, 30.0), dir_(CreateRunDir(scratch)),
         service_(Inputs(), &table_, &dir_) {
-    service_.AddJobs(TinySpecs(jobs));
+    service_.AddJobs(bench::TinySpecs(jobs));
     service_.Close();
     grpc::ServerBuilder builder;
     builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), &port_);
@@ -228,7 +205,7 @@ class BenchCoordinator {
     return std::move(dir).value();
   }
   static DispatchInputs Inputs() {
-    const PreparedData data = TinyData();
+    const PreparedData data = bench::TinyData("capacity-bench-data");
     return {EncodePreparedData(data), data.hash, "capacity-bench-config", 30.0,
             kToken, ServiceLimits{}};
   }

@@ -48,6 +48,7 @@
 #include <thread>
 #include <vector>
 
+#include "bench/tiny_run.h"
 #include "common/sha256.h"
 #include "coordinator/coordinator_service.h"
 #include "proto/data_codec.h"
@@ -63,28 +64,6 @@ constexpr double kReopenSeconds = 1.0;
 constexpr int kOversizedBytes = 5 << 20;
 constexpr int kOversizedPerSecond = 5;
 constexpr int kForgedPerSecond = 100;
-
-PreparedData TinyData() {
-  PreparedData data;
-  data.feature_names = {"x0", "x1"};
-  data.class_names = {"a", "b"};
-  for (Split* split : {&data.train, &data.validation, &data.test}) {
-    split->x = Matrix::Constant(4, 2, 0.5f);
-    split->labels = {0, 1, 0, 1};
-  }
-  data.hash = std::string(64, 'c');
-  return data;
-}
-
-std::vector<MemberSpec> TinySpecs() {
-  std::vector<MemberSpec> specs(kJobs);
-  for (int i = 0; i < kJobs; ++i) {
-    specs[i].index = i;
-    specs[i].model.hidden = {4};
-    specs[i].train.epochs = 1;
-  }
-  return specs;
-}
 
 [[noreturn]] void Die(const std::string& why) {
   std::fprintf(stderr, "chorus-bench-hostile: %s\n", why.c_str());
@@ -358,12 +337,12 @@ int Main(double seconds, double token_rate, int idle_streams, int attack_nice) {
   if (!made.ok()) Die(made.status().ToString());
   RunDirectory dir = std::move(made).value();
   JobTable table(0, INT_MAX, 30.0);
-  const PreparedData data = TinyData();
+  const PreparedData data = bench::TinyData(std::string(64, 'c'));
   HonestStats quiet, attack;
   {
     CoordinatorService service(DispatchInputs{EncodePreparedData(data), data.hash, "hostile-bench-config", 30.0,
                                               kToken, ServiceLimits{}}, &table, &dir);
-    service.AddJobs(TinySpecs());
+    service.AddJobs(bench::TinySpecs(kJobs));
     service.Close();
     int port = 0;
     grpc::ServerBuilder builder;
