@@ -362,7 +362,7 @@ def main():
                                 formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--minutes", type=float, default=60, help="keep starting rounds until then (default 60)")
     p.add_argument("--members", type=int, default=200, help="members (= jobs) per round (default 200)")
-    p.add_argument("--epochs", type=int, default=40, help="epochs per member (default 40)")
+    p.add_argument("--epochs", type=int, default=400, help="epochs per member (default 400)")
     p.add_argument("--workers", type=int, default=4, help="worker processes, one namespaced (default 4)")
     p.add_argument("--seed", type=int, default=None, help="chaos random seed (default: from the clock)")
     p.add_argument("--build", default=os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "build"),
