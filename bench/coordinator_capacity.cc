@@ -27,7 +27,7 @@
 #include <thread>
 #include <vector>
 
-#include "bench/tiny_run.h"
+#include "bench/service_bench.h"
 #include "coordinator/coordinator_service.h"
 #include "proto/data_codec.h"
 
@@ -141,14 +141,6 @@ class FakeWorker {
   std::string id_;
 };
 
-// Nearest-rank percentile (q in [0, 1]) of `v`, which it sorts; 0 for an empty vector.
-double Percentile(std::vector<double>& v, double q) {
-  if (v.empty()) return 0;
-  std::sort(v.begin(), v.end());
-  const size_t rank = static_cast<size_t>(q * static_cast<double>(v.size()) + 0.999999);
-  return v[std::clamp<size_t>(rank, 1, v.size()) - 1];
-}
-
 // Runs `workers` simulated workers against `target` for `seconds`; returns their merged stats.
 WorkerStats Drive(const std::string& target, int workers, double seconds) {
   Window window;
@@ -227,23 +219,14 @@ std::string ScratchDir() {
   return path;
 }
 
-// Other work on the machine skews every figure; the load average says how much there was.
-void PrintMachine() {
-  std::ifstream loadavg("/proc/loadavg");
-  std::string one, five, fifteen;
-  loadavg >> one >> five >> fifteen;
-  std::printf("machine: nproc=%u loadavg=\"%s %s %s\"\n", std::thread::hardware_concurrency(),
-              one.c_str(), five.c_str(), fifteen.c_str());
-}
-
 void PrintReport(int workers, int jobs, double seconds, WorkerStats& s) {
   const double cycles = static_cast<double>(s.cycle_ms.size());
   std::printf("coordinator workers=%d jobs=%d seconds=%.1f cycles=%.0f cycles_per_s=%.0f "
               "rpcs_per_s=%.0f lease_p50_ms=%.2f lease_p99_ms=%.2f cycle_p50_ms=%.2f "
               "cycle_p99_ms=%.2f waits=%lld errors=%lld\n",
               workers, jobs, seconds, cycles, cycles / seconds, s.rpcs / seconds,
-              Percentile(s.lease_ms, 0.5), Percentile(s.lease_ms, 0.99),
-              Percentile(s.cycle_ms, 0.5), Percentile(s.cycle_ms, 0.99),
+              bench::Percentile(s.lease_ms, 0.5), bench::Percentile(s.lease_ms, 0.99),
+              bench::Percentile(s.cycle_ms, 0.5), bench::Percentile(s.cycle_ms, 0.99),
               static_cast<long long>(s.waits), static_cast<long long>(s.errors));
 }
 
@@ -260,7 +243,7 @@ int main(int argc, char** argv) {
   app.add_option("--seconds", seconds, "length of the timed window")
       ->check(CLI::Range(0.1, 3600.0))->capture_default_str();
   CLI11_PARSE(app, argc, argv);
-  chorus::PrintMachine();
+  chorus::bench::PrintMachine();
   const std::string scratch = chorus::ScratchDir();
   const int jobs = workers * chorus::kJobsPerWorker;
   chorus::WorkerStats stats;

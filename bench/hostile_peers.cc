@@ -48,7 +48,7 @@
 #include <thread>
 #include <vector>
 
-#include "bench/tiny_run.h"
+#include "bench/service_bench.h"
 #include "common/sha256.h"
 #include "coordinator/coordinator_service.h"
 #include "proto/data_codec.h"
@@ -258,21 +258,6 @@ HonestStats RunHonest(wire::Coordinator::Stub* stub, const std::string& worker, 
   return stats;
 }
 
-double Percentile(std::vector<double> v, double q) {
-  if (v.empty()) return 0;
-  std::sort(v.begin(), v.end());
-  const size_t rank = static_cast<size_t>(q * static_cast<double>(v.size()) + 0.999999);
-  return v[std::clamp<size_t>(rank, 1, v.size()) - 1];
-}
-
-void PrintMachine() {
-  std::ifstream loadavg("/proc/loadavg");
-  std::string one, five, fifteen;
-  loadavg >> one >> five >> fifteen;
-  std::printf("machine: nproc=%u loadavg=\"%s %s %s\"\n", std::thread::hardware_concurrency(),
-              one.c_str(), five.c_str(), fifteen.c_str());
-}
-
 // Lines of events.jsonl that record a refusal (the honest worker's own job_leased and
 // lease_returned events are not counted).
 int64_t CountRefusalEvents(const std::string& path) {
@@ -330,7 +315,7 @@ pid_t StartAttackers(const std::string& target, double seconds, double token_rat
 }
 
 int Main(double seconds, double token_rate, int idle_streams, int attack_nice) {
-  PrintMachine();
+  bench::PrintMachine();
   std::string scratch = (std::filesystem::temp_directory_path() / "chorus-bench-XXXXXX").string();
   if (mkdtemp(scratch.data()) == nullptr) Die("mkdtemp failed");
   StatusOr<RunDirectory> made = RunDirectory::Create(scratch, "hostile");
@@ -368,8 +353,8 @@ int Main(double seconds, double token_rate, int idle_streams, int attack_nice) {
   }
   const int64_t refusal_events = CountRefusalEvents(dir.File("events.jsonl"));
   std::filesystem::remove_all(scratch);
-  const double q50 = Percentile(quiet.lease_ms, 0.5), q99 = Percentile(quiet.lease_ms, 0.99);
-  const double a50 = Percentile(attack.lease_ms, 0.5), a99 = Percentile(attack.lease_ms, 0.99);
+  const double q50 = bench::Percentile(quiet.lease_ms, 0.5), q99 = bench::Percentile(quiet.lease_ms, 0.99);
+  const double a50 = bench::Percentile(attack.lease_ms, 0.5), a99 = bench::Percentile(attack.lease_ms, 0.99);
   std::printf("hostile phase=quiet leases=%zu lease_p50_ms=%.3f lease_p99_ms=%.3f errors=%lld\n",
               quiet.lease_ms.size(), q50, q99, static_cast<long long>(quiet.errors));
   std::printf("hostile phase=attack leases=%zu lease_p50_ms=%.3f lease_p99_ms=%.3f errors=%lld\n",
