@@ -2,7 +2,7 @@
 # One-command set-up for a fresh Debian 12 machine, run as root from anywhere:
 #   scripts/setup.sh demo   install what is missing, build, write the invented demo data, run it
 #   scripts/setup.sh test   the same, then the whole test suite (CTest) under the sanitizers,
-#                           60 s of fuzzing per parser (scripts/fuzz.sh) and a 2-minute chaos
+#                           20 s of fuzzing per parser (scripts/fuzz.sh) and a 2-minute chaos
 #                           soak (scripts/chaos_soak.py)
 # Idempotent: installed packages are skipped, the build is incremental.
 set -euo pipefail
@@ -60,7 +60,7 @@ if [ "$mode" = test ]; then
     -DCHORUS_BUILD_BENCH=OFF
   cmake --build build-asan -j "$jobs"
   ctest --test-dir build-asan --output-on-failure -j "$jobs" --timeout 900
-  CHORUS_FUZZ_BUILD_DIR="$PWD/build-asan" scripts/fuzz.sh --seconds 60 --jobs "$jobs" --seed 1
+  CHORUS_FUZZ_BUILD_DIR="$PWD/build-asan" scripts/fuzz.sh --seconds 20 --jobs "$jobs" --seed 1
   # 3. ThreadSanitizer: the concurrency tests (the job table, the coordinator's service, job slots
   #    on the oneTBB arena, training steps over threads, workers over gRPC, multi-threaded runs).
   CC=clang-14 CXX=clang++-14 cmake -S . -B build-tsan -DCMAKE_BUILD_TYPE=Release -DCHORUS_SANITIZE=thread \
