@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "common/config.h"
+#include "common/diversity.h"
 #include "common/metrics.h"
 #include "common/reliability.h"
 #include "common/size_curve.h"
@@ -61,6 +62,7 @@ struct EnsembleEvaluation {
   Scores mean_member;            // metric-wise mean over members
   int best_member = 0;           // position in `members` with the lowest validation NLL
   UncertaintySummary uncertainty;
+  DiversitySummary diversity;    // of the test predictions at T = 1 (common/diversity.h)
   // Classification: reliability diagrams of the test mixture at T = 1 and at the tuned T, with
   // report.ece_bins bins. Empty for regression.
   std::vector<ReliabilityBin> reliability_uncalibrated, reliability;

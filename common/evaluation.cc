@@ -78,6 +78,7 @@ void EvaluateClassification(const PreparedData& data, const std::vector<MemberRe
   ScoreClassificationMembers(test, members, y_test, ClassLikelihoods(val, y_val), rep.ece_bins,
                              ev.members);
   ev.uncertainty = ClassificationUncertaintySummary(test, ev.weights, ev.temperature, y_test);
+  ev.diversity = ClassificationDiversitySummary(test);
   ClassificationReliability(test, y_test, rep.ece_bins, ev);
   ev.size_curve = ClassificationSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets,
                                          rep.ece_bins, seed);
@@ -135,6 +136,7 @@ void EvaluateRegression(const PreparedData& data, const std::vector<MemberResult
   }
   ScoreRegressionMembers(test, test_g.points, y_test, GaussianLikelihoods(val, y_val), ev.members);
   RegressionCalibration(test, y_test, ev);
+  ev.diversity = RegressionDiversitySummary(test);
   ev.size_curve = RegressionSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets, seed);
 }
 

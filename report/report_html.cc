@@ -219,6 +219,30 @@ std::string UncertaintyTable(const json& r) {
   return html + "</tbody></table>";
 }
 
+// Diversity between members and between one member's samples (absent in reports written before
+// chorus measured it).
+std::string DiversityTable(const json& r) {
+  if (!r.contains("diversity")) return "";
+  const json& d = r["diversity"];
+  const bool classification = IsClassification(r);
+  std::string html = "<table><thead><tr><th>test predictions</th><th>compared</th>";
+  if (classification) html += "<th>top-1 disagreement</th>";
+  html += "<th>mean KL (nats)</th></tr></thead><tbody>";
+  const std::pair<const char*, const char*> rows[] = {{"between_members", "between members"},
+                                                      {"within_members", "between one member's samples"}};
+  for (const auto& [key, label] : rows) {
+    if (!d.contains(key)) continue;
+    const json& m = d[key];
+    html += "<tr><td>" + std::string(label) + "</td><td>" + m["components"].dump() + "</td>";
+    if (classification) html += "<td>" + Num(m["disagreement"], 4) + "</td>";
+    html += "<td>" + Num(m["mean_kl"], 4) + "</td></tr>";
+  }
+  return html + "</tbody></table><p class=\"note\">Members that agree add little to each other: "
+                "an ensemble gains most where its members disagree. Measured at temperature 1, "
+                "pair by pair; top-1 disagreement is the share of test inputs whose predicted "
+                "class differs.</p>";
+}
+
 std::string UncertaintySection(const json& r) {
   return "<section><h2>Uncertainty</h2><p>" +
          std::string(
@@ -229,7 +253,7 @@ std::string UncertaintySection(const json& r) {
                    "members disagree)."
                  : "Total predictive variance splits into the mean of the members' variances "
                    "(aleatoric) and the variance of their means (epistemic).") +
-         "</p>" + UncertaintyTable(r) + UncertaintyFigures(r) + "</section>";
+         "</p>" + UncertaintyTable(r) + UncertaintyFigures(r) + DiversityTable(r) + "</section>";
 }
 
 std::string CalibrationSection(const json& r) {

@@ -118,6 +118,21 @@ json UncertaintyJson(const EnsembleEvaluation& ev) {
   return out;
 }
 
+json DiversityMeasuresJson(Task task, const DiversityMeasures& d) {
+  json out = {{"components", d.components}, {"pairs", d.pairs}, {"mean_kl", d.mean_kl}};
+  if (task == Task::kClassification) out["disagreement"] = d.disagreement;
+  return out;
+}
+
+json DiversityJson(const EnsembleEvaluation& ev) {
+  json out = {{"unit", "nats (mean KL)"},
+              {"between_members", DiversityMeasuresJson(ev.task, ev.diversity.between_members)}};
+  if (ev.diversity.within_members) {
+    out["within_members"] = DiversityMeasuresJson(ev.task, *ev.diversity.within_members);
+  }
+  return out;
+}
+
 // Adds the task's calibration diagram: reliability bins or interval coverage.
 void AddCalibrationDiagram(const EnsembleEvaluation& ev, json& report) {
   if (ev.task == Task::kClassification) {
@@ -152,6 +167,7 @@ json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const Ru
       {"validation_nll_weighted", ev.validation_nll_weighted},
       {"validation_nll_calibrated", ev.validation_nll_calibrated},
       {"uncertainty", UncertaintyJson(ev)},
+      {"diversity", DiversityJson(ev)},
       {"size_curve", SizeCurveJson(ev.task, ev.size_curve)},
       {"data_hash", facts.data_hash},
       {"config_hash", facts.config_hash},
