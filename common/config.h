@@ -53,6 +53,10 @@ struct DataConfig {
   // small data, else the holdout), 0 = the holdout, 2..50 = that many folds. Not with a file.
   int folds = -1;
   // --- report only ---
+  // Optional second test set of shifted or out-of-distribution inputs (CSV with the training
+  // columns, or IDX images; labels ignored): the report gives how well each uncertainty score
+  // tells its rows from the test rows (coordinator/shift_evaluation.h).
+  std::string shift_test;
   std::string true_probabilities;  // optional csv of the test set's true class probabilities
                                    // (header = class names, one row per test row); lets the
                                    // report show the Bayes-optimal test NLL (invented data only)

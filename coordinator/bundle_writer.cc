@@ -3,7 +3,6 @@
 #include "proto/bundle_codec.h"
 
 namespace chorus {
-namespace {
 
 Preprocessing RunPreprocessing(const DataConfig& config, const PreparedData& data) {
   Preprocessing p;
@@ -15,6 +14,8 @@ Preprocessing RunPreprocessing(const DataConfig& config, const PreparedData& dat
   p.target_scale = data.target_scale;
   return p;
 }
+
+namespace {
 
 BundleMember RunMember(const MemberResult& r, double weight) {
   BundleMember m;

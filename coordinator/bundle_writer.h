@@ -15,6 +15,9 @@
 
 namespace chorus {
 
+// How the run turned raw inputs into features, as a bundle stores it.
+Preprocessing RunPreprocessing(const DataConfig& config, const PreparedData& data);
+
 // Requires: `members` are the members `ev` was assembled from, in the same order (ev.weights has
 // one entry per member), trained on `data` with `config`.
 Bundle MakeRunBundle(const Config& config, const PreparedData& data,

@@ -181,7 +181,7 @@ Status LoadValidation(const Section& data, DataConfig* d) {
 Status LoadData(const Section& s, const std::string& base, DataConfig* d) {
   CHORUS_RETURN_IF_ERROR(s.Check({"format", "train", "test", "validation", "target", "task",
                                   "categorical", "max_train_rows", "max_test_rows",
-                                  "small_data_rows", "true_probabilities"}));
+                                  "small_data_rows", "shift_test", "true_probabilities"}));
   CHORUS_RETURN_IF_ERROR(s.GetString("format", &d->format));
   if (d->format != "csv" && d->format != "idx") {
     return s.Error(s.Node("format"), s.Path("format"), "expected one of csv, idx, found \"" + d->format + "\"");
@@ -205,8 +205,9 @@ Status LoadData(const Section& s, const std::string& base, DataConfig* d) {
   CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("max_train_rows", &d->max_train_rows, "a row count", 0, INT64_MAX));
   CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("max_test_rows", &d->max_test_rows, "a row count", 0, INT64_MAX));
   CHORUS_RETURN_IF_ERROR(s.Get<int64_t>("small_data_rows", &d->small_data_rows, "a row count", 0, INT64_MAX));
+  CHORUS_RETURN_IF_ERROR(s.GetString("shift_test", &d->shift_test));
   CHORUS_RETURN_IF_ERROR(s.GetString("true_probabilities", &d->true_probabilities));
-  for (std::string* p : {&d->train, &d->test, &d->validation_file, &d->true_probabilities,
+  for (std::string* p : {&d->train, &d->test, &d->validation_file, &d->shift_test, &d->true_probabilities,
                          &d->train_idx.images, &d->train_idx.labels, &d->test_idx.images,
                          &d->test_idx.labels, &d->validation_idx.images, &d->validation_idx.labels}) {
     *p = Resolve(base, *p);
@@ -446,6 +447,7 @@ void EmitData(YAML::Emitter& out, const DataConfig& d) {
   out << YAML::Key << "max_train_rows" << YAML::Value << d.max_train_rows;
   out << YAML::Key << "max_test_rows" << YAML::Value << d.max_test_rows;
   out << YAML::Key << "small_data_rows" << YAML::Value << d.small_data_rows;
+  if (!d.shift_test.empty()) out << YAML::Key << "shift_test" << YAML::Value << d.shift_test;
   if (!d.true_probabilities.empty()) {
     out << YAML::Key << "true_probabilities" << YAML::Value << d.true_probabilities;
   }

@@ -35,6 +35,7 @@ StatusOr<DataConfig> GuardDataConfig(DataConfig data, const GuardSource& source)
   }
   data.max_test_rows = 0;
   data.true_probabilities.clear();
+  data.shift_test.clear();
   return data;
 }
 

@@ -23,6 +23,7 @@
 #include "common/folds.h"
 #include "coordinator/job_runner.h"
 #include "coordinator/run_stages.h"
+#include "coordinator/shift_evaluation.h"
 #include "coordinator/training_facts.h"
 #include "coordinator/config_loader.h"
 #include "coordinator/report_files.h"
@@ -39,6 +40,7 @@ struct Inputs {
   Config config;
   PreparedData data;
   std::optional<Matrix> true_probabilities;
+  std::optional<Matrix> shifted;  // data.shift_test's rows, standardised
   std::string config_hash;
 };
 
@@ -53,6 +55,9 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
   if (!in.config.data.true_probabilities.empty()) {
     CHORUS_ASSIGN_OR_RETURN(in.true_probabilities,
                             LoadTrueProbabilities(in.config.data.true_probabilities, in.data));
+  }
+  if (!in.config.data.shift_test.empty()) {
+    CHORUS_ASSIGN_OR_RETURN(in.shifted, LoadShiftedRows(in.config.data, in.data));
   }
   in.config_hash = ConfigHash(in.config);
   return in;
@@ -168,6 +173,7 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
                                                        assembled.ensemble.tune_temperature, in.config.report.ece_bins);
   json report = ReportJson(ev, in.data, facts);
   report["baseline"] = BaselineJson(ev, baseline);
+  if (in.shifted) report["shift"] = ShiftJson(EvaluateShift(assembled, in.data, members, ev, *in.shifted));
   AddTrainingFacts(assembled, in.data, trained, report);
   // The manifest first: the report copies it (workers, version) into report.json and the page.
   Status st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds, workers).dump(2));

@@ -256,6 +256,41 @@ std::string UncertaintySection(const json& r) {
          "</p>" + UncertaintyTable(r) + UncertaintyFigures(r) + DiversityTable(r) + "</section>";
 }
 
+// The shifted test set (data.shift_test), when the run had one.
+std::string ShiftSection(const json& r) {
+  if (!r.contains("shift")) return "";
+  const json& s = r["shift"];
+  const bool classification = IsClassification(r);
+  const std::vector<std::pair<const char*, const char*>> scores =
+      classification ? std::vector<std::pair<const char*, const char*>>{{"entropy", "entropy"},
+                                                                         {"mutual_information", "mutual information"},
+                                                                         {"max_probability", "1 - max probability"}}
+                     : std::vector<std::pair<const char*, const char*>>{{"total_std", "total std"},
+                                                                         {"epistemic_std", "epistemic std"}};
+  std::string html =
+      "<section><h2>Shifted inputs</h2><p>How well each predictive's uncertainty tells the " +
+      s["rows"].dump() + " rows of <code>" + EscapeHtml(s.value("file", "")) + "</code> from the " +
+      s["test_rows"].dump() +
+      " test rows: the AUROC of each score, shifted rows counting as positives (0.5 = chance, 1 = "
+      "every shifted row is more uncertain than every test row).</p><table><thead><tr>"
+      "<th>predictive</th><th>networks</th>";
+  for (const auto& [key, label] : scores) html += "<th>" + std::string(label) + "</th>";
+  html += std::string("<th>mean ") + (classification ? "entropy" : "total std") +
+          ", test / shifted</th></tr></thead><tbody>";
+  for (const json& p : s["predictives"]) {
+    html += "<tr><td>" + EscapeHtml(p["predictive"]) + "</td><td>" + p["components"].dump() + "</td>";
+    for (const auto& [key, label] : scores) {
+      html += "<td>" + (p["auroc"].contains(key) ? Num(p["auroc"][key], 3) : std::string("n/a")) + "</td>";
+    }
+    html += "<td>" + Num(p["mean_score_test"], 3) + " / " + Num(p["mean_score_shifted"], 3) + "</td></tr>";
+  }
+  return html +
+         "</tbody></table><p class=\"note\">A network can be confidently wrong far from its "
+         "training data (ReLU networks grow more confident the further an input lies from it), so a "
+         "high AUROC here holds only for this kind of shift: check the shifts you expect in use. "
+         "Mutual information needs more than one network.</p></section>";
+}
+
 std::string CalibrationSection(const json& r) {
   return "<section><h2>Calibration</h2><p>" +
          std::string(IsClassification(r)
@@ -279,7 +314,7 @@ std::string SizeSection(const json& r) {
 std::string ReportHtml(const json& report) {
   return Head(report) + Header(report) + Caution(report) + KeyFigures(report) +
          TestSection(report) + SizeSection(report) + CalibrationSection(report) +
-         UncertaintySection(report) + MembersSection(report) + TrainingSectionHtml(report) +
+         UncertaintySection(report) + ShiftSection(report) + MembersSection(report) + TrainingSectionHtml(report) +
          FactsSection(report) +
          "<footer>Written by chorus from report.json alone: one self-contained file, no scripts, "
          "nothing loaded from the network.</footer></main></body></html>\n";

@@ -1,5 +1,6 @@
 #include "report/report_model.h"
 
+#include <cmath>
 #include <filesystem>
 #include <iomanip>
 #include <sstream>
@@ -146,6 +147,32 @@ void AddCalibrationDiagram(const EnsembleEvaluation& ev, json& report) {
 }
 
 }  // namespace
+
+json ShiftJson(const ShiftEvaluation& shift) {
+  json predictives = json::array();
+  for (const ShiftDetection& d : shift.predictives) {
+    json auroc = json::object();
+    const std::pair<const char*, double> scores[] = {{"entropy", d.aurocs.entropy},
+                                                     {"mutual_information", d.aurocs.mutual_information},
+                                                     {"max_probability", d.aurocs.max_probability},
+                                                     {"total_std", d.aurocs.total_std},
+                                                     {"epistemic_std", d.aurocs.epistemic_std}};
+    for (const auto& [name, value] : scores) {
+      if (!std::isnan(value)) auroc[name] = value;
+    }
+    predictives.push_back({{"predictive", d.predictive},
+                           {"components", d.components},
+                           {"temperature", d.temperature},
+                           {"auroc", auroc},
+                           {"mean_score_test", d.aurocs.mean_score_test},
+                           {"mean_score_shifted", d.aurocs.mean_score_shifted}});
+  }
+  return {{"file", shift.file},
+          {"rows", shift.rows},
+          {"test_rows", shift.test_rows},
+          {"positives", "shifted rows"},
+          {"predictives", predictives}};
+}
 
 json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data, const RunFacts& facts) {
   const MemberScores& best = ev.members[ev.best_member];

@@ -12,6 +12,7 @@
 
 #include "common/baseline_evaluation.h"
 #include "common/ensemble_evaluation.h"
+#include "common/shift_detection.h"
 #include "common/prepared_data.h"
 #include "common/status.h"
 
@@ -41,6 +42,10 @@ nlohmann::json ReportJson(const EnsembleEvaluation& ev, const PreparedData& data
 // temperature, its validation NLL beside the ensemble's (each at its tuned temperature),
 // `better_on_validation`, the verdict sentence and the fitted hyperparameters; or `skipped`.
 nlohmann::json BaselineJson(const EnsembleEvaluation& ev, const BaselineEvaluation& baseline);
+
+// report["shift"]: per predictive, the AUROC of each uncertainty score for telling the shifted
+// rows from the test rows (NaN scores, which do not apply, are left out) and the mean scores.
+nlohmann::json ShiftJson(const ShiftEvaluation& shift);
 
 // The warning the closing table and report.json carry when the tuned temperature (or scale)
 // ended at an end of its search range (common/assembly.h AtTuningRangeEnd).

@@ -7,6 +7,10 @@
 //   alarms_train.csv, alarms_test.csv        classification: target column "cause"
 //   alarms_test_probabilities.csv            the true P(cause | features) of each test row
 //   faults_train.csv, faults_test.csv        regression: target column "hours_to_fault"
+//   alarms_shifted.csv                       shifted inputs for data.shift_test: alarms exported
+//                                            by a (fictional) faulty firmware that wrote the six
+//                                            readings one column to the right, the last one first,
+//                                            under the usual header; no cause column
 #include <CLI/CLI.hpp>
 
 #include <array>
@@ -85,12 +89,24 @@ std::string FeatureCells(const Alarm& a) {
   return buf;
 }
 
+// The same readings as a faulty export writes them: each value one column to the right of its
+// name (days since service under vibration, vibration under motor temperature, ...).
+std::string ShiftedFeatureCells(const Alarm& a) {
+  char buf[256];
+  std::snprintf(buf, sizeof buf, "%s,%.0f,%.3f,%.2f,%.3f,%.2f,%.2f", kStations[a.station],
+                std::max(0.0, std::round(120 + 45 * a.days)), std::exp(1.2 + 0.45 * a.vib),
+                58 + 9 * a.temp, 4.2 + 0.6 * a.pressure, 85 + 14 * a.flow, 42 + 6 * a.current);
+  return buf;
+}
+
 const char* kFeatureHeader =
     "station,vibration_mm_s,motor_temp_c,discharge_bar,flow_l_s,current_a,days_since_service";
 
 struct Files {
-  std::string alarms, faults, probs;
+  std::string alarms, faults, probs, shifted;
 };
+
+constexpr int kShiftedRows = 500;
 
 Files Render(chorus::Philox& rng, int rows) {
   Files f;
@@ -98,12 +114,14 @@ Files Render(chorus::Philox& rng, int rows) {
   f.faults = std::string(kFeatureHeader) + ",hours_to_fault\n";
   for (size_t k = 0; k < kCauses.size(); ++k) f.probs += std::string(k ? "," : "") + kCauses[k];
   f.probs += "\n";
+  f.shifted = std::string(kFeatureHeader) + "\n";
   for (int i = 0; i < rows; ++i) {
     const Alarm a = Draw(rng);
     f.alarms += FeatureCells(a) + "," + kCauses[a.cause] + "\n";
     char hours[32];
     std::snprintf(hours, sizeof hours, ",%.1f\n", a.hours);
     f.faults += FeatureCells(a) + hours;
+    if (i < kShiftedRows) f.shifted += ShiftedFeatureCells(a) + "\n";
     for (size_t k = 0; k < kCauses.size(); ++k) {
       char p[32];
       std::snprintf(p, sizeof p, "%s%.17g", k ? "," : "", a.probs[k]);
@@ -137,7 +155,7 @@ int main(int argc, char** argv) {
   const std::vector<std::pair<std::string, const std::string*>> outputs = {
       {"alarms_train.csv", &train.alarms}, {"alarms_test.csv", &test.alarms},
       {"alarms_test_probabilities.csv", &test.probs}, {"faults_train.csv", &train.faults},
-      {"faults_test.csv", &test.faults}};
+      {"faults_test.csv", &test.faults}, {"alarms_shifted.csv", &test.shifted}};
   for (const auto& [name, text] : outputs) {
     if (st.ok()) st = chorus::WriteFileAtomic(out_dir + "/" + name, *text);
   }
