@@ -69,11 +69,128 @@ BasinFit FitBasin(SnapshotMoments&& moments, BasinMethod method) {
   return fit;
 }
 
+namespace {
+
+Matrix ToFloat(const MatrixD& m) { return m.cast<float>(); }
+
+std::vector<float> ToFloat(const Eigen::VectorXd& v) {
+  std::vector<float> out(v.size());
+  for (Eigen::Index i = 0; i < v.size(); ++i) out[i] = static_cast<float>(v[i]);
+  return out;
+}
+
+Eigen::VectorXd ToDouble(const std::vector<float>& v) {
+  Eigen::VectorXd out(v.size());
+  for (size_t i = 0; i < v.size(); ++i) out[i] = v[i];
+  return out;
+}
+
+bool Finite(const float* v, int64_t n) {
+  return std::all_of(v, v + n, [](float x) { return std::isfinite(x); });
+}
+
+bool NonNegative(const std::vector<float>& v) {
+  return std::all_of(v.begin(), v.end(), [](float x) { return std::isfinite(x) && x >= 0; });
+}
+
+bool Square(const Matrix& m, int64_t n) { return m.rows() == n && m.cols() == n; }
+
+}  // namespace
+
+const char* LaplaceFormName(LaplaceForm form) {
+  return form == LaplaceForm::kFull ? "full" : "kronecker";
+}
+
+std::optional<LaplaceForm> ParseLaplaceForm(const std::string& name) {
+  if (name == "full") return LaplaceForm::kFull;
+  if (name == "kronecker") return LaplaceForm::kKronecker;
+  return std::nullopt;
+}
+
+BasinFit LaplaceBasinFit(const LastLayerLaplace& laplace, std::vector<float> params) {
+  BasinFit fit;
+  fit.method = BasinMethod::kLaplaceLastLayer;
+  fit.mean = std::move(params);
+  LaplaceFactors& f = fit.laplace;
+  f.form = laplace.form;
+  f.outputs = static_cast<int>(laplace.theta_map.cols());
+  f.prior_precision = laplace.prior_precision;
+  if (laplace.form == LaplaceForm::kFull) {
+    f.eigenvectors = ToFloat(laplace.eigenvectors);
+    f.eigenvalues = ToFloat(laplace.eigenvalues);
+  } else {
+    f.eigenvectors = ToFloat(laplace.feature_eigenvectors);
+    f.eigenvalues = ToFloat(laplace.feature_eigenvalues);
+    f.output_eigenvectors = ToFloat(laplace.output_eigenvectors);
+    f.output_eigenvalues = ToFloat(laplace.output_eigenvalues);
+  }
+  return fit;
+}
+
+LastLayerLaplace ToLastLayerLaplace(const BasinFit& fit) {
+  const LaplaceFactors& f = fit.laplace;
+  LastLayerLaplace l;
+  l.form = f.form;
+  l.task = f.outputs == 2 ? Task::kRegression : Task::kClassification;  // unused by sampling
+  l.prior_precision = f.prior_precision;
+  const int64_t p = f.form == LaplaceForm::kFull ? f.eigenvectors.rows()
+                                                 : f.eigenvectors.rows() * f.outputs;
+  l.theta_map.resize(p / f.outputs, f.outputs);
+  const float* last = fit.mean.data() + (fit.mean.size() - static_cast<size_t>(p));
+  for (int64_t i = 0; i < p; ++i) l.theta_map.data()[i] = last[i];
+  if (f.form == LaplaceForm::kFull) {
+    l.eigenvectors = f.eigenvectors.cast<double>();
+    l.eigenvalues = ToDouble(f.eigenvalues);
+  } else {
+    l.feature_eigenvectors = f.eigenvectors.cast<double>();
+    l.feature_eigenvalues = ToDouble(f.eigenvalues);
+    l.output_eigenvectors = f.output_eigenvectors.cast<double>();
+    l.output_eigenvalues = ToDouble(f.output_eigenvalues);
+  }
+  return l;
+}
+
+Status CheckLaplaceFactors(const BasinFit& fit, const std::string& where) {
+  const LaplaceFactors& f = fit.laplace;
+  const int64_t n = f.eigenvectors.rows(), k = f.outputs;
+  const bool full = f.form == LaplaceForm::kFull;
+  const int64_t p = full ? n : n * k;
+  const bool shapes = k >= 2 && n >= 1 && Square(f.eigenvectors, n) &&
+                      static_cast<int64_t>(f.eigenvalues.size()) == n &&
+                      (full ? n % k == 0 && f.output_eigenvectors.size() == 0 && f.output_eigenvalues.empty()
+                            : Square(f.output_eigenvectors, k) &&
+                                  static_cast<int64_t>(f.output_eigenvalues.size()) == k) &&
+                      p <= static_cast<int64_t>(fit.mean.size()) && fit.variance.empty() &&
+                      fit.deviations.size() == 0;
+  if (!shapes) {
+    return Status::InvalidInput(where + ": laplace fit: eigenvectors " + std::to_string(n) + " x " +
+                                std::to_string(f.eigenvectors.cols()) + " with " +
+                                std::to_string(f.eigenvalues.size()) + " eigenvalues for " +
+                                std::to_string(k) + " outputs do not describe the last layer of " +
+                                std::to_string(fit.mean.size()) + " parameters");
+  }
+  const bool values = Finite(fit.mean.data(), static_cast<int64_t>(fit.mean.size())) &&
+                      Finite(f.eigenvectors.data(), f.eigenvectors.size()) &&
+                      Finite(f.output_eigenvectors.data(), f.output_eigenvectors.size()) &&
+                      NonNegative(f.eigenvalues) && NonNegative(f.output_eigenvalues) &&
+                      std::isfinite(f.prior_precision) && f.prior_precision > 0;
+  if (!values) {
+    return Status::InvalidInput(where + ": laplace fit: expected finite values, eigenvalues >= 0 "
+                                "and a prior precision > 0");
+  }
+  return Status::Ok();
+}
+
 void DrawBasinSample(const BasinFit& fit, uint64_t seed, double scale, float* out) {
   assert(scale > 0);
   const size_t dim = fit.mean.size();
   if (fit.method == BasinMethod::kNone) {
     std::copy(fit.mean.begin(), fit.mean.end(), out);
+    return;
+  }
+  if (fit.method == BasinMethod::kLaplaceLastLayer) {
+    DrawLastLayerSample(ToLastLayerLaplace(fit), fit.mean.data(), static_cast<int64_t>(dim), seed,
+                        scale, out);
     return;
   }
   assert(fit.variance.size() == dim);

@@ -103,6 +103,24 @@ Status CheckPreprocessing(const Bundle& b, const std::string& source) {
   return Status::Ok();
 }
 
+// A last-layer Laplace fit: the trained point and factors describing exactly the last layer of
+// `widths` (last_layer weights).
+Status CheckLaplaceFit(const BasinFit& fit, int64_t parameters, int64_t last_layer, const std::string& where) {
+  if (static_cast<int64_t>(fit.mean.size()) != parameters) {
+    return Status::InvalidInput(where + ": laplace fit: expected " + Text(parameters) +
+                                " parameters, found " + Text(fit.mean.size()));
+  }
+  CHORUS_RETURN_IF_ERROR(CheckLaplaceFactors(fit, where));
+  const LaplaceFactors& f = fit.laplace;
+  const int64_t covered = f.form == LaplaceForm::kFull ? f.eigenvectors.rows()
+                                                       : f.eigenvectors.rows() * f.outputs;
+  if (covered != last_layer) {
+    return Status::InvalidInput(where + ": laplace fit covers " + Text(covered) +
+                                " weights, the last layer has " + Text(last_layer));
+  }
+  return Status::Ok();
+}
+
 Status CheckFit(const BasinFit& fit, int64_t parameters, const std::string& where) {
   const size_t n = static_cast<size_t>(parameters);
   if (fit.mean.size() != n || fit.variance.size() != n) {
@@ -128,7 +146,7 @@ Status CheckFit(const BasinFit& fit, int64_t parameters, const std::string& wher
   return Status::Ok();
 }
 
-Status CheckMember(const BundleMember& m, int64_t parameters, const std::string& source) {
+Status CheckMember(const BundleMember& m, int64_t parameters, int64_t last_layer, const std::string& source) {
   const std::string where = source + ": member " + Text(m.index);
   if (!std::isfinite(m.weight) || m.weight < 0) {
     return Status::InvalidInput(where + ": expected a weight >= 0, found " +
@@ -138,6 +156,9 @@ Status CheckMember(const BundleMember& m, int64_t parameters, const std::string&
     if (m.sample_seeds.empty() || static_cast<int64_t>(m.sample_seeds.size()) > kMaxBundleSamples) {
       return Status::InvalidInput(where + ": expected 1 to " + Text(kMaxBundleSamples) +
                                   " sample seeds, found " + Text(m.sample_seeds.size()));
+    }
+    if (m.basin.method == BasinMethod::kLaplaceLastLayer) {
+      return CheckLaplaceFit(m.basin, parameters, last_layer, where);
     }
     return CheckFit(m.basin, parameters, where);
   }
@@ -162,9 +183,10 @@ Status CheckEnsemble(const Bundle& b, const std::string& source) {
     return Status::InvalidInput(source + ": expected a positive temperature and basin scale");
   }
   const int64_t parameters = BundleParameterCount(b.widths);
+  const int64_t last_layer = BundleParameterCount({b.widths[b.widths.size() - 2], b.widths.back()});
   double sum = 0;
   for (const BundleMember& m : b.members) {
-    CHORUS_RETURN_IF_ERROR(CheckMember(m, parameters, source));
+    CHORUS_RETURN_IF_ERROR(CheckMember(m, parameters, last_layer, source));
     sum += m.weight;
   }
   if (std::abs(sum - 1.0) > kWeightSumTolerance) {

@@ -36,6 +36,16 @@ const char* BasinMethodName(BasinMethod m) {
     case BasinMethod::kNone: return "none";
     case BasinMethod::kGaussianDiag: return "gaussian_diag";
     case BasinMethod::kGaussianLowRank: return "gaussian_lowrank";
+    case BasinMethod::kLaplaceLastLayer: return "laplace_last_layer";
+  }
+  return "?";
+}
+
+const char* LaplaceHessianName(LaplaceHessian h) {
+  switch (h) {
+    case LaplaceHessian::kAuto: return "auto";
+    case LaplaceHessian::kFull: return "full";
+    case LaplaceHessian::kKronecker: return "kronecker";
   }
   return "?";
 }
@@ -80,6 +90,14 @@ std::optional<BasinMethod> ParseBasinMethod(const std::string& s) {
   if (s == "none") return BasinMethod::kNone;
   if (s == "gaussian_diag") return BasinMethod::kGaussianDiag;
   if (s == "gaussian_lowrank") return BasinMethod::kGaussianLowRank;
+  if (s == "laplace_last_layer") return BasinMethod::kLaplaceLastLayer;
+  return std::nullopt;
+}
+
+std::optional<LaplaceHessian> ParseLaplaceHessian(const std::string& s) {
+  for (LaplaceHessian h : {LaplaceHessian::kAuto, LaplaceHessian::kFull, LaplaceHessian::kKronecker}) {
+    if (s == LaplaceHessianName(h)) return h;
+  }
   return std::nullopt;
 }
 

@@ -15,7 +15,10 @@ enum class Task { kClassification, kRegression };
 enum class Activation { kRelu, kTanh, kGelu };
 enum class ScheduleKind { kConstant, kCosine, kStep };
 enum class Weighting { kUniform, kStacking, kGreedy };
-enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank };
+enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank, kLaplaceLastLayer };
+// The last-layer Laplace curvature (common/last_layer_laplace.h): the exact matrix, its
+// Kronecker factorisation, or auto (exact up to kMaxExactLaplaceParameters last-layer weights).
+enum class LaplaceHessian { kAuto, kFull, kKronecker };
 // A setting that is on, off, or decided by the data's size (DataConfig::small_data_rows).
 enum class Switch { kAuto, kOn, kOff };
 
@@ -108,8 +111,10 @@ struct TrainConfig {
 // Basin fits (ensemble.basin): after normal training, SGD continues at the constant rate `lr` for
 // `epochs`, taking `snapshots` evenly spaced snapshots of the weights, from which a Gaussian is fitted
 // (common/basin_fit.h) and `samples` weight vectors are drawn, from seeds derived from the member's.
+// laplace_last_layer instead fits a Gaussian over the last layer's weights from the curvature of
+// the training loss at the trained point (no extra epochs; epochs, lr, snapshots and rank unused).
 struct BasinConfig {
-  BasinMethod method = BasinMethod::kNone;  // none | gaussian_diag | gaussian_lowrank
+  BasinMethod method = BasinMethod::kNone;  // none | gaussian_diag | gaussian_lowrank | laplace_last_layer
   int epochs = 5;               // extra epochs at the constant rate, >= 1
   double lr = 0.01;             // the constant rate, > 0
   int snapshots = 20;           // snapshots over those epochs, >= 2
@@ -118,7 +123,16 @@ struct BasinConfig {
   double scale = 1.0;           // multiplies the fitted covariance, > 0
   bool tune_scale = false;      // "scale: tune": pick the scale on validation from a fixed grid
                                 // (common/basin_scale.h); workers then sample at 1
+  // laplace_last_layer only:
+  LaplaceHessian hessian = LaplaceHessian::kAuto;  // auto | full | kronecker
+  // Precision of the Gaussian prior N(0, I / p) on the last layer's weights; 0 = "tune": each job
+  // picks it on its validation rows (common/last_layer_laplace.h TunePriorPrecision). >= 0.
+  double prior_precision = 0;
 };
+
+// laplace_last_layer with hessian auto: the exact curvature up to this many last-layer weights
+// (its eigenvectors take 8 bytes x this squared: 8 MiB), the Kronecker factors above.
+constexpr int64_t kMaxExactLaplaceParameters = 1024;
 
 struct EnsembleConfig {
   int members = 5;              // independently seeded trainings, >= 1
@@ -186,12 +200,14 @@ const char* ActivationName(Activation a);
 const char* ScheduleName(ScheduleKind s);
 const char* WeightingName(Weighting w);
 const char* BasinMethodName(BasinMethod m);
+const char* LaplaceHessianName(LaplaceHessian h);
 const char* SwitchName(Switch s);
 std::optional<Task> ParseTask(const std::string& s);
 std::optional<Activation> ParseActivation(const std::string& s);
 std::optional<ScheduleKind> ParseSchedule(const std::string& s);
 std::optional<Weighting> ParseWeighting(const std::string& s);
 std::optional<BasinMethod> ParseBasinMethod(const std::string& s);
+std::optional<LaplaceHessian> ParseLaplaceHessian(const std::string& s);
 std::optional<Switch> ParseSwitch(const std::string& s);
 
 }  // namespace chorus

@@ -87,6 +87,8 @@ class SgdRun {
   }
 
   int64_t StepsPerEpoch() const { return (static_cast<int64_t>(rows_.size()) + batch_ - 1) / batch_; }
+  // The rows of the training split this run trains on, ascending.
+  const std::vector<int64_t>& rows() const { return rows_; }
   const Mlp& net() const { return net_; }
   std::vector<float>& params() { return params_; }
   // Continues from `params` (an earlier epoch's), with the momentum zeroed.
@@ -201,6 +203,42 @@ Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& prog
   return Status::Ok();
 }
 
+// The last-layer Laplace fit at the trained point, from the curvature of the loss over the job's
+// training rows; the prior precision as configured, or tuned on the job's validation rows.
+Status FitLaplace(const MemberSpec& spec, SgdRun& run, const PreparedData& data,
+                  const Split& validation, MemberResult& result) {
+  const Mlp& net = run.net();
+  const float* params = run.params().data();
+  const bool all_rows = static_cast<int64_t>(run.rows().size()) == data.train.rows();
+  const Split subset = all_rows ? Split{} : SelectRows(data.train, run.rows());
+  CHORUS_ASSIGN_OR_RETURN(const Matrix features,
+                          LastHiddenFeatures(net, params, all_rows ? data.train.x : subset.x));
+  const MatrixD theta = LastLayerWeights(net, params);
+  const int64_t last_layer = theta.size();
+  const LaplaceHessian h = spec.basin.hessian;
+  const LaplaceForm form = h == LaplaceHessian::kFull ||
+                                   (h == LaplaceHessian::kAuto && last_layer <= kMaxExactLaplaceParameters)
+                               ? LaplaceForm::kFull
+                               : LaplaceForm::kKronecker;
+  const bool tune = spec.basin.prior_precision == 0;
+  CHORUS_ASSIGN_OR_RETURN(LastLayerLaplace laplace,
+                          FitLastLayerLaplace(data.task, form, features, theta,
+                                              tune ? 1.0 : spec.basin.prior_precision));
+  if (tune) {
+    if (validation.rows() == 0) {
+      return Status::InvalidInput("basin.prior_precision: tune needs validation rows; give a number");
+    }
+    CHORUS_ASSIGN_OR_RETURN(const Matrix validation_features, LastHiddenFeatures(net, params, validation.x));
+    StatusOr<double> chosen = data.task == Task::kClassification
+                                  ? TunePriorPrecision(laplace, validation_features, validation.labels)
+                                  : TunePriorPrecision(laplace, validation_features, validation.targets);
+    if (!chosen.ok()) return chosen.status();
+    laplace.prior_precision = chosen.value();
+  }
+  result.basin = LaplaceBasinFit(laplace, run.params());
+  return Status::Ok();
+}
+
 // Every basin sample's outputs on the job's validation rows and on test.
 void PredictSamples(const MemberSpec& spec, const Mlp& net, const Split& validation,
                     const PreparedData& data, MemberResult& result) {
@@ -304,13 +342,17 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   result.point = spec.point;
   result.fold = spec.fold;
   const bool basin = spec.basin.method != BasinMethod::kNone;
-  const int all_epochs = spec.train.epochs + (basin ? spec.basin.epochs : 0);
+  const bool laplace = spec.basin.method == BasinMethod::kLaplaceLastLayer;
+  const int all_epochs = spec.train.epochs + (basin && !laplace ? spec.basin.epochs : 0);
   CHORUS_RETURN_IF_ERROR(
       TrainEpochs(spec, run, validation, progress, cancel, all_epochs, result).WithContext(where));
   result.validation_outputs = PredictOutputs(run.net(), run.params().data(), validation.x);
   result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x);
   result.parameters = run.params();
-  if (basin) {
+  if (laplace) {
+    CHORUS_RETURN_IF_ERROR(FitLaplace(spec, run, data, validation, result).WithContext(where));
+    PredictSamples(spec, run.net(), validation, data, result);
+  } else if (basin) {
     CHORUS_RETURN_IF_ERROR(RunBasinPhase(spec, run, progress, cancel, result).WithContext(where));
     PredictSamples(spec, run.net(), validation, data, result);
   }

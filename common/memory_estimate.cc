@@ -63,12 +63,23 @@ MemoryEstimate EstimateRunMemory(const Config& config, const PreparedData& data,
   const int64_t basin_vectors = basin.method == BasinMethod::kGaussianDiag      ? 4
                                 : basin.method == BasinMethod::kGaussianLowRank ? 2 * (int64_t{basin.rank} + 2)
                                                                                 : 0;
+  // A last-layer Laplace fit holds the training rows' last hidden features and, while fitting,
+  // about three curvature-sized matrices of doubles (6 floats each); it keeps one in floats.
+  int64_t laplace_fit_floats = 0, laplace_kept_floats = 0;
+  if (basin.method == BasinMethod::kLaplaceLastLayer) {
+    const int64_t last_hidden = config.model.hidden.empty() ? data.features() : config.model.hidden.back();
+    const int64_t last_layer = (last_hidden + 1) * outputs;
+    const bool full = basin.hessian == LaplaceHessian::kFull ||
+                      (basin.hessian == LaplaceHessian::kAuto && last_layer <= kMaxExactLaplaceParameters);
+    laplace_kept_floats = full ? last_layer * last_layer : (last_hidden + 1) * (last_hidden + 1);
+    laplace_fit_floats = 6 * laplace_kept_floats + data.train.rows() * last_hidden;
+  }
   const int64_t per_member_floats = e.parameters * (6 + config.train.parts + basin_vectors) +
-                                    int64_t{config.train.batch_size} * widths * 4;
+                                    int64_t{config.train.batch_size} * widths * 4 + laplace_fit_floats;
   e.training_bytes = int64_t{members_at_once} * per_member_floats * 4;
   const int64_t samples = basin.method == BasinMethod::kNone ? 1 : basin.samples;
   const int64_t held_out_rows = data.folds > 0 ? data.train.rows() : data.validation.rows();
-  const int64_t result_floats = e.parameters * (1 + basin_vectors / 2) +
+  const int64_t result_floats = e.parameters * (1 + basin_vectors / 2) + laplace_kept_floats +
                                 samples * (held_out_rows + data.test.rows()) * outputs;
   e.results_bytes = int64_t{config.ensemble.members} * result_floats * 4;
   const int64_t rows = data.train.rows() + data.validation.rows() + data.test.rows();

@@ -280,9 +280,19 @@ Status LoadTrain(const Section& s, TrainConfig* t) {
 }
 
 Status LoadBasin(const Section& s, BasinConfig* b) {
-  CHORUS_RETURN_IF_ERROR(s.Check({"method", "epochs", "lr", "snapshots", "rank", "samples", "scale"}));
+  CHORUS_RETURN_IF_ERROR(s.Check({"method", "epochs", "lr", "snapshots", "rank", "samples", "scale",
+                                  "hessian", "prior_precision"}));
   CHORUS_RETURN_IF_ERROR(s.GetEnum<BasinMethod>("method", &b->method, ParseBasinMethod,
-                                                "none, gaussian_diag, gaussian_lowrank"));
+                                                "none, gaussian_diag, gaussian_lowrank, laplace_last_layer"));
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<LaplaceHessian>("hessian", &b->hessian, ParseLaplaceHessian,
+                                                   "auto, full, kronecker"));
+  if (s.Has("prior_precision") && s.Node("prior_precision").IsScalar() &&
+      s.Node("prior_precision").Scalar() == "tune") {
+    b->prior_precision = 0;
+  } else {
+    CHORUS_RETURN_IF_ERROR(s.Get<double>("prior_precision", &b->prior_precision,
+                                         "tune or a prior precision", 1e-12, 1e12));
+  }
   CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &b->epochs, "an epoch count", 1, 1000000));
   CHORUS_RETURN_IF_ERROR(s.Get<double>("lr", &b->lr, "a learning rate", 1e-12, 1e6));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("snapshots", &b->snapshots, "a snapshot count", 2, 100000));
@@ -497,6 +507,12 @@ void EmitBasin(YAML::Emitter& out, const BasinConfig& b) {
       << YAML::Key << "scale" << YAML::Value;
   if (b.tune_scale) out << "tune";
   else out << b.scale;
+  if (b.method == BasinMethod::kLaplaceLastLayer) {
+    out << YAML::Key << "hessian" << YAML::Value << LaplaceHessianName(b.hessian)
+        << YAML::Key << "prior_precision" << YAML::Value;
+    if (b.prior_precision == 0) out << "tune";
+    else out << b.prior_precision;
+  }
   out << YAML::EndMap;
 }
 

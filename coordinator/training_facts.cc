@@ -55,13 +55,21 @@ void AddTrainingFacts(const Config& assembled, const PreparedData& data, const T
   report["settings"] = SettingsJson(assembled);
   if (trained.search) report["search"] = SearchJson(*trained.search);
   if (assembled.ensemble.basin.method != BasinMethod::kNone) report["basin_scale"] = assembled.ensemble.basin.scale;
+  const BasinMethod basin = assembled.ensemble.basin.method;
+  // Basin epochs follow the training epochs in epoch_loss; a Laplace fit adds none.
+  const size_t basin_epochs = basin == BasinMethod::kGaussianDiag || basin == BasinMethod::kGaussianLowRank
+                                  ? static_cast<size_t>(assembled.ensemble.basin.epochs)
+                                  : 0;
   for (json& m : report["members"]) {
     for (size_t j = 0; j < trained.members.size(); ++j) {
       const MemberResult& r = trained.members[j];
       if (r.index != m["index"].get<int>()) continue;
       m["best_epoch"] = r.best_epoch;
-      m["epochs_trained"] = r.epoch_loss.size() - (assembled.ensemble.basin.method == BasinMethod::kNone
-                                                       ? 0 : static_cast<size_t>(assembled.ensemble.basin.epochs));
+      m["epochs_trained"] = r.epoch_loss.size() - basin_epochs;
+      if (basin == BasinMethod::kLaplaceLastLayer) {
+        m["laplace"] = {{"hessian", LaplaceFormName(r.basin.laplace.form)},
+                        {"prior_precision", r.basin.laplace.prior_precision}};
+      }
       if (data.folds > 0) {
         m["fold_validation_nll"] = trained.fold_curves[static_cast<size_t>(r.index)];
         m["stop_epoch"] = trained.stop_epochs[static_cast<size_t>(r.index)];

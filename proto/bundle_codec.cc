@@ -32,6 +32,20 @@ void ToWire(const BasinFit& fit, wire::BasinFit* out) {
   out->mutable_deviations()->set_cols(fit.deviations.cols());
   out->mutable_deviations()->mutable_values()->Add(fit.deviations.data(),
                                                    fit.deviations.data() + fit.deviations.size());
+  if (fit.method != BasinMethod::kLaplaceLastLayer) return;
+  const LaplaceFactors& f = fit.laplace;
+  wire::LaplaceFactors* l = out->mutable_laplace();
+  l->set_form(LaplaceFormName(f.form));
+  l->set_outputs(f.outputs);
+  l->set_prior_precision(f.prior_precision);
+  for (const auto& [m, w] : {std::pair{&f.eigenvectors, l->mutable_eigenvectors()},
+                             std::pair{&f.output_eigenvectors, l->mutable_output_eigenvectors()}}) {
+    w->set_rows(m->rows());
+    w->set_cols(m->cols());
+    w->mutable_values()->Add(m->data(), m->data() + m->size());
+  }
+  l->mutable_eigenvalues()->Add(f.eigenvalues.begin(), f.eigenvalues.end());
+  l->mutable_output_eigenvalues()->Add(f.output_eigenvalues.begin(), f.output_eigenvalues.end());
 }
 
 void ToWire(const BundleMember& m, wire::Member* out) {
@@ -89,6 +103,34 @@ StatusOr<T> Parsed(const std::optional<T>& value, const std::string& text, const
   return Status::InvalidInput(source + ": " + field + ": unknown value \"" + text + "\"");
 }
 
+// A FloatMatrix whose rows x cols equals its value count, checked without overflow before
+// anything is allocated.
+StatusOr<Matrix> FromWire(const wire::FloatMatrix& w, const std::string& where) {
+  const int64_t rows = w.rows(), cols = w.cols(), values = w.values_size();
+  const bool consistent = rows >= 0 && cols >= 0 &&
+                          (cols == 0 ? values == 0 : values % cols == 0 && values / cols == rows);
+  if (!consistent) {
+    return Status::InvalidInput(where + ": a " + std::to_string(rows) + " x " + std::to_string(cols) +
+                                " matrix holding " + std::to_string(values) + " values");
+  }
+  Matrix m(rows, cols);
+  std::copy(w.values().begin(), w.values().end(), m.data());
+  return m;
+}
+
+StatusOr<LaplaceFactors> FromWire(const wire::LaplaceFactors& w, const std::string& where) {
+  LaplaceFactors f;
+  CHORUS_ASSIGN_OR_RETURN(f.form, Parsed(ParseLaplaceForm(w.form()), w.form(), "laplace.form", where));
+  f.outputs = w.outputs();
+  f.prior_precision = w.prior_precision();
+  CHORUS_ASSIGN_OR_RETURN(f.eigenvectors, FromWire(w.eigenvectors(), where + ": laplace.eigenvectors"));
+  f.eigenvalues.assign(w.eigenvalues().begin(), w.eigenvalues().end());
+  CHORUS_ASSIGN_OR_RETURN(f.output_eigenvectors,
+                          FromWire(w.output_eigenvectors(), where + ": laplace.output_eigenvectors"));
+  f.output_eigenvalues.assign(w.output_eigenvalues().begin(), w.output_eigenvalues().end());
+  return f;
+}
+
 StatusOr<BasinFit> FromWire(const wire::BasinFit& w, const std::string& where) {
   BasinFit fit;
   CHORUS_ASSIGN_OR_RETURN(fit.method,
@@ -107,6 +149,9 @@ StatusOr<BasinFit> FromWire(const wire::BasinFit& w, const std::string& where) {
   fit.variance.assign(w.variance().begin(), w.variance().end());
   fit.deviations.resize(rows, cols);
   std::copy(w.deviations().values().begin(), w.deviations().values().end(), fit.deviations.data());
+  if (fit.method == BasinMethod::kLaplaceLastLayer) {
+    CHORUS_ASSIGN_OR_RETURN(fit.laplace, FromWire(w.laplace(), where));
+  }
   return fit;
 }
 

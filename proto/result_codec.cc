@@ -14,7 +14,11 @@ using google::protobuf::internal::WireFormatLite;
 
 // Field numbers of proto/job.proto.
 enum MatrixField { kRows = 1, kCols = 2, kValues = 3 };
-enum BasinField { kMethod = 1, kMean = 2, kVariance = 3, kDeviations = 4 };
+enum BasinField { kMethod = 1, kMean = 2, kVariance = 3, kDeviations = 4, kLaplace = 5 };
+enum LaplaceField {
+  kForm = 1, kOutputs = 2, kPriorPrecision = 3, kEigenvectors = 4, kEigenvalues = 5,
+  kOutputEigenvectors = 6, kOutputEigenvalues = 7
+};
 enum ResultField {
   kFormatVersion = 1, kMemberIndex = 2, kSeed = 3, kDataHash = 4, kConfigHash = 5, kWidths = 6,
   kParameters = 7, kEpochLoss = 8, kValidationOutputs = 9, kTestOutputs = 10, kBasin = 11,
@@ -65,6 +69,15 @@ void WriteStringField(io::CodedOutputStream& out, int field, const std::string& 
   out.WriteRaw(s.data(), static_cast<int>(s.size()));
 }
 
+// A double field (proto3: left out when its bits are zero).
+void WriteDoubleField(io::CodedOutputStream& out, int field, double v) {
+  if (WireFormatLite::EncodeDouble(v) == 0) return;
+  out.WriteTag(Tag(field, WireFormatLite::WIRETYPE_FIXED64));
+  out.WriteLittleEndian64(WireFormatLite::EncodeDouble(v));
+}
+
+size_t DoubleFieldSize(double v) { return WireFormatLite::EncodeDouble(v) == 0 ? 0 : 1 + 8; }
+
 // FloatMatrix {rows, cols, values}: the payload's size, and the payload.
 size_t MatrixPayloadSize(const Matrix& m) {
   const auto rows = static_cast<uint64_t>(m.rows()), cols = static_cast<uint64_t>(m.cols());
@@ -89,7 +102,9 @@ class JobResultWriter {
                   const std::string& data_hash, const std::string& config_hash)
       : r_(r), widths_(widths), data_hash_(data_hash), config_hash_(config_hash),
         basin_(r.basin.method != BasinMethod::kNone),
-        method_(basin_ ? BasinMethodName(r.basin.method) : ""), role_(JobRoleName(r.role)) {}
+        laplace_(r.basin.method == BasinMethod::kLaplaceLastLayer),
+        method_(basin_ ? BasinMethodName(r.basin.method) : ""),
+        form_(laplace_ ? LaplaceFormName(r.basin.laplace.form) : ""), role_(JobRoleName(r.role)) {}
 
   size_t Size() const {
     size_t n = 1 + VarintSize(kJobResultFormatVersion) + VarintFieldSize(static_cast<uint64_t>(
@@ -140,6 +155,7 @@ class JobResultWriter {
     WritePacked(out, kMean, r_.basin.mean.data(), r_.basin.mean.size());
     WritePacked(out, kVariance, r_.basin.variance.data(), r_.basin.variance.size());
     WriteMatrixField(out, kDeviations, r_.basin.deviations);
+    if (laplace_) WriteLaplace(out);
     if (!r_.sample_seeds.empty()) {
       WriteDelimitedHeader(out, kSampleSeeds, SeedsPayloadSize());
       for (uint64_t s : r_.sample_seeds) out.WriteVarint64(s);
@@ -148,7 +164,29 @@ class JobResultWriter {
     for (const Matrix& m : r_.sample_test_outputs) WriteMatrixField(out, kSampleTestOutputs, m);
   }
 
+  void WriteLaplace(io::CodedOutputStream& out) const {
+    const LaplaceFactors& f = r_.basin.laplace;
+    WriteDelimitedHeader(out, kLaplace, LaplacePayloadSize());
+    WriteStringField(out, kForm, form_);
+    WriteVarintField(out, kOutputs, Int32Varint(f.outputs));
+    WriteDoubleField(out, kPriorPrecision, f.prior_precision);
+    WriteMatrixField(out, kEigenvectors, f.eigenvectors);
+    WritePacked(out, kEigenvalues, f.eigenvalues.data(), f.eigenvalues.size());
+    WriteMatrixField(out, kOutputEigenvectors, f.output_eigenvectors);
+    WritePacked(out, kOutputEigenvalues, f.output_eigenvalues.data(), f.output_eigenvalues.size());
+  }
+
   static size_t VarintFieldSize(uint64_t v) { return v == 0 ? 0 : 1 + VarintSize(v); }
+
+  size_t LaplacePayloadSize() const {
+    const LaplaceFactors& f = r_.basin.laplace;
+    return PackedSize(kForm, form_.size()) + VarintFieldSize(Int32Varint(f.outputs)) +
+           DoubleFieldSize(f.prior_precision) +
+           DelimitedSize(kEigenvectors, MatrixPayloadSize(f.eigenvectors)) +
+           PackedSize(kEigenvalues, f.eigenvalues.size() * sizeof(float)) +
+           DelimitedSize(kOutputEigenvectors, MatrixPayloadSize(f.output_eigenvectors)) +
+           PackedSize(kOutputEigenvalues, f.output_eigenvalues.size() * sizeof(float));
+  }
 
   size_t WidthsPayloadSize() const {
     size_t n = 0;
@@ -164,7 +202,8 @@ class JobResultWriter {
     return PackedSize(kMethod, method_.size()) +
            PackedSize(kMean, r_.basin.mean.size() * sizeof(float)) +
            PackedSize(kVariance, r_.basin.variance.size() * sizeof(float)) +
-           DelimitedSize(kDeviations, MatrixPayloadSize(r_.basin.deviations));
+           DelimitedSize(kDeviations, MatrixPayloadSize(r_.basin.deviations)) +
+           (laplace_ ? DelimitedSize(kLaplace, LaplacePayloadSize()) : 0);
   }
 
   const MemberResult& r_;
@@ -172,7 +211,9 @@ class JobResultWriter {
   const std::string& data_hash_;
   const std::string& config_hash_;
   const bool basin_;
+  const bool laplace_;
   const std::string method_;
+  const std::string form_;
   const std::string role_;
 };
 
@@ -209,6 +250,20 @@ Status BasinFromWire(const wire::JobResult& msg, const std::string& source, Memb
   r.basin.mean.assign(msg.basin().mean().begin(), msg.basin().mean().end());
   r.basin.variance.assign(msg.basin().variance().begin(), msg.basin().variance().end());
   CHORUS_ASSIGN_OR_RETURN(r.basin.deviations, FromWire(msg.basin().deviations(), source));
+  if (r.basin.method == BasinMethod::kLaplaceLastLayer) {
+    const wire::LaplaceFactors& w = msg.basin().laplace();
+    const std::optional<LaplaceForm> form = ParseLaplaceForm(w.form());
+    if (!form) return Status::InvalidInput(source + ": unknown laplace form \"" + w.form() + "\"");
+    LaplaceFactors& f = r.basin.laplace;
+    f.form = *form;
+    f.outputs = w.outputs();
+    f.prior_precision = w.prior_precision();
+    CHORUS_ASSIGN_OR_RETURN(f.eigenvectors, FromWire(w.eigenvectors(), source));
+    f.eigenvalues.assign(w.eigenvalues().begin(), w.eigenvalues().end());
+    CHORUS_ASSIGN_OR_RETURN(f.output_eigenvectors, FromWire(w.output_eigenvectors(), source));
+    f.output_eigenvalues.assign(w.output_eigenvalues().begin(), w.output_eigenvalues().end());
+    CHORUS_RETURN_IF_ERROR(CheckLaplaceFactors(r.basin, source));
+  }
   r.sample_seeds.assign(msg.sample_seeds().begin(), msg.sample_seeds().end());
   for (const auto& m : msg.sample_validation_outputs()) {
     CHORUS_ASSIGN_OR_RETURN(Matrix v, FromWire(m, source));

@@ -27,6 +27,8 @@ void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
   out->set_basin_rank(b.rank);
   out->set_basin_samples(b.samples);
   out->set_basin_scale(b.scale);
+  out->set_basin_hessian(LaplaceHessianName(b.hessian));
+  out->set_basin_prior_precision(b.prior_precision);
   out->set_early_stopping(t.early_stopping.mode == Switch::kOn);
   out->set_patience(t.early_stopping.patience);
   out->set_beta_nll(t.beta_nll);
@@ -43,8 +45,9 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   const auto schedule = ParseSchedule(w.schedule());
   const auto basin = ParseBasinMethod(w.basin_method());
   const auto role = ParseJobRole(w.role());
-  if (!activation || !schedule || !basin || !role) {
-    return Status::InvalidInput("job spec: unknown activation, schedule, basin method or role");
+  const auto hessian = ParseLaplaceHessian(w.basin_hessian());
+  if (!activation || !schedule || !basin || !role || !hessian) {
+    return Status::InvalidInput("job spec: unknown activation, schedule, basin method, hessian or role");
   }
   const bool sizes_ok = w.epochs() >= 1 && w.batch_size() >= 1 && w.parts() >= 1 &&
                         w.parts() <= w.batch_size() && w.lr() > 0 && w.hidden_size() <= 64 &&
@@ -53,7 +56,8 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
                         w.basin_samples() >= 1 && w.basin_epochs() >= 1 && w.basin_lr() > 0 &&
                         w.patience() >= 1 && w.beta_nll() >= 0 && w.beta_nll() <= 1 &&
                         w.fold() >= -1 && (w.fold() < 0 || (w.folds() >= 2 && w.fold() < w.folds())) &&
-                        w.stop_epoch() >= 0 && w.point() >= 0;
+                        w.stop_epoch() >= 0 && w.point() >= 0 && w.basin_prior_precision() >= 0 &&
+                        w.basin_prior_precision() <= 1e12;
   if (!sizes_ok) return Status::InvalidInput("job spec: a value is out of range");
   MemberSpec s;
   s.index = w.index();
@@ -70,6 +74,8 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   s.train.schedule = {*schedule, w.step_every_epochs(), w.step_factor()};
   s.basin = {*basin, w.basin_epochs(), w.basin_lr(), w.basin_snapshots(), w.basin_rank(),
              w.basin_samples(), w.basin_scale()};
+  s.basin.hessian = *hessian;
+  s.basin.prior_precision = w.basin_prior_precision();
   s.train.early_stopping = {w.early_stopping() ? Switch::kOn : Switch::kOff, w.patience()};
   s.train.beta_nll = w.beta_nll();
   s.role = *role;

@@ -3,6 +3,10 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
+#include <vector>
+
+#include "common/last_layer_laplace.h"
 #include "common/rng.h"
 #include "tests/testing/small_data.h"
 
@@ -28,6 +32,46 @@ TEST(MemberTrainingTest, BatchLargerThanTheTrainingRowsIsClampedToTheRowCount) {
   const StatusOr<MemberResult> smaller = TrainMember(SpecWithBatch(149), d, nullptr);
   ASSERT_TRUE(smaller.ok()) << smaller.status().ToString();
   EXPECT_NE(smaller.value().parameters, rows.value().parameters);
+}
+
+// basin.method laplace_last_layer: the member trains as without a basin fit, then its samples
+// differ from the trained point in the last layer only (common/last_layer_laplace.h), the prior
+// precision is a point of the tuning grid, each sample's outputs are those of its redrawn weights,
+// and the whole result is a pure function of the spec.
+TEST(MemberTrainingTest, LaplaceSamplesVaryOnlyTheLastLayer) {
+  const PreparedData d = testing::SmallClassificationData(8);
+  MemberSpec spec = testing::SmallMemberSpec(0, 13, 3, 32);
+  const StatusOr<MemberResult> plain = TrainMember(spec, d, nullptr);
+  spec.basin.method = BasinMethod::kLaplaceLastLayer;
+  spec.basin.samples = 4;
+  const StatusOr<MemberResult> a = TrainMember(spec, d, nullptr), b = TrainMember(spec, d, nullptr);
+  ASSERT_TRUE(plain.ok() && a.ok() && b.ok()) << a.status().ToString();
+  const MemberResult& r = a.value();
+  EXPECT_EQ(r.parameters, plain.value().parameters);
+  EXPECT_EQ(r.epoch_loss.size(), 3u);  // no extra epochs
+  EXPECT_EQ(r.basin.method, BasinMethod::kLaplaceLastLayer);
+  EXPECT_EQ(r.basin.laplace.form, LaplaceForm::kFull);  // (8 + 1) x 3 weights: exact
+  const std::vector<double> grid = PriorPrecisionGrid();
+  EXPECT_NE(std::find(grid.begin(), grid.end(), r.basin.laplace.prior_precision), grid.end());
+  ASSERT_EQ(r.sample_seeds.size(), 4u);
+  const Mlp net = NetworkFor(spec.model, d);
+  const int64_t last_layer = (8 + 1) * 3, below = net.ParameterCount() - last_layer;
+  std::vector<float> w(net.ParameterCount());
+  for (size_t s = 0; s < r.sample_seeds.size(); ++s) {
+    DrawBasinSample(r.basin, r.sample_seeds[s], 1.0, w.data());
+    EXPECT_TRUE(std::equal(w.begin(), w.begin() + below, r.parameters.begin())) << "sample " << s;
+    EXPECT_FALSE(std::equal(w.begin() + below, w.end(), r.parameters.begin() + below)) << "sample " << s;
+    EXPECT_TRUE(PredictOutputs(net, w.data(), d.test.x) == r.sample_test_outputs[s]) << "sample " << s;
+  }
+  EXPECT_EQ(r.basin.laplace.eigenvectors, b.value().basin.laplace.eigenvectors);
+  for (size_t s = 0; s < r.sample_test_outputs.size(); ++s) {
+    EXPECT_TRUE(r.sample_test_outputs[s] == b.value().sample_test_outputs[s]) << "sample " << s;
+  }
+  // A configured prior precision is kept as given.
+  spec.basin.prior_precision = 3.5;
+  const StatusOr<MemberResult> fixed = TrainMember(spec, d, nullptr);
+  ASSERT_TRUE(fixed.ok());
+  EXPECT_EQ(fixed.value().basin.laplace.prior_precision, 3.5);
 }
 
 }  // namespace

@@ -23,6 +23,7 @@ struct Scenario {
   Task task;
   BasinMethod basin;
   Weighting weighting;
+  LaplaceHessian hessian = LaplaceHessian::kAuto;
 };
 
 class BundleWriterTest : public ::testing::TestWithParam<Scenario> {
@@ -56,6 +57,7 @@ class BundleWriterTest : public ::testing::TestWithParam<Scenario> {
     c.ensemble.members = 3;
     c.ensemble.weighting = s.weighting;
     c.ensemble.basin = {s.basin, 1, 0.01, 4, 3, 3, 1.5};
+    c.ensemble.basin.hessian = s.hessian;
     return c;
   }
 
@@ -120,7 +122,12 @@ INSTANTIATE_TEST_SUITE_P(
                       Scenario{"ClassificationPoints", Task::kClassification, BasinMethod::kNone,
                                Weighting::kGreedy},
                       Scenario{"RegressionDiag", Task::kRegression, BasinMethod::kGaussianDiag,
-                               Weighting::kUniform}),
+                               Weighting::kUniform},
+                      Scenario{"ClassificationLaplace", Task::kClassification,
+                               BasinMethod::kLaplaceLastLayer, Weighting::kUniform},
+                      Scenario{"RegressionLaplaceKronecker", Task::kRegression,
+                               BasinMethod::kLaplaceLastLayer, Weighting::kStacking,
+                               LaplaceHessian::kKronecker}),
     [](const ::testing::TestParamInfo<Scenario>& info) { return info.param.name; });
 
 }  // namespace

@@ -220,3 +220,38 @@ TEST(ConfigLoaderTest, MissingAndOversizedConfigFilesAreRefusedNamingThePath) {
 
 }  // namespace
 }  // namespace chorus
+
+namespace chorus {
+namespace {
+
+TEST(ConfigLoaderTest, LaplaceBasinAndShiftTestKeysAndTheirRoundTrip) {
+  const std::string text = std::string(kMinimal) +
+      "  shift_test: d/rotated.csv\n"
+      "ensemble:\n  basin: {method: laplace_last_layer, hessian: kronecker, prior_precision: 2.5, samples: 7}\n";
+  StatusOr<Config> a = ParseConfig(text, "/x/a.yaml");
+  ASSERT_TRUE(a.ok()) << a.status().ToString();
+  const BasinConfig& basin = a.value().ensemble.basin;
+  EXPECT_EQ(basin.method, BasinMethod::kLaplaceLastLayer);
+  EXPECT_EQ(basin.hessian, LaplaceHessian::kKronecker);
+  EXPECT_EQ(basin.prior_precision, 2.5);
+  EXPECT_EQ(a.value().data.shift_test, "/x/d/rotated.csv");
+  StatusOr<Config> b = ParseConfig(ConfigToYaml(a.value()), "/y/b.yaml");
+  ASSERT_TRUE(b.ok()) << b.status().ToString() << "\n" << ConfigToYaml(a.value());
+  EXPECT_EQ(ConfigHash(a.value()), ConfigHash(b.value()));
+  EXPECT_EQ(b.value().data.shift_test, "/x/d/rotated.csv");
+  // The default prior precision is "tune" (0), and it survives the round trip as "tune".
+  StatusOr<Config> tuned = ParseConfig(std::string(kMinimal) + "ensemble: {basin: {method: laplace_last_layer}}\n", "a.yaml");
+  ASSERT_TRUE(tuned.ok());
+  EXPECT_EQ(tuned.value().ensemble.basin.prior_precision, 0);
+  EXPECT_NE(ConfigToYaml(tuned.value()).find("prior_precision: tune"), std::string::npos);
+  Config other = a.value();
+  other.ensemble.basin.prior_precision = 3;
+  EXPECT_NE(ConfigHash(a.value()), ConfigHash(other)) << "the prior changes the model";
+  const StatusOr<Config> bad = ParseConfig(
+      std::string(kMinimal) + "ensemble: {basin: {method: laplace_last_layer, hessian: diagonal}}\n", "cfg.yaml");
+  ASSERT_FALSE(bad.ok());
+  EXPECT_NE(bad.status().message().find("ensemble.basin.hessian"), std::string::npos) << bad.status().ToString();
+}
+
+}  // namespace
+}  // namespace chorus

@@ -7,6 +7,10 @@
 #include <google/protobuf/io/zero_copy_stream_impl_lite.h>
 #include <gtest/gtest.h>
 
+#include <cmath>
+#include <functional>
+#include <utility>
+
 #include "common/rng.h"
 #include "job.pb.h"
 
@@ -39,6 +43,17 @@ std::string ReferenceBytes(const MemberResult& r, const std::vector<int>& widths
     b->mutable_mean()->Add(r.basin.mean.begin(), r.basin.mean.end());
     b->mutable_variance()->Add(r.basin.variance.begin(), r.basin.variance.end());
     MatrixToWire(r.basin.deviations, b->mutable_deviations());
+    if (r.basin.method == BasinMethod::kLaplaceLastLayer) {
+      const LaplaceFactors& f = r.basin.laplace;
+      wire::LaplaceFactors* l = b->mutable_laplace();
+      l->set_form(LaplaceFormName(f.form));
+      l->set_outputs(f.outputs);
+      l->set_prior_precision(f.prior_precision);
+      MatrixToWire(f.eigenvectors, l->mutable_eigenvectors());
+      l->mutable_eigenvalues()->Add(f.eigenvalues.begin(), f.eigenvalues.end());
+      MatrixToWire(f.output_eigenvectors, l->mutable_output_eigenvectors());
+      l->mutable_output_eigenvalues()->Add(f.output_eigenvalues.begin(), f.output_eigenvalues.end());
+    }
     msg.mutable_sample_seeds()->Add(r.sample_seeds.begin(), r.sample_seeds.end());
     for (const Matrix& m : r.sample_validation_outputs) MatrixToWire(m, msg.add_sample_validation_outputs());
     for (const Matrix& m : r.sample_test_outputs) MatrixToWire(m, msg.add_sample_test_outputs());
@@ -82,7 +97,22 @@ MemberResult RandomResult(uint64_t seed, int64_t parameters, BasinMethod method,
   if (method == BasinMethod::kNone) return r;
   r.basin.method = method;
   r.basin.mean = r.parameters;
-  for (int64_t i = 0; i < parameters; ++i) r.basin.variance.push_back(static_cast<float>(rng.NextUniform()));
+  if (method == BasinMethod::kLaplaceLastLayer) {
+    // A Kronecker fit over the last (2 + 1) x 3 weights for odd seeds, an exact one otherwise.
+    LaplaceFactors& f = r.basin.laplace;
+    f.outputs = 3;
+    f.prior_precision = 0.25 + rng.NextUniform();
+    f.form = seed % 2 == 1 ? LaplaceForm::kKronecker : LaplaceForm::kFull;
+    const int n = f.form == LaplaceForm::kFull ? 9 : 3;
+    f.eigenvectors = RandomMatrix(rng, n, n);
+    for (int i = 0; i < n; ++i) f.eigenvalues.push_back(static_cast<float>(rng.NextUniform()));
+    if (f.form == LaplaceForm::kKronecker) {
+      f.output_eigenvectors = RandomMatrix(rng, 3, 3);
+      for (int i = 0; i < 3; ++i) f.output_eigenvalues.push_back(static_cast<float>(rng.NextUniform()));
+    }
+  } else {
+    for (int64_t i = 0; i < parameters; ++i) r.basin.variance.push_back(static_cast<float>(rng.NextUniform()));
+  }
   if (method == BasinMethod::kGaussianLowRank) r.basin.deviations = RandomMatrix(rng, 3, parameters);
   for (int s = 0; s < samples; ++s) {
     r.sample_seeds.push_back(Derive(seed, 100 + static_cast<uint64_t>(s)));
@@ -98,7 +128,8 @@ const std::string kConfigHash(64, 'b');
 
 TEST(ResultCodecTest, BytesEqualLibprotobufsSerialisationOfTheMessage) {
   for (uint64_t seed = 1; seed <= 6; ++seed) {
-    for (BasinMethod method : {BasinMethod::kNone, BasinMethod::kGaussianDiag, BasinMethod::kGaussianLowRank}) {
+    for (BasinMethod method : {BasinMethod::kNone, BasinMethod::kGaussianDiag, BasinMethod::kGaussianLowRank,
+                                BasinMethod::kLaplaceLastLayer}) {
       const MemberResult r = RandomResult(seed, 51, method, static_cast<int>(seed % 3) + 1);
       SCOPED_TRACE("seed " + std::to_string(seed) + ", " + BasinMethodName(method));
       EXPECT_EQ(EncodeJobResult(r, kWidths, kDataHash, kConfigHash),
@@ -170,6 +201,49 @@ TEST(ResultCodecTest, DecodingTheEncodingGivesTheResultBack) {
   }
   EXPECT_TRUE(b.validation_outputs == r.validation_outputs);
   EXPECT_TRUE(b.test_outputs == r.test_outputs);
+}
+
+}  // namespace
+}  // namespace chorus
+
+namespace chorus {
+namespace {
+
+TEST(ResultCodecTest, LaplaceFitsRoundTripAndBadFactorsAreRefused) {
+  for (uint64_t seed : {7, 8}) {  // a Kronecker fit, then an exact one
+    const MemberResult r = RandomResult(seed, 51, BasinMethod::kLaplaceLastLayer, 2);
+    SCOPED_TRACE(LaplaceFormName(r.basin.laplace.form));
+    StatusOr<MemberResult> back =
+        DecodeJobResult(EncodeJobResult(r, kWidths, kDataHash, kConfigHash), "test", kDataHash, kConfigHash);
+    ASSERT_TRUE(back.ok()) << back.status().ToString();
+    const LaplaceFactors &a = back.value().basin.laplace, &b = r.basin.laplace;
+    EXPECT_EQ(back.value().basin.method, BasinMethod::kLaplaceLastLayer);
+    EXPECT_EQ(a.form, b.form);
+    EXPECT_EQ(a.outputs, b.outputs);
+    EXPECT_EQ(a.prior_precision, b.prior_precision);
+    EXPECT_TRUE(a.eigenvectors == b.eigenvectors);
+    EXPECT_EQ(a.eigenvalues, b.eigenvalues);
+    EXPECT_TRUE(a.output_eigenvectors == b.output_eigenvectors);
+    EXPECT_EQ(a.output_eigenvalues, b.output_eigenvalues);
+  }
+  const MemberResult good = RandomResult(8, 51, BasinMethod::kLaplaceLastLayer, 1);
+  const std::pair<const char*, std::function<void(LaplaceFactors&)>> breakages[] = {
+      {"negative eigenvalue", [](LaplaceFactors& f) { f.eigenvalues[2] = -1.0f; }},
+      {"eigenvalue count", [](LaplaceFactors& f) { f.eigenvalues.pop_back(); }},
+      {"zero prior", [](LaplaceFactors& f) { f.prior_precision = 0; }},
+      {"outputs not dividing the layer", [](LaplaceFactors& f) { f.outputs = 4; }},
+      {"layer beyond the parameters", [](LaplaceFactors& f) { f.eigenvectors = Matrix::Zero(60, 60); }},
+      {"not finite", [](LaplaceFactors& f) { f.eigenvectors(0, 1) = std::nanf(""); }}};
+  for (const auto& [name, corrupt] : breakages) {
+    SCOPED_TRACE(name);
+    MemberResult bad = good;
+    corrupt(bad.basin.laplace);
+    if (bad.basin.laplace.eigenvectors.rows() == 60) bad.basin.laplace.eigenvalues.assign(60, 1.0f);
+    const StatusOr<MemberResult> back =
+        DecodeJobResult(EncodeJobResult(bad, kWidths, kDataHash, kConfigHash), "r.pb", kDataHash, kConfigHash);
+    ASSERT_FALSE(back.ok());
+    EXPECT_NE(back.status().message().find("r.pb: laplace fit"), std::string::npos) << back.status().ToString();
+  }
 }
 
 }  // namespace
