@@ -178,3 +178,37 @@ TEST(BundleCodecTest, PredictorRefusesSamplesBeyondItsMemoryBound) {
 
 }  // namespace
 }  // namespace chorus
+
+namespace chorus {
+namespace {
+
+// A bundle with a last-layer Laplace member: the factors survive the round trip and give the same
+// predictions; factors that do not describe exactly the last layer are refused with the place.
+TEST(BundleCodecTest, LaplaceMembersRoundTripAndMismatchedFactorsAreRefused) {
+  SyntheticBundleSpec spec;
+  spec.basins = {BasinMethod::kLaplaceLastLayer, BasinMethod::kGaussianDiag};
+  const Bundle original = SyntheticBundle(spec);
+  StatusOr<BundleFile> decoded = DecodeBundleFile(EncodeBundleFile(original), "b");
+  ASSERT_TRUE(decoded.ok()) << decoded.status().ToString();
+  const LaplaceFactors& a = original.members[1].basin.laplace;
+  const LaplaceFactors& b = decoded.value().bundle.members[1].basin.laplace;
+  EXPECT_TRUE(a.eigenvectors == b.eigenvectors);
+  EXPECT_EQ(a.eigenvalues, b.eigenvalues);
+  EXPECT_EQ(a.prior_precision, b.prior_precision);
+  const Matrix x = testing::RandomInputs(300, original.widths[0], 4);
+  EXPECT_EQ(Predictor::Create(original).value().Predict(x).classification.probabilities,
+            Predictor::Create(decoded.value().bundle).value().Predict(x).classification.probabilities);
+
+  Bundle wrong = original;
+  LaplaceFactors& f = wrong.members[1].basin.laplace;
+  const int64_t smaller = f.eigenvectors.rows() - f.outputs;  // one hidden unit short
+  f.eigenvectors = Matrix::Identity(smaller, smaller);
+  f.eigenvalues.assign(static_cast<size_t>(smaller), 1.0f);
+  const StatusOr<BundleFile> refused = DecodeBundleFile(EncodeBundleFile(wrong), "w.chorus");
+  ASSERT_FALSE(refused.ok());
+  EXPECT_NE(refused.status().message().find("w.chorus: member 1: laplace fit covers"), std::string::npos)
+      << refused.status().ToString();
+}
+
+}  // namespace
+}  // namespace chorus

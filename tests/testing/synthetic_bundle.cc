@@ -42,6 +42,20 @@ BundleMember SyntheticMember(int index, BasinMethod method, int64_t parameters,
   }
   m.basin.method = method;
   m.basin.mean = Normal(rng, parameters, 0.3);
+  for (int s = 0; s < spec.samples; ++s) m.sample_seeds.push_back(Derive(m.seed, s));
+  if (method == BasinMethod::kLaplaceLastLayer) {
+    // An exact fit over the last layer: random eigenvectors (a valid factor need not be
+    // orthogonal) and eigenvalues in [0, 4).
+    LaplaceFactors& f = m.basin.laplace;
+    f.form = LaplaceForm::kFull;
+    f.outputs = spec.task == Task::kClassification ? spec.classes : 2;
+    f.prior_precision = 2.0;
+    const int64_t p = (spec.hidden.back() + 1) * f.outputs;
+    f.eigenvectors.resize(p, p);
+    for (int64_t i = 0; i < f.eigenvectors.size(); ++i) f.eigenvectors.data()[i] = static_cast<float>(rng.NextNormal());
+    for (int64_t i = 0; i < p; ++i) f.eigenvalues.push_back(static_cast<float>(4.0 * rng.NextUniform()));
+    return m;
+  }
   for (int64_t i = 0; i < parameters; ++i) {
     m.basin.variance.push_back(static_cast<float>(0.01 * rng.NextUniform()));
   }
@@ -51,7 +65,6 @@ BundleMember SyntheticMember(int index, BasinMethod method, int64_t parameters,
       m.basin.deviations.data()[i] = static_cast<float>(0.05 * rng.NextNormal());
     }
   }
-  for (int s = 0; s < spec.samples; ++s) m.sample_seeds.push_back(Derive(m.seed, s));
   return m;
 }
 

@@ -16,7 +16,8 @@ struct SyntheticBundleSpec {
   int numeric_columns = 3;
   bool categorical_column = true;  // adds column "site" with vocabulary {east, north, west}
   int classes = 3;                 // classification only
-  // Members: first a trained point (no basin fit), then the given basin methods.
+  // Members: first a trained point (no basin fit), then the given basin methods (a
+  // laplace_last_layer member needs a hidden layer).
   std::vector<BasinMethod> basins = {BasinMethod::kGaussianDiag, BasinMethod::kGaussianLowRank};
   int samples = 3;  // per member with a basin fit
   int rank = 3;     // deviation rows of low-rank fits
