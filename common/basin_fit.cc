@@ -97,6 +97,26 @@ bool Square(const Matrix& m, int64_t n) { return m.rows() == n && m.cols() == n;
 
 }  // namespace
 
+Status CheckCollectedSamples(const BasinFit& fit, const std::vector<uint64_t>& seeds, const std::string& where) {
+  const int64_t rows = fit.samples.rows();
+  if (rows < 1 || fit.samples.cols() != static_cast<int64_t>(fit.mean.size()) || !fit.variance.empty() ||
+      fit.deviations.size() != 0) {
+    return Status::InvalidInput(where + ": collected samples: " + std::to_string(rows) + " x " +
+                                std::to_string(fit.samples.cols()) + " for " + std::to_string(fit.mean.size()) +
+                                " parameters");
+  }
+  for (uint64_t s : seeds) {
+    if (s >= static_cast<uint64_t>(rows)) {
+      return Status::InvalidInput(where + ": collected samples: sample " + std::to_string(s) + " of " +
+                                  std::to_string(rows));
+    }
+  }
+  if (!Finite(fit.samples.data(), fit.samples.size()) || !Finite(fit.mean.data(), static_cast<int64_t>(fit.mean.size()))) {
+    return Status::InvalidInput(where + ": collected samples: expected finite values");
+  }
+  return Status::Ok();
+}
+
 const char* LaplaceFormName(LaplaceForm form) {
   return form == LaplaceForm::kFull ? "full" : "kronecker";
 }
@@ -186,6 +206,12 @@ void DrawBasinSample(const BasinFit& fit, uint64_t seed, double scale, float* ou
   const size_t dim = fit.mean.size();
   if (fit.method == BasinMethod::kNone) {
     std::copy(fit.mean.begin(), fit.mean.end(), out);
+    return;
+  }
+  if (fit.method == BasinMethod::kCyclicalSgmcmc) {
+    assert(seed < static_cast<uint64_t>(fit.samples.rows()));
+    std::copy(fit.samples.row(static_cast<Eigen::Index>(seed)).data(),
+              fit.samples.row(static_cast<Eigen::Index>(seed)).data() + dim, out);
     return;
   }
   if (fit.method == BasinMethod::kLaplaceLastLayer) {

@@ -76,14 +76,21 @@ struct LaplaceFactors {
 //   kGaussianLowRank:  Sigma = diag(variance) / 2 + D^T D / (2 (R - 1)), D = deviations (R x dim)
 //   kLaplaceLastLayer: Sigma zero except on the last layer's P weights, there the Laplace
 //                      posterior covariance of `laplace`
+//   kCyclicalSgmcmc:   no Gaussian: the weights the sampler collected, one per row of `samples`
+//                      (sample "seed" s is row s); mean is the member's last weights
 //   kNone:             the point mass at `mean` (the member itself)
 struct BasinFit {
   BasinMethod method = BasinMethod::kNone;
   std::vector<float> mean;
-  std::vector<float> variance;  // empty for kNone and kLaplaceLastLayer
+  std::vector<float> variance;  // empty unless kGaussianDiag or kGaussianLowRank
   Matrix deviations;            // R x dim; empty unless kGaussianLowRank
   LaplaceFactors laplace;       // kLaplaceLastLayer only
+  Matrix samples;               // S x dim; kCyclicalSgmcmc only
 };
+
+// Ok, or kInvalidInput (prefixed with `where`) unless a kCyclicalSgmcmc fit's samples have
+// mean.size() columns and finite values, and every seed names one of their rows.
+Status CheckCollectedSamples(const BasinFit& fit, const std::vector<uint64_t>& seeds, const std::string& where);
 
 // "full" / "kronecker", and the inverse (nullopt for an unknown name).
 const char* LaplaceFormName(LaplaceForm form);
@@ -113,7 +120,8 @@ BasinFit FitBasin(const SnapshotMoments& moments, BasinMethod method);
 //   diag:    w = mean + sqrt(scale) * sqrt(variance) .* z1
 //   lowrank: w = mean + sqrt(scale) * ( sqrt(variance / 2) .* z1 + D^T z2 / sqrt(2 (R - 1)) )
 // with z1 ~ N(0, I_dim), z2 ~ N(0, I_R) drawn from Philox(seed) (z1 first, then z2);
-//   laplace_last_layer: DrawLastLayerSample (common/last_layer_laplace.h) at `scale`.
+//   laplace_last_layer: DrawLastLayerSample (common/last_layer_laplace.h) at `scale`;
+//   cyclical_sgmcmc: row `seed` of samples (seed < rows; scale unused).
 // `scale` (> 0) multiplies the covariance; kNone writes the mean.
 void DrawBasinSample(const BasinFit& fit, uint64_t seed, double scale, float* out);
 

@@ -160,6 +160,13 @@ Status CheckMember(const BundleMember& m, int64_t parameters, int64_t last_layer
     if (m.basin.method == BasinMethod::kLaplaceLastLayer) {
       return CheckLaplaceFit(m.basin, parameters, last_layer, where);
     }
+    if (m.basin.method == BasinMethod::kCyclicalSgmcmc) {
+      if (static_cast<int64_t>(m.basin.mean.size()) != parameters) {
+        return Status::InvalidInput(where + ": collected samples: expected " + Text(parameters) +
+                                    " parameters, found " + Text(m.basin.mean.size()));
+      }
+      return CheckCollectedSamples(m.basin, m.sample_seeds, where);
+    }
     return CheckFit(m.basin, parameters, where);
   }
   if (static_cast<int64_t>(m.parameters.size()) != parameters || !m.sample_seeds.empty()) {

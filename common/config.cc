@@ -37,6 +37,7 @@ const char* BasinMethodName(BasinMethod m) {
     case BasinMethod::kGaussianDiag: return "gaussian_diag";
     case BasinMethod::kGaussianLowRank: return "gaussian_lowrank";
     case BasinMethod::kLaplaceLastLayer: return "laplace_last_layer";
+    case BasinMethod::kCyclicalSgmcmc: return "cyclical_sgmcmc";
   }
   return "?";
 }
@@ -91,6 +92,7 @@ std::optional<BasinMethod> ParseBasinMethod(const std::string& s) {
   if (s == "gaussian_diag") return BasinMethod::kGaussianDiag;
   if (s == "gaussian_lowrank") return BasinMethod::kGaussianLowRank;
   if (s == "laplace_last_layer") return BasinMethod::kLaplaceLastLayer;
+  if (s == "cyclical_sgmcmc") return BasinMethod::kCyclicalSgmcmc;
   return std::nullopt;
 }
 

@@ -9,13 +9,15 @@
 #include <string>
 #include <vector>
 
+#include "common/sgmcmc_step.h"
+
 namespace chorus {
 
 enum class Task { kClassification, kRegression };
 enum class Activation { kRelu, kTanh, kGelu };
 enum class ScheduleKind { kConstant, kCosine, kStep };
 enum class Weighting { kUniform, kStacking, kGreedy };
-enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank, kLaplaceLastLayer };
+enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank, kLaplaceLastLayer, kCyclicalSgmcmc };
 // The last-layer Laplace curvature (common/last_layer_laplace.h): the exact matrix, its
 // Kronecker factorisation, or auto (exact up to kMaxExactLaplaceParameters last-layer weights).
 enum class LaplaceHessian { kAuto, kFull, kKronecker };
@@ -113,6 +115,10 @@ struct TrainConfig {
 // (common/basin_fit.h) and `samples` weight vectors are drawn, from seeds derived from the member's.
 // laplace_last_layer instead fits a Gaussian over the last layer's weights from the curvature of
 // the training loss at the trained point (no extra epochs; epochs, lr, snapshots and rank unused).
+// cyclical_sgmcmc replaces the member's training itself: its train.epochs run under the cyclical
+// step size of `sgmcmc` (train.schedule and early stopping unused) with SGLD or SGHMC noise in each
+// cycle's sampling phase, and the weights at the sample steps are the member's samples
+// (cycles x samples_per_cycle of them; samples, scale and the Gaussian keys unused).
 struct BasinConfig {
   BasinMethod method = BasinMethod::kNone;  // none | gaussian_diag | gaussian_lowrank | laplace_last_layer
   int epochs = 5;               // extra epochs at the constant rate, >= 1
@@ -128,6 +134,9 @@ struct BasinConfig {
   // Precision of the Gaussian prior N(0, I / p) on the last layer's weights; 0 = "tune": each job
   // picks it on its validation rows (common/last_layer_laplace.h TunePriorPrecision). >= 0.
   double prior_precision = 0;
+  // cyclical_sgmcmc only (common/sgmcmc_step.h): sampler, cycles, exploration fraction, samples
+  // per cycle, posterior temperature and SGHMC friction.
+  SgmcmcConfig sgmcmc;
 };
 
 // laplace_last_layer with hessian auto: the exact curvature up to this many last-layer weights

@@ -11,6 +11,7 @@
 #include "common/heads.h"
 #include "common/rng.h"
 #include "common/sgd.h"
+#include "common/sgmcmc_step.h"
 
 namespace chorus {
 namespace {
@@ -67,23 +68,28 @@ class SgdRun {
   // the start of this epoch); calls after_step(step) after each update. Returns the mean loss.
   template <typename LrFn, typename AfterStepFn>
   StatusOr<double> Epoch(int epoch, const LrFn& lr_at, const AfterStepFn& after_step) {
-    ShuffleForEpoch(spec_.seed, epoch, order_);
-    const int64_t n = static_cast<int64_t>(rows_.size());
-    double loss_sum = 0.0;
-    int64_t steps = 0;
-    for (int64_t start = 0; start < n; start += batch_, ++steps) {
-      const int64_t rows = std::min(batch_, n - start);
-      Gather(start, rows);
-      const double loss = step_.Run(xb_.topRows(rows), labels_.data(), targets_.data(),
-                                    static_cast<float>(lr_at(steps)), params_.data(), parallel_);
-      if (!std::isfinite(loss)) {
-        return Status::Diverged("epoch " + std::to_string(epoch + 1) + ", step " +
-                                std::to_string(steps + 1) + ": training loss is " + std::to_string(loss));
-      }
-      loss_sum += loss;
-      after_step(steps);
-    }
-    return loss_sum / static_cast<double>(steps);
+    return EpochOfSteps(
+        epoch,
+        [&](const ConstMatrixRef& x, int64_t step) {
+          return step_.Run(x, labels_.data(), targets_.data(), static_cast<float>(lr_at(step)),
+                           params_.data(), parallel_);
+        },
+        after_step);
+  }
+
+  // The same with the minibatch gradient handed to update(context, grad, params) instead of the
+  // SGD step (TrainingStep::RunWithUpdate); set_step(step) is called before each.
+  template <typename SetStepFn, typename AfterStepFn>
+  StatusOr<double> EpochWithUpdate(int epoch, const SetStepFn& set_step, TrainingStep::GradientUpdate update,
+                                   void* context, const AfterStepFn& after_step) {
+    return EpochOfSteps(
+        epoch,
+        [&](const ConstMatrixRef& x, int64_t step) {
+          set_step(step);
+          return step_.RunWithUpdate(x, labels_.data(), targets_.data(), params_.data(), parallel_,
+                                     update, context);
+        },
+        after_step);
   }
 
   int64_t StepsPerEpoch() const { return (static_cast<int64_t>(rows_.size()) + batch_ - 1) / batch_; }
@@ -98,6 +104,29 @@ class SgdRun {
   }
 
  private:
+  // One epoch over the shuffled training rows, one run_step(minibatch, step) per minibatch (step
+  // counts from the start of this epoch; it returns the minibatch loss), after_step(step) after
+  // each. Returns the mean loss.
+  template <typename StepFn, typename AfterStepFn>
+  StatusOr<double> EpochOfSteps(int epoch, const StepFn& run_step, const AfterStepFn& after_step) {
+    ShuffleForEpoch(spec_.seed, epoch, order_);
+    const int64_t n = static_cast<int64_t>(rows_.size());
+    double loss_sum = 0.0;
+    int64_t steps = 0;
+    for (int64_t start = 0; start < n; start += batch_, ++steps) {
+      const int64_t rows = std::min(batch_, n - start);
+      Gather(start, rows);
+      const double loss = run_step(xb_.topRows(rows), steps);
+      if (!std::isfinite(loss)) {
+        return Status::Diverged("epoch " + std::to_string(epoch + 1) + ", step " +
+                                std::to_string(steps + 1) + ": training loss is " + std::to_string(loss));
+      }
+      loss_sum += loss;
+      after_step(steps);
+    }
+    return loss_sum / static_cast<double>(steps);
+  }
+
   void Gather(int64_t start, int64_t rows) {
     const bool classify = data_.task == Task::kClassification;
     for (int64_t r = 0; r < rows; ++r) {
@@ -239,12 +268,15 @@ Status FitLaplace(const MemberSpec& spec, SgdRun& run, const PreparedData& data,
   return Status::Ok();
 }
 
-// Every basin sample's outputs on the job's validation rows and on test.
+// Every basin sample's outputs on the job's validation rows and on test: basin.samples samples
+// from seeds BasinSampleSeed, or for cyclical SG-MCMC every collected one (seed = row).
 void PredictSamples(const MemberSpec& spec, const Mlp& net, const Split& validation,
                     const PreparedData& data, MemberResult& result) {
   std::vector<float> w(net.ParameterCount());
-  for (int s = 0; s < spec.basin.samples; ++s) {
-    const uint64_t seed = BasinSampleSeed(spec.seed, s);
+  const bool collected = spec.basin.method == BasinMethod::kCyclicalSgmcmc;
+  const int64_t samples = collected ? result.basin.samples.rows() : spec.basin.samples;
+  for (int64_t s = 0; s < samples; ++s) {
+    const uint64_t seed = collected ? static_cast<uint64_t>(s) : BasinSampleSeed(spec.seed, static_cast<int>(s));
     DrawBasinSample(result.basin, seed, spec.basin.scale, w.data());
     result.sample_seeds.push_back(seed);
     result.sample_validation_outputs.push_back(PredictOutputs(net, w.data(), validation.x));
@@ -296,6 +328,54 @@ Status TrainEpochs(const MemberSpec& spec, SgdRun& run, const Split& validation,
   return Status::Ok();
 }
 
+// Cyclical SG-MCMC's update of the parameters from one minibatch gradient: the planned step
+// (common/sgmcmc_step.h) and the SGHMC velocity it carries from step to step.
+struct CyclicalUpdate {
+  SgmcmcStep step;
+  std::vector<float> velocity;
+  static void Apply(void* context, const float* grad, float* params) {
+    CyclicalUpdate& u = *static_cast<CyclicalUpdate*>(context);
+    SgmcmcEntries(u.step, 0, grad, params, u.velocity.data(), static_cast<int64_t>(u.velocity.size()));
+  }
+};
+
+// The training epochs under cyclical SG-MCMC: train.epochs x steps-per-epoch steps cut into
+// basin.sgmcmc.cycles cycles, the weights copied into `collected` after every sample step
+// (IsSampleStep). Validation NLL is recorded after every epoch; nothing stops early.
+Status TrainCyclical(const MemberSpec& spec, SgdRun& run, const Split& validation, const ProgressFn& progress,
+                     const std::atomic<bool>* cancel, MemberResult& result, Matrix& collected) {
+  const SgmcmcConfig& config = spec.basin.sgmcmc;
+  const int64_t per_epoch = run.StepsPerEpoch();
+  const CyclicalSchedule schedule = CyclicalScheduleFor(config, per_epoch * spec.train.epochs);
+  CHORUS_RETURN_IF_ERROR(ValidateCyclicalSchedule(schedule).WithContext(
+      "basin (cyclical_sgmcmc over " + std::to_string(schedule.total_steps) + " steps)"));
+  const int64_t dim = run.net().ParameterCount();
+  collected.resize(SampleCount(schedule), dim);
+  CyclicalUpdate update{{}, std::vector<float>(static_cast<size_t>(dim), 0.0f)};
+  const uint64_t noise_seed = Derive(spec.seed, "sgmcmc_noise");
+  const int64_t train_rows = static_cast<int64_t>(run.rows().size());
+  int64_t taken = 0;
+  for (int epoch = 0; epoch < spec.train.epochs; ++epoch) {
+    const int64_t base = per_epoch * epoch;
+    auto set_step = [&](int64_t step) {
+      update.step = PlanSgmcmcStep(config, schedule, spec.train.optimizer.lr, spec.train.optimizer.weight_decay,
+                                   train_rows, noise_seed, base + step);
+    };
+    auto after_step = [&](int64_t step) {
+      if (!IsSampleStep(schedule, base + step)) return;
+      collected.row(taken++) = Eigen::Map<const Eigen::RowVectorXf>(run.params().data(), dim);
+    };
+    StatusOr<double> loss = run.EpochWithUpdate(epoch, set_step, &CyclicalUpdate::Apply, &update, after_step);
+    if (!loss.ok()) return loss.status();
+    result.epoch_loss.push_back(loss.value());
+    if (progress) progress({spec.index, epoch + 1, spec.train.epochs, loss.value()});
+    if (cancel != nullptr && cancel->load()) return Status::Cancelled("stopped on request");
+    if (validation.rows() > 0) result.validation_nll.push_back(SplitNll(run.net(), run.params().data(), validation));
+  }
+  result.best_epoch = spec.train.epochs;
+  return Status::Ok();
+}
+
 }  // namespace
 
 const char* JobRoleName(JobRole role) {
@@ -343,13 +423,25 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   result.fold = spec.fold;
   const bool basin = spec.basin.method != BasinMethod::kNone;
   const bool laplace = spec.basin.method == BasinMethod::kLaplaceLastLayer;
-  const int all_epochs = spec.train.epochs + (basin && !laplace ? spec.basin.epochs : 0);
-  CHORUS_RETURN_IF_ERROR(
-      TrainEpochs(spec, run, validation, progress, cancel, all_epochs, result).WithContext(where));
+  const bool cyclical = spec.basin.method == BasinMethod::kCyclicalSgmcmc;
+  const int all_epochs = spec.train.epochs + (basin && !laplace && !cyclical ? spec.basin.epochs : 0);
+  Matrix collected;
+  if (cyclical) {
+    CHORUS_RETURN_IF_ERROR(
+        TrainCyclical(spec, run, validation, progress, cancel, result, collected).WithContext(where));
+  } else {
+    CHORUS_RETURN_IF_ERROR(
+        TrainEpochs(spec, run, validation, progress, cancel, all_epochs, result).WithContext(where));
+  }
   result.validation_outputs = PredictOutputs(run.net(), run.params().data(), validation.x);
   result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x);
   result.parameters = run.params();
-  if (laplace) {
+  if (cyclical) {
+    result.basin.method = BasinMethod::kCyclicalSgmcmc;
+    result.basin.mean = result.parameters;
+    result.basin.samples = std::move(collected);
+    PredictSamples(spec, run.net(), validation, data, result);
+  } else if (laplace) {
     CHORUS_RETURN_IF_ERROR(FitLaplace(spec, run, data, validation, result).WithContext(where));
     PredictSamples(spec, run.net(), validation, data, result);
   } else if (basin) {

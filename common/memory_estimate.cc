@@ -74,12 +74,20 @@ MemoryEstimate EstimateRunMemory(const Config& config, const PreparedData& data,
     laplace_kept_floats = full ? last_layer * last_layer : (last_hidden + 1) * (last_hidden + 1);
     laplace_fit_floats = 6 * laplace_kept_floats + data.train.rows() * last_hidden;
   }
-  const int64_t per_member_floats = e.parameters * (6 + config.train.parts + basin_vectors) +
+  // Cyclical SG-MCMC keeps every collected weight vector, and an SGHMC velocity while training.
+  const int64_t collected_vectors =
+      basin.method == BasinMethod::kCyclicalSgmcmc
+          ? int64_t{basin.sgmcmc.cycles} * basin.sgmcmc.samples_per_cycle + 1
+          : 0;
+  const int64_t per_member_floats = e.parameters * (6 + config.train.parts + basin_vectors + collected_vectors) +
                                     int64_t{config.train.batch_size} * widths * 4 + laplace_fit_floats;
   e.training_bytes = int64_t{members_at_once} * per_member_floats * 4;
-  const int64_t samples = basin.method == BasinMethod::kNone ? 1 : basin.samples;
+  const int64_t samples = basin.method == BasinMethod::kNone ? 1
+                          : basin.method == BasinMethod::kCyclicalSgmcmc ? collected_vectors - 1
+                                                                         : basin.samples;
   const int64_t held_out_rows = data.folds > 0 ? data.train.rows() : data.validation.rows();
-  const int64_t result_floats = e.parameters * (1 + basin_vectors / 2) + laplace_kept_floats +
+  const int64_t result_floats = e.parameters * (1 + basin_vectors / 2 + samples * (collected_vectors > 0)) +
+                                laplace_kept_floats +
                                 samples * (held_out_rows + data.test.rows()) * outputs;
   e.results_bytes = int64_t{config.ensemble.members} * result_floats * 4;
   const int64_t rows = data.train.rows() + data.validation.rows() + data.test.rows();

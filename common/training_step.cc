@@ -59,8 +59,24 @@ void TrainingStep::RunPart(void* context, int64_t s) {
 
 double TrainingStep::Run(const ConstMatrixRef& x, const int32_t* labels, const float* targets,
                          float lr, float* params, const ParallelFor* parallel) {
+  const bool fused = parts_.size() == 1 && !(optimizer_.clip_norm > 0.0) && x.rows() < kFusedBelowRows;
+  const double loss = Gradient(x, labels, targets, lr, params, parallel, fused);
+  if (!std::isfinite(loss) || fused) return loss;
+  SgdStep(optimizer_, lr, net_.ParameterCount(), parts_[0].grad.data(), params, velocity_.data());
+  return loss;
+}
+
+double TrainingStep::RunWithUpdate(const ConstMatrixRef& x, const int32_t* labels, const float* targets,
+                                   float* params, const ParallelFor* parallel, GradientUpdate update,
+                                   void* context) {
+  const double loss = Gradient(x, labels, targets, 0.0f, params, parallel, false);
+  if (std::isfinite(loss)) update(context, parts_[0].grad.data(), params);
+  return loss;
+}
+
+double TrainingStep::Gradient(const ConstMatrixRef& x, const int32_t* labels, const float* targets,
+                              float lr, float* params, const ParallelFor* parallel, bool fused) {
   const int parts = static_cast<int>(parts_.size());
-  const bool fused = parts == 1 && !(optimizer_.clip_norm > 0.0) && x.rows() < kFusedBelowRows;
   PartJob job{this, &x, labels, targets, params, x.rows(), lr, fused};
   if (parallel != nullptr && parts > 1) {
     parallel->Run(parts, &TrainingStep::RunPart, &job);
@@ -78,7 +94,6 @@ double TrainingStep::Run(const ConstMatrixRef& x, const int32_t* labels, const f
     for (int64_t i = 0; i < n; ++i) grad[i] += g[i];
   }
   if (optimizer_.clip_norm > 0.0) ClipGradientNorm(grad, n, optimizer_.clip_norm);
-  SgdStep(optimizer_, lr, n, grad, params, velocity_.data());
   return loss;
 }
 

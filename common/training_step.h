@@ -43,6 +43,14 @@ class TrainingStep {
   double Run(const ConstMatrixRef& x, const int32_t* labels, const float* targets, float lr,
              float* params, const ParallelFor* parallel);
 
+  // The same minibatch gradient (of the mean loss, clipped as configured; never fused), handed to
+  // update(context, grad, params) instead of the SGD step: for samplers with their own update
+  // (common/sgmcmc_step.h). The momentum buffer is not used. Same return value as Run; update is
+  // not called when the loss is not finite.
+  using GradientUpdate = void (*)(void* context, const float* grad, float* params);
+  double RunWithUpdate(const ConstMatrixRef& x, const int32_t* labels, const float* targets,
+                       float* params, const ParallelFor* parallel, GradientUpdate update, void* context);
+
   // Zeroes the momentum buffer, as at construction: for continuing from parameters restored
   // from an earlier epoch, whose momentum was not kept.
   void ResetMomentum();
@@ -56,6 +64,10 @@ class TrainingStep {
   };
   struct PartJob;  // what one call of the parallel body needs
   static void RunPart(void* job, int64_t part);
+  // Runs the parts and, unless fused or the loss is not finite, leaves the summed (and clipped)
+  // gradient in parts_[0].grad. Returns the loss.
+  double Gradient(const ConstMatrixRef& x, const int32_t* labels, const float* targets, float lr,
+                  float* params, const ParallelFor* parallel, bool fused);
 
   const Mlp& net_;
   Task task_;

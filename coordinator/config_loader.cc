@@ -281,9 +281,19 @@ Status LoadTrain(const Section& s, TrainConfig* t) {
 
 Status LoadBasin(const Section& s, BasinConfig* b) {
   CHORUS_RETURN_IF_ERROR(s.Check({"method", "epochs", "lr", "snapshots", "rank", "samples", "scale",
-                                  "hessian", "prior_precision"}));
+                                  "hessian", "prior_precision", "sampler", "cycles", "exploration",
+                                  "samples_per_cycle", "posterior_temperature", "friction"}));
   CHORUS_RETURN_IF_ERROR(s.GetEnum<BasinMethod>("method", &b->method, ParseBasinMethod,
-                                                "none, gaussian_diag, gaussian_lowrank, laplace_last_layer"));
+                                                "none, gaussian_diag, gaussian_lowrank, laplace_last_layer, "
+                                                "cyclical_sgmcmc"));
+  SgmcmcConfig& m = b->sgmcmc;
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<SgmcmcSampler>("sampler", &m.sampler, ParseSgmcmcSampler, "sgld, sghmc"));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("cycles", &m.cycles, "a cycle count", 1, 100000));
+  CHORUS_RETURN_IF_ERROR(s.Get<double>("exploration", &m.exploration_fraction, "a fraction", 0.0, 0.999999));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("samples_per_cycle", &m.samples_per_cycle,
+                                    "a sample count (at most 10000 over all cycles)", 1, 10000 / m.cycles));
+  CHORUS_RETURN_IF_ERROR(s.Get<double>("posterior_temperature", &m.temperature, "a temperature", 0.0, 1e6));
+  CHORUS_RETURN_IF_ERROR(s.Get<double>("friction", &m.friction, "a friction", 1e-6, 1.0));
   CHORUS_RETURN_IF_ERROR(s.GetEnum<LaplaceHessian>("hessian", &b->hessian, ParseLaplaceHessian,
                                                    "auto, full, kronecker"));
   if (s.Has("prior_precision") && s.Node("prior_precision").IsScalar() &&
@@ -299,6 +309,9 @@ Status LoadBasin(const Section& s, BasinConfig* b) {
   CHORUS_RETURN_IF_ERROR(s.Get<int>("rank", &b->rank, "a rank (at most snapshots)", 2, b->snapshots));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("samples", &b->samples, "a sample count", 1, 10000));
   if (s.Has("scale") && s.Node("scale").IsScalar() && s.Node("scale").Scalar() == "tune") {
+    if (b->method == BasinMethod::kCyclicalSgmcmc) {
+      return s.Error(s.Node("scale"), s.Path("scale"), "cyclical_sgmcmc samples are kept as drawn; remove scale: tune");
+    }
     b->tune_scale = true;
     return Status::Ok();
   }
@@ -512,6 +525,14 @@ void EmitBasin(YAML::Emitter& out, const BasinConfig& b) {
         << YAML::Key << "prior_precision" << YAML::Value;
     if (b.prior_precision == 0) out << "tune";
     else out << b.prior_precision;
+  }
+  if (b.method == BasinMethod::kCyclicalSgmcmc) {
+    const SgmcmcConfig& m = b.sgmcmc;
+    out << YAML::Key << "sampler" << YAML::Value << SgmcmcSamplerName(m.sampler)
+        << YAML::Key << "cycles" << YAML::Value << m.cycles << YAML::Key << "exploration"
+        << YAML::Value << m.exploration_fraction << YAML::Key << "samples_per_cycle" << YAML::Value
+        << m.samples_per_cycle << YAML::Key << "posterior_temperature" << YAML::Value << m.temperature
+        << YAML::Key << "friction" << YAML::Value << m.friction;
   }
   out << YAML::EndMap;
 }

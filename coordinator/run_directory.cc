@@ -2,6 +2,8 @@
 
 #include <sys/stat.h>
 
+#include <fstream>
+
 #include <cerrno>
 #include <cstring>
 #include <ctime>
@@ -74,6 +76,19 @@ Status RunDirectory::LogJobEvent(const MemberSpec& spec, bool failed, nlohmann::
   if (!member) fields["role"] = JobRoleName(spec.role);
   return LogEvent(member ? (failed ? "member_failed" : "member_finished")
                          : (failed ? "job_failed" : "job_finished"), fields);
+}
+
+std::set<std::string> RunDirectory::JobsLoggedFinished() const {
+  std::set<std::string> jobs;
+  std::ifstream in(File("events.jsonl"));
+  std::string line;
+  while (std::getline(in, line)) {
+    const nlohmann::json e = nlohmann::json::parse(line, nullptr, false);
+    if (!e.is_object() || !e.contains("job") || !e["job"].is_string()) continue;
+    const std::string kind = e.value("event", "");
+    if (kind == "member_finished" || kind == "job_finished") jobs.insert(e["job"].get<std::string>());
+  }
+  return jobs;
 }
 
 Status RunDirectory::LogEvent(const std::string& kind, nlohmann::json fields) {

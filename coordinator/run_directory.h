@@ -4,6 +4,7 @@
 #pragma once
 
 #include <mutex>
+#include <set>
 #include <string>
 
 #include <nlohmann/json.hpp>
@@ -32,6 +33,9 @@ class RunDirectory {
 
   // Appends {"time": ISO-8601 UTC, "event": kind, ...fields} to events.jsonl.
   Status LogEvent(const std::string& kind, nlohmann::json fields = nlohmann::json::object());
+  // The jobs events.jsonl records as finished (member_finished / job_finished); unreadable or
+  // torn lines are skipped. For resume: a result whose event was lost in a crash.
+  std::set<std::string> JobsLoggedFinished() const;
 
   // A job finished or failed: member_finished / member_failed for members, job_finished /
   // job_failed (with "role") for fold and search jobs; "member" and "job" (its name) added to

@@ -1,6 +1,8 @@
 #include "coordinator/run_stages.h"
 
 #include <filesystem>
+#include <set>
+#include <string>
 
 #include "common/file_util.h"
 #include "common/folds.h"
@@ -38,9 +40,13 @@ class StageRunner {
   StatusOr<StageResults> Run(const std::string& stage, const std::vector<MemberSpec>& specs) {
     StageResults out;
     std::vector<MemberSpec> pending;
+    const std::set<std::string> logged = dir_.JobsLoggedFinished();
     for (const MemberSpec& s : specs) {
       StatusOr<MemberResult> r = Load(s);
       if (!r.ok()) pending.push_back(s);
+      // A coordinator stopped between storing a result and logging it: the result stands, and the
+      // log gets the event it lacks, marked as recovered.
+      if (r.ok() && logged.count(JobName(s)) == 0) dir_.LogJobEvent(s, false, {{"recovered", true}});
       out.results.push_back(r.ok() ? std::optional<MemberResult>(std::move(r).value()) : std::nullopt);
       out.causes.emplace_back();
     }

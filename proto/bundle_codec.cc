@@ -32,6 +32,11 @@ void ToWire(const BasinFit& fit, wire::BasinFit* out) {
   out->mutable_deviations()->set_cols(fit.deviations.cols());
   out->mutable_deviations()->mutable_values()->Add(fit.deviations.data(),
                                                    fit.deviations.data() + fit.deviations.size());
+  if (fit.method == BasinMethod::kCyclicalSgmcmc) {
+    out->mutable_samples()->set_rows(fit.samples.rows());
+    out->mutable_samples()->set_cols(fit.samples.cols());
+    out->mutable_samples()->mutable_values()->Add(fit.samples.data(), fit.samples.data() + fit.samples.size());
+  }
   if (fit.method != BasinMethod::kLaplaceLastLayer) return;
   const LaplaceFactors& f = fit.laplace;
   wire::LaplaceFactors* l = out->mutable_laplace();
@@ -151,6 +156,9 @@ StatusOr<BasinFit> FromWire(const wire::BasinFit& w, const std::string& where) {
   std::copy(w.deviations().values().begin(), w.deviations().values().end(), fit.deviations.data());
   if (fit.method == BasinMethod::kLaplaceLastLayer) {
     CHORUS_ASSIGN_OR_RETURN(fit.laplace, FromWire(w.laplace(), where));
+  }
+  if (fit.method == BasinMethod::kCyclicalSgmcmc) {
+    CHORUS_ASSIGN_OR_RETURN(fit.samples, FromWire(w.samples(), where + ": samples"));
   }
   return fit;
 }

@@ -14,7 +14,7 @@ using google::protobuf::internal::WireFormatLite;
 
 // Field numbers of proto/job.proto.
 enum MatrixField { kRows = 1, kCols = 2, kValues = 3 };
-enum BasinField { kMethod = 1, kMean = 2, kVariance = 3, kDeviations = 4, kLaplace = 5 };
+enum BasinField { kMethod = 1, kMean = 2, kVariance = 3, kDeviations = 4, kLaplace = 5, kSamples = 6 };
 enum LaplaceField {
   kForm = 1, kOutputs = 2, kPriorPrecision = 3, kEigenvectors = 4, kEigenvalues = 5,
   kOutputEigenvectors = 6, kOutputEigenvalues = 7
@@ -103,6 +103,7 @@ class JobResultWriter {
       : r_(r), widths_(widths), data_hash_(data_hash), config_hash_(config_hash),
         basin_(r.basin.method != BasinMethod::kNone),
         laplace_(r.basin.method == BasinMethod::kLaplaceLastLayer),
+        collected_(r.basin.method == BasinMethod::kCyclicalSgmcmc),
         method_(basin_ ? BasinMethodName(r.basin.method) : ""),
         form_(laplace_ ? LaplaceFormName(r.basin.laplace.form) : ""), role_(JobRoleName(r.role)) {}
 
@@ -156,6 +157,7 @@ class JobResultWriter {
     WritePacked(out, kVariance, r_.basin.variance.data(), r_.basin.variance.size());
     WriteMatrixField(out, kDeviations, r_.basin.deviations);
     if (laplace_) WriteLaplace(out);
+    if (collected_) WriteMatrixField(out, kSamples, r_.basin.samples);
     if (!r_.sample_seeds.empty()) {
       WriteDelimitedHeader(out, kSampleSeeds, SeedsPayloadSize());
       for (uint64_t s : r_.sample_seeds) out.WriteVarint64(s);
@@ -203,7 +205,8 @@ class JobResultWriter {
            PackedSize(kMean, r_.basin.mean.size() * sizeof(float)) +
            PackedSize(kVariance, r_.basin.variance.size() * sizeof(float)) +
            DelimitedSize(kDeviations, MatrixPayloadSize(r_.basin.deviations)) +
-           (laplace_ ? DelimitedSize(kLaplace, LaplacePayloadSize()) : 0);
+           (laplace_ ? DelimitedSize(kLaplace, LaplacePayloadSize()) : 0) +
+           (collected_ ? DelimitedSize(kSamples, MatrixPayloadSize(r_.basin.samples)) : 0);
   }
 
   const MemberResult& r_;
@@ -212,6 +215,7 @@ class JobResultWriter {
   const std::string& config_hash_;
   const bool basin_;
   const bool laplace_;
+  const bool collected_;
   const std::string method_;
   const std::string form_;
   const std::string role_;
@@ -264,7 +268,13 @@ Status BasinFromWire(const wire::JobResult& msg, const std::string& source, Memb
     f.output_eigenvalues.assign(w.output_eigenvalues().begin(), w.output_eigenvalues().end());
     CHORUS_RETURN_IF_ERROR(CheckLaplaceFactors(r.basin, source));
   }
+  if (r.basin.method == BasinMethod::kCyclicalSgmcmc) {
+    CHORUS_ASSIGN_OR_RETURN(r.basin.samples, FromWire(msg.basin().samples(), source));
+  }
   r.sample_seeds.assign(msg.sample_seeds().begin(), msg.sample_seeds().end());
+  if (r.basin.method == BasinMethod::kCyclicalSgmcmc) {
+    CHORUS_RETURN_IF_ERROR(CheckCollectedSamples(r.basin, r.sample_seeds, source));
+  }
   for (const auto& m : msg.sample_validation_outputs()) {
     CHORUS_ASSIGN_OR_RETURN(Matrix v, FromWire(m, source));
     r.sample_validation_outputs.push_back(std::move(v));

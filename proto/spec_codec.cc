@@ -29,6 +29,12 @@ void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
   out->set_basin_scale(b.scale);
   out->set_basin_hessian(LaplaceHessianName(b.hessian));
   out->set_basin_prior_precision(b.prior_precision);
+  out->set_sgmcmc_sampler(SgmcmcSamplerName(b.sgmcmc.sampler));
+  out->set_sgmcmc_cycles(b.sgmcmc.cycles);
+  out->set_sgmcmc_exploration(b.sgmcmc.exploration_fraction);
+  out->set_sgmcmc_samples_per_cycle(b.sgmcmc.samples_per_cycle);
+  out->set_sgmcmc_temperature(b.sgmcmc.temperature);
+  out->set_sgmcmc_friction(b.sgmcmc.friction);
   out->set_early_stopping(t.early_stopping.mode == Switch::kOn);
   out->set_patience(t.early_stopping.patience);
   out->set_beta_nll(t.beta_nll);
@@ -46,8 +52,9 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   const auto basin = ParseBasinMethod(w.basin_method());
   const auto role = ParseJobRole(w.role());
   const auto hessian = ParseLaplaceHessian(w.basin_hessian());
-  if (!activation || !schedule || !basin || !role || !hessian) {
-    return Status::InvalidInput("job spec: unknown activation, schedule, basin method, hessian or role");
+  const auto sampler = ParseSgmcmcSampler(w.sgmcmc_sampler());
+  if (!activation || !schedule || !basin || !role || !hessian || !sampler) {
+    return Status::InvalidInput("job spec: unknown activation, schedule, basin method, hessian, sampler or role");
   }
   const bool sizes_ok = w.epochs() >= 1 && w.batch_size() >= 1 && w.parts() >= 1 &&
                         w.parts() <= w.batch_size() && w.lr() > 0 && w.hidden_size() <= 64 &&
@@ -76,6 +83,9 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
              w.basin_samples(), w.basin_scale()};
   s.basin.hessian = *hessian;
   s.basin.prior_precision = w.basin_prior_precision();
+  s.basin.sgmcmc = {*sampler, w.sgmcmc_cycles(), w.sgmcmc_exploration(), w.sgmcmc_samples_per_cycle(),
+                    w.sgmcmc_temperature(), w.sgmcmc_friction()};
+  if (Status st = ValidateSgmcmcConfig(s.basin.sgmcmc); !st.ok()) return st.WithContext("job spec");
   s.train.early_stopping = {w.early_stopping() ? Switch::kOn : Switch::kOff, w.patience()};
   s.train.beta_nll = w.beta_nll();
   s.role = *role;

@@ -74,5 +74,42 @@ TEST(MemberTrainingTest, LaplaceSamplesVaryOnlyTheLastLayer) {
   EXPECT_EQ(fixed.value().basin.laplace.prior_precision, 3.5);
 }
 
+// basin.method cyclical_sgmcmc: cycles x samples_per_cycle samples, each the weights at a sample
+// step, whose outputs the result carries; the same spec gives the same bits; with the posterior
+// temperature 0 (no noise) SGLD is plain SGD under the cyclical schedule, so the noise is what
+// makes the samples of a run at temperature 1 differ from those of the noiseless run.
+TEST(MemberTrainingTest, CyclicalSgmcmcCollectsSamplesAtTheSampleSteps) {
+  const PreparedData d = testing::SmallClassificationData(9);
+  MemberSpec spec = testing::SmallMemberSpec(0, 21, 8, 30);  // 150 rows: 5 steps an epoch, 40 steps
+  spec.basin.method = BasinMethod::kCyclicalSgmcmc;
+  spec.basin.sgmcmc = {SgmcmcSampler::kSgld, 4, 0.5, 2, 1.0, 0.1};
+  const StatusOr<MemberResult> a = TrainMember(spec, d, nullptr), b = TrainMember(spec, d, nullptr);
+  ASSERT_TRUE(a.ok() && b.ok()) << a.status().ToString();
+  const MemberResult& r = a.value();
+  EXPECT_EQ(r.epoch_loss.size(), 8u);
+  ASSERT_EQ(r.basin.samples.rows(), 8);
+  ASSERT_EQ(r.sample_seeds, (std::vector<uint64_t>{0, 1, 2, 3, 4, 5, 6, 7}));
+  const Mlp net = NetworkFor(spec.model, d);
+  std::vector<float> w(net.ParameterCount());
+  for (int s = 0; s < 8; ++s) {
+    DrawBasinSample(r.basin, static_cast<uint64_t>(s), 1.0, w.data());
+    EXPECT_TRUE(PredictOutputs(net, w.data(), d.test.x) == r.sample_test_outputs[s]) << "sample " << s;
+    if (s > 0) EXPECT_FALSE(r.basin.samples.row(s) == r.basin.samples.row(s - 1)) << "sample " << s;
+  }
+  // The last sample is the last step's weights.
+  EXPECT_TRUE(std::equal(r.parameters.begin(), r.parameters.end(), r.basin.samples.row(7).data()));
+  EXPECT_TRUE(r.basin.samples == b.value().basin.samples);
+  spec.basin.sgmcmc.temperature = 0;
+  const StatusOr<MemberResult> cold = TrainMember(spec, d, nullptr);
+  ASSERT_TRUE(cold.ok());
+  EXPECT_FALSE(cold.value().basin.samples == r.basin.samples);
+  // More cycles than steps is refused with the place.
+  spec.basin.sgmcmc.cycles = 41;
+  const StatusOr<MemberResult> refused = TrainMember(spec, d, nullptr);
+  ASSERT_FALSE(refused.ok());
+  EXPECT_NE(refused.status().message().find("cyclical_sgmcmc over 40 steps"), std::string::npos)
+      << refused.status().ToString();
+}
+
 }  // namespace
 }  // namespace chorus

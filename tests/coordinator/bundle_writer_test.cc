@@ -58,6 +58,8 @@ class BundleWriterTest : public ::testing::TestWithParam<Scenario> {
     c.ensemble.weighting = s.weighting;
     c.ensemble.basin = {s.basin, 1, 0.01, 4, 3, 3, 1.5};
     c.ensemble.basin.hessian = s.hessian;
+    // Cyclical SG-MCMC: 2 epochs of 13 steps in 2 cycles, sampling in each cycle's second half.
+    c.ensemble.basin.sgmcmc = {SgmcmcSampler::kSghmc, 2, 0.5, 2, 1.0, 0.1};
     return c;
   }
 
@@ -127,7 +129,9 @@ INSTANTIATE_TEST_SUITE_P(
                                BasinMethod::kLaplaceLastLayer, Weighting::kUniform},
                       Scenario{"RegressionLaplaceKronecker", Task::kRegression,
                                BasinMethod::kLaplaceLastLayer, Weighting::kStacking,
-                               LaplaceHessian::kKronecker}),
+                               LaplaceHessian::kKronecker},
+                      Scenario{"ClassificationCyclicalSgmcmc", Task::kClassification,
+                               BasinMethod::kCyclicalSgmcmc, Weighting::kUniform}),
     [](const ::testing::TestParamInfo<Scenario>& info) { return info.param.name; });
 
 }  // namespace

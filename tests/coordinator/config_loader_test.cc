@@ -253,5 +253,34 @@ TEST(ConfigLoaderTest, LaplaceBasinAndShiftTestKeysAndTheirRoundTrip) {
   EXPECT_NE(bad.status().message().find("ensemble.basin.hessian"), std::string::npos) << bad.status().ToString();
 }
 
+TEST(ConfigLoaderTest, CyclicalSgmcmcKeysAndTheirRoundTrip) {
+  const std::string text = std::string(kMinimal) +
+      "ensemble:\n  basin: {method: cyclical_sgmcmc, sampler: sgld, cycles: 6, exploration: 0.5,\n"
+      "          samples_per_cycle: 2, posterior_temperature: 0.3, friction: 0.2}\n";
+  StatusOr<Config> a = ParseConfig(text, "/x/a.yaml");
+  ASSERT_TRUE(a.ok()) << a.status().ToString();
+  const SgmcmcConfig& m = a.value().ensemble.basin.sgmcmc;
+  EXPECT_EQ(m.sampler, SgmcmcSampler::kSgld);
+  EXPECT_EQ(m.cycles, 6);
+  EXPECT_EQ(m.exploration_fraction, 0.5);
+  EXPECT_EQ(m.samples_per_cycle, 2);
+  EXPECT_EQ(m.temperature, 0.3);
+  EXPECT_EQ(m.friction, 0.2);
+  StatusOr<Config> b = ParseConfig(ConfigToYaml(a.value()), "/y/b.yaml");
+  ASSERT_TRUE(b.ok()) << b.status().ToString() << "\n" << ConfigToYaml(a.value());
+  EXPECT_EQ(ConfigHash(a.value()), ConfigHash(b.value()));
+  Config warmer = a.value();
+  warmer.ensemble.basin.sgmcmc.temperature = 1;
+  EXPECT_NE(ConfigHash(a.value()), ConfigHash(warmer)) << "the temperature changes the samples";
+  for (const auto& [yaml, place] : {std::pair<std::string, std::string>{
+                                        "ensemble: {basin: {method: cyclical_sgmcmc, scale: tune}}\n", "ensemble.basin.scale"},
+                                    {"ensemble: {basin: {method: cyclical_sgmcmc, sampler: langevin}}\n", "ensemble.basin.sampler"},
+                                    {"ensemble: {basin: {method: cyclical_sgmcmc, exploration: 1}}\n", "ensemble.basin.exploration"}}) {
+    const StatusOr<Config> bad = ParseConfig(std::string(kMinimal) + yaml, "cfg.yaml");
+    ASSERT_FALSE(bad.ok()) << yaml;
+    EXPECT_NE(bad.status().message().find(place), std::string::npos) << bad.status().ToString();
+  }
+}
+
 }  // namespace
 }  // namespace chorus

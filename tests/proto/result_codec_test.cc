@@ -54,6 +54,7 @@ std::string ReferenceBytes(const MemberResult& r, const std::vector<int>& widths
       MatrixToWire(f.output_eigenvectors, l->mutable_output_eigenvectors());
       l->mutable_output_eigenvalues()->Add(f.output_eigenvalues.begin(), f.output_eigenvalues.end());
     }
+    if (r.basin.method == BasinMethod::kCyclicalSgmcmc) MatrixToWire(r.basin.samples, b->mutable_samples());
     msg.mutable_sample_seeds()->Add(r.sample_seeds.begin(), r.sample_seeds.end());
     for (const Matrix& m : r.sample_validation_outputs) MatrixToWire(m, msg.add_sample_validation_outputs());
     for (const Matrix& m : r.sample_test_outputs) MatrixToWire(m, msg.add_sample_test_outputs());
@@ -110,12 +111,15 @@ MemberResult RandomResult(uint64_t seed, int64_t parameters, BasinMethod method,
       f.output_eigenvectors = RandomMatrix(rng, 3, 3);
       for (int i = 0; i < 3; ++i) f.output_eigenvalues.push_back(static_cast<float>(rng.NextUniform()));
     }
+  } else if (method == BasinMethod::kCyclicalSgmcmc) {
+    r.basin.samples = RandomMatrix(rng, samples, parameters);
   } else {
     for (int64_t i = 0; i < parameters; ++i) r.basin.variance.push_back(static_cast<float>(rng.NextUniform()));
   }
   if (method == BasinMethod::kGaussianLowRank) r.basin.deviations = RandomMatrix(rng, 3, parameters);
   for (int s = 0; s < samples; ++s) {
-    r.sample_seeds.push_back(Derive(seed, 100 + static_cast<uint64_t>(s)));
+    r.sample_seeds.push_back(method == BasinMethod::kCyclicalSgmcmc ? static_cast<uint64_t>(s)
+                                                                    : Derive(seed, 100 + static_cast<uint64_t>(s)));
     r.sample_validation_outputs.push_back(RandomMatrix(rng, 7, 3));
     r.sample_test_outputs.push_back(RandomMatrix(rng, 5, 3));
   }
@@ -129,7 +133,7 @@ const std::string kConfigHash(64, 'b');
 TEST(ResultCodecTest, BytesEqualLibprotobufsSerialisationOfTheMessage) {
   for (uint64_t seed = 1; seed <= 6; ++seed) {
     for (BasinMethod method : {BasinMethod::kNone, BasinMethod::kGaussianDiag, BasinMethod::kGaussianLowRank,
-                                BasinMethod::kLaplaceLastLayer}) {
+                                BasinMethod::kLaplaceLastLayer, BasinMethod::kCyclicalSgmcmc}) {
       const MemberResult r = RandomResult(seed, 51, method, static_cast<int>(seed % 3) + 1);
       SCOPED_TRACE("seed " + std::to_string(seed) + ", " + BasinMethodName(method));
       EXPECT_EQ(EncodeJobResult(r, kWidths, kDataHash, kConfigHash),
@@ -226,6 +230,16 @@ TEST(ResultCodecTest, LaplaceFitsRoundTripAndBadFactorsAreRefused) {
     EXPECT_TRUE(a.output_eigenvectors == b.output_eigenvectors);
     EXPECT_EQ(a.output_eigenvalues, b.output_eigenvalues);
   }
+  // Collected samples: a seed naming no row is refused.
+  MemberResult collected = RandomResult(9, 51, BasinMethod::kCyclicalSgmcmc, 2);
+  ASSERT_TRUE(DecodeJobResult(EncodeJobResult(collected, kWidths, kDataHash, kConfigHash), "r.pb", kDataHash,
+                              kConfigHash).ok());
+  collected.sample_seeds[1] = 2;
+  const StatusOr<MemberResult> beyond =
+      DecodeJobResult(EncodeJobResult(collected, kWidths, kDataHash, kConfigHash), "r.pb", kDataHash, kConfigHash);
+  ASSERT_FALSE(beyond.ok());
+  EXPECT_NE(beyond.status().message().find("r.pb: collected samples: sample 2 of 2"), std::string::npos)
+      << beyond.status().ToString();
   const MemberResult good = RandomResult(8, 51, BasinMethod::kLaplaceLastLayer, 1);
   const std::pair<const char*, std::function<void(LaplaceFactors&)>> breakages[] = {
       {"negative eigenvalue", [](LaplaceFactors& f) { f.eigenvalues[2] = -1.0f; }},
