@@ -1,11 +1,12 @@
 #!/usr/bin/env bash
 # Full Fashion-MNIST (Xiao et al. 2017, Debian dataset-fashion-mnist), 784-512-512-10: test
-# accuracy, NLL and ECE for 1 member, 5 members, 5 members with low-rank basin fits (S = 10) and 5
-# members with last-layer Laplace fits (S = 20), each before and after temperature, the AUROC of
+# accuracy, NLL and ECE for 1 member, 5 members, 5 members with low-rank basin fits (S = 10), 5
+# members with last-layer Laplace fits (S = 20) and 5 members trained by cyclical SG-MCMC (SGHMC, 4
+# cycles, 3 samples each), each before and after temperature, the AUROC of
 # entropy and of mutual information for telling the test images rotated a quarter turn from the
 # upright ones (data.shift_test), plus wall time. Prints a Markdown table.
 # Usage: bench/fashion_mnist_table.sh [OUT_DIR [VARIANT...]]   (tens of minutes on 2 cores)
-#   VARIANT: one-member five-members five-lowrank five-laplace (default: all)
+#   VARIANT: one-member five-members five-lowrank five-laplace five-cyclical (default: all)
 set -euo pipefail
 root="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
 build="${CHORUS_BUILD_DIR:-$root/build}"
@@ -45,7 +46,8 @@ echo "| ensemble | acc (T=1) | NLL (T=1) | ECE (T=1) | acc (tuned) | NLL (tuned)
 echo "| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |"
 for spec in "one-member 1 {method: none}" "five-members 5 {method: none}" \
             "five-lowrank 5 {method: gaussian_lowrank, epochs: 5, lr: 0.01, snapshots: 20, rank: 10, samples: 10}" \
-            "five-laplace 5 {method: laplace_last_layer, samples: 20}"; do
+            "five-laplace 5 {method: laplace_last_layer, samples: 20}" \
+            "five-cyclical 5 {method: cyclical_sgmcmc, cycles: 4, samples_per_cycle: 3}"; do
   read -r name members basin <<<"$spec"
   if [ ${#wanted[@]} -gt 0 ] && [[ ! " ${wanted[*]} " =~ " $name " ]]; then continue; fi
   cfg="$(variant "$name" "$members" "$basin")"
