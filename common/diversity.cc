@@ -77,6 +77,24 @@ MemberGaussian MomentMatched(const std::vector<const MemberGaussian*>& samples) 
   return g;
 }
 
+// Diversity between members (pool: a member's samples -> its own predictive) and within members
+// (own: one sample -> its predictive, for members with at least two samples).
+template <typename Sample, typename PoolFn, typename OwnFn, typename MeasureFn>
+DiversitySummary Summarise(const std::vector<std::vector<const Sample*>>& samples, const PoolFn& pool,
+                           const OwnFn& own, const MeasureFn& measure) {
+  using Predictive = decltype(pool(samples[0]));
+  std::vector<Predictive> members;
+  std::vector<DiversityMeasures> within;
+  for (size_t m = 0; m < Kept(samples.size()); ++m) {
+    members.push_back(pool(samples[m]));
+    if (samples[m].size() < 2) continue;
+    std::vector<Predictive> predictives;
+    for (size_t s = 0; s < Kept(samples[m].size()); ++s) predictives.push_back(own(*samples[m][s]));
+    within.push_back(measure(predictives));
+  }
+  return {measure(members), AverageWithin(within)};
+}
+
 }  // namespace
 
 DiversityMeasures ClassificationDiversity(const std::vector<MatrixD>& probs) {
@@ -118,35 +136,12 @@ DiversityMeasures RegressionDiversity(const std::vector<MemberGaussian>& compone
 }
 
 DiversitySummary ClassificationDiversitySummary(const MemberSamples& samples) {
-  DiversitySummary summary;
-  std::vector<MatrixD> members;
-  std::vector<DiversityMeasures> within;
-  for (size_t m = 0; m < Kept(samples.size()); ++m) {
-    members.push_back(MeanProbabilities(samples[m]));
-    if (samples[m].size() < 2) continue;
-    std::vector<MatrixD> own;
-    for (size_t s = 0; s < Kept(samples[m].size()); ++s) own.push_back(Softmax(*samples[m][s]));
-    within.push_back(ClassificationDiversity(own));
-  }
-  summary.between_members = ClassificationDiversity(members);
-  summary.within_members = AverageWithin(within);
-  return summary;
+  return Summarise(samples, MeanProbabilities, [](const Matrix& z) { return Softmax(z); },
+                   ClassificationDiversity);
 }
 
 DiversitySummary RegressionDiversitySummary(const MemberSampleGaussians& samples) {
-  DiversitySummary summary;
-  std::vector<MemberGaussian> members;
-  std::vector<DiversityMeasures> within;
-  for (size_t m = 0; m < Kept(samples.size()); ++m) {
-    members.push_back(MomentMatched(samples[m]));
-    if (samples[m].size() < 2) continue;
-    std::vector<MemberGaussian> own;
-    for (size_t s = 0; s < Kept(samples[m].size()); ++s) own.push_back(*samples[m][s]);
-    within.push_back(RegressionDiversity(own));
-  }
-  summary.between_members = RegressionDiversity(members);
-  summary.within_members = AverageWithin(within);
-  return summary;
+  return Summarise(samples, MomentMatched, [](const MemberGaussian& g) { return g; }, RegressionDiversity);
 }
 
 }  // namespace chorus

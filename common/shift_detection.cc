@@ -3,6 +3,7 @@
 #include <cmath>
 #include <limits>
 
+#include "common/heads.h"
 #include "common/uncertainty.h"
 
 namespace chorus {
@@ -36,7 +37,7 @@ double Mean(const std::vector<double>& v) {
 
 std::vector<MatrixD> ComponentProbabilities(const std::vector<const Matrix*>& logits, double temperature) {
   std::vector<MatrixD> probs;
-  for (const Matrix* z : logits) probs.push_back(MixtureProbabilities({z}, {1.0}, temperature));
+  for (const Matrix* z : logits) probs.push_back(Softmax(*z, temperature));
   return probs;
 }
 
