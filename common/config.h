@@ -158,6 +158,9 @@ struct EnsembleConfig {
 struct ReportConfig {
   int ece_bins = 15;            // equal-width confidence bins for ECE, in [1, 1000]
   int size_curve_subsets = 10;  // random member subsets per ensemble size, >= 1
+  // The report recommends the cheapest size-grid point whose validation NLL is within this many
+  // nats of the best point's (report/compute_advice.h); in [0, 100].
+  double nll_tolerance = 0.01;
 };
 
 // A grid over training settings (top-level `search`), scored by validation NLL of one network per

@@ -7,6 +7,7 @@
 #include <string>
 #include <utility>
 
+#include "common/cpu_account.h"
 #include "common/folds.h"
 #include "common/heads.h"
 #include "common/rng.h"
@@ -414,7 +415,8 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   JobRows rows = RowsForJob(spec, data);
   if (rows.train.empty()) return Status::InvalidInput(where + ": no training rows outside the fold");
   const Split& validation = rows.validation != nullptr ? *rows.validation : rows.held_out;
-  SgdRun run(spec, data, std::move(rows.train), parallel);
+  CpuAccount cpu(parallel);
+  SgdRun run(spec, data, std::move(rows.train), cpu.parallel());
   MemberResult result;
   result.index = spec.index;
   result.seed = spec.seed;
@@ -436,17 +438,20 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   result.validation_outputs = PredictOutputs(run.net(), run.params().data(), validation.x);
   result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x);
   result.parameters = run.params();
+  result.cpu_seconds.training = cpu.Seconds();
   if (cyclical) {
     result.basin.method = BasinMethod::kCyclicalSgmcmc;
     result.basin.mean = result.parameters;
     result.basin.samples = std::move(collected);
-    PredictSamples(spec, run.net(), validation, data, result);
   } else if (laplace) {
     CHORUS_RETURN_IF_ERROR(FitLaplace(spec, run, data, validation, result).WithContext(where));
-    PredictSamples(spec, run.net(), validation, data, result);
   } else if (basin) {
     CHORUS_RETURN_IF_ERROR(RunBasinPhase(spec, run, progress, cancel, result).WithContext(where));
+  }
+  result.cpu_seconds.basin_fit = cpu.Seconds() - result.cpu_seconds.training;
+  if (basin) {
     PredictSamples(spec, run.net(), validation, data, result);
+    result.cpu_seconds.samples = cpu.Seconds() - result.cpu_seconds.training - result.cpu_seconds.basin_fit;
   }
   if (!AllFinite(result)) return Status::Diverged(where + ": a prediction is not finite");
   return result;

@@ -79,6 +79,13 @@ struct MemberResult {
   std::vector<uint64_t> sample_seeds;
   std::vector<Matrix> sample_validation_outputs;
   std::vector<Matrix> sample_test_outputs;
+  // CPU-seconds this job spent (common/cpu_account.h: its own thread and its ParallelFor items):
+  // training = the SGD epochs, their validation NLL and the trained point's outputs (cyclical
+  // SG-MCMC: the whole run, its sampling phases included); basin_fit = the basin phase or the
+  // Laplace curvature and prior tuning; samples = drawing every sample and computing its outputs.
+  struct CpuSeconds {
+    double training = 0, basin_fit = 0, samples = 0;
+  } cpu_seconds;
 
   // The member's samples' outputs on a split: the basin samples, or the trained point alone.
   std::vector<const Matrix*> ValidationSamples() const;

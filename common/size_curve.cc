@@ -14,7 +14,7 @@ using Subset = std::vector<int>;  // member indices, ascending
 
 // One subset's scores, one entry per metric that the task fills.
 struct SubsetScores {
-  std::vector<double> nll, accuracy, ece, rmse, coverage_90;
+  std::vector<double> nll, validation_nll, accuracy, ece, rmse, coverage_90;
 };
 
 // C(n, k) by C(n - k + j, j) = C(n - k + j - 1, j - 1) (n - k + j) / j, or cap + 1 once above cap.
@@ -101,6 +101,7 @@ std::vector<SizeCurvePoint> SizeGrid(
       point.members = k;
       point.samples = s;
       point.nll = Summarise(scores.nll);
+      point.validation_nll = Summarise(scores.validation_nll);
       point.accuracy = Summarise(scores.accuracy);
       point.ece = Summarise(scores.ece);
       point.rmse = Summarise(scores.rmse);
@@ -141,7 +142,10 @@ std::vector<SizeCurvePoint> ClassificationSizeGrid(
   assert(validation_logits.size() == test_logits.size() && !test_logits.empty());
   const auto score = [&](const Subset& subset, int samples, SubsetScores* scores) {
     const std::vector<double> weights(subset.size() * samples, 1.0 / (subset.size() * samples));
-    const double t = TuneTemperature(Pick(validation_logits, subset, samples), weights, validation_labels);
+    const std::vector<const Matrix*> validation_components = Pick(validation_logits, subset, samples);
+    const double t = TuneTemperature(validation_components, weights, validation_labels);
+    scores->validation_nll.push_back(
+        ScoreClassification(MixtureProbabilities(validation_components, weights, t), validation_labels, ece_bins).nll);
     const ClassificationMetrics metrics = ScoreClassification(
         MixtureProbabilities(Pick(test_logits, subset, samples), weights, t), test_labels, ece_bins);
     scores->nll.push_back(metrics.nll);
@@ -159,7 +163,10 @@ std::vector<SizeCurvePoint> RegressionSizeGrid(
   assert(validation.size() == test.size() && !test.empty());
   const auto score = [&](const Subset& subset, int samples, SubsetScores* scores) {
     const std::vector<double> weights(subset.size() * samples, 1.0 / (subset.size() * samples));
-    const double s = TuneStddevScale(Pick(validation, subset, samples), weights, validation_targets);
+    const std::vector<const MemberGaussian*> validation_components = Pick(validation, subset, samples);
+    const double s = TuneStddevScale(validation_components, weights, validation_targets);
+    scores->validation_nll.push_back(
+        ScoreRegression(MixtureGaussians(validation_components, weights, s), validation_targets).nll);
     const RegressionMetrics metrics =
         ScoreRegression(MixtureGaussians(Pick(test, subset, samples), weights, s), test_targets);
     scores->nll.push_back(metrics.nll);

@@ -14,12 +14,14 @@ struct Spread {
   double mean = 0, min = 0, max = 0;
 };
 
-// One point: k members, s samples per member (1 until basin fits exist). Classification fills
-// nll, accuracy, ece; regression fills nll, rmse, coverage_90.
+// One point: k members, s samples per member (1 without basin fits). nll is on test;
+// validation_nll on the validation rows the temperature (scale) was tuned on, so it is optimistic
+// but is what a choice between configurations may use. Classification fills nll,
+// validation_nll, accuracy, ece; regression fills nll, validation_nll, rmse, coverage_90.
 struct SizeCurvePoint {
   int members = 0;
   int samples = 1;
-  Spread nll, accuracy, ece, rmse, coverage_90;
+  Spread nll, validation_nll, accuracy, ece, rmse, coverage_90;
 };
 
 // For k in MemberGrid(M): `subsets` subsets of k distinct members drawn with Philox(seed) (for k = M, or

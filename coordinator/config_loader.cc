@@ -338,8 +338,9 @@ Status LoadEnsemble(const Section& s, EnsembleConfig* e) {
 }
 
 Status LoadReport(const Section& s, ReportConfig* r) {
-  CHORUS_RETURN_IF_ERROR(s.Check({"ece_bins", "size_curve_subsets"}));
+  CHORUS_RETURN_IF_ERROR(s.Check({"ece_bins", "size_curve_subsets", "nll_tolerance"}));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("ece_bins", &r->ece_bins, "a bin count", 1, 1000));
+  CHORUS_RETURN_IF_ERROR(s.Get<double>("nll_tolerance", &r->nll_tolerance, "a tolerance in nats", 0.0, 100.0));
   return s.Get<int>("size_curve_subsets", &r->size_curve_subsets, "a subset count", 1, 10000);
 }
 
@@ -583,7 +584,8 @@ std::string Emit(const Config& c, bool everything) {
   out << YAML::EndMap;
   out << YAML::Key << "report" << YAML::Value << YAML::BeginMap << YAML::Key << "ece_bins"
       << YAML::Value << c.report.ece_bins << YAML::Key << "size_curve_subsets" << YAML::Value
-      << c.report.size_curve_subsets << YAML::EndMap;
+      << c.report.size_curve_subsets << YAML::Key << "nll_tolerance" << YAML::Value
+      << c.report.nll_tolerance << YAML::EndMap;
   EmitSearch(out, c.search);
   if (everything) {
     out << YAML::Key << "compute" << YAML::Value << YAML::BeginMap << YAML::Key << "threads"

@@ -285,11 +285,12 @@ grpc::Status CoordinatorService::UploadResult(grpc::ServerContext* ctx,
   slot.reset();  // the stream is read: storing may take longer than the idle bound
   StatusOr<std::string> bytes = upload.Finish();
   if (!bytes.ok()) return Invalid(bytes.status().message());
-  return Store(job, upload.header().worker_id(), bytes.value(), reply);
+  return Store(job, upload.header().worker_id(), upload.CpuSeconds(), bytes.value(), reply);
 }
 
-grpc::Status CoordinatorService::Store(int job, const std::string& worker, const std::string& bytes,
-                                       wire::UploadReply* reply) {
+grpc::Status CoordinatorService::Store(int job, const std::string& worker,
+                                       const std::optional<MemberResult::CpuSeconds>& cpu_seconds,
+                                       const std::string& bytes, wire::UploadReply* reply) {
   const MemberSpec spec = Spec(job);
   const std::string source = "result of job " + JobName(spec) + " from " + worker;
   StatusOr<MemberResult> decoded = DecodeJobResult(bytes, source, in_.data_hash, in_.config_hash);
@@ -317,7 +318,9 @@ grpc::Status CoordinatorService::Store(int job, const std::string& worker, const
   if (!table_->Finish(job)) return duplicate();
   reply->set_outcome(wire::UploadReply::ACCEPTED);
   Seen(worker, "", nullptr);
-  dir_->LogJobEvent(spec, false, {{"worker", worker}});
+  nlohmann::json fields = {{"worker", worker}};
+  if (cpu_seconds) fields["cpu_seconds"] = CpuSecondsJson(*cpu_seconds);
+  dir_->LogJobEvent(spec, false, fields);
   return grpc::Status::OK;
 }
 

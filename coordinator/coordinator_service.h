@@ -11,6 +11,7 @@
 
 #include <map>
 #include <mutex>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -99,8 +100,11 @@ class CoordinatorService final : public wire::Coordinator::Service {
                                   const std::string& message);
   // The job index named by job_id, or -1.
   int JobIndex(const std::string& job_id) const;
-  // Stores a received result (checked by decoding) as jobs/<i>/result.pb, or compares a duplicate.
-  grpc::Status Store(int job, const std::string& worker, const std::string& bytes, wire::UploadReply* reply);
+  // Stores a received result (checked by decoding) as jobs/<i>/result.pb, or compares a duplicate;
+  // logs the job's end with the CPU-seconds the worker reported.
+  grpc::Status Store(int job, const std::string& worker,
+                     const std::optional<MemberResult::CpuSeconds>& cpu_seconds, const std::string& bytes,
+                     wire::UploadReply* reply);
   void Seen(const std::string& worker, const std::string& job, const wire::HeartbeatRequest* progress);
 
   const DispatchInputs in_;

@@ -81,7 +81,9 @@ class StageQueue final : public JobSource {
                         : job_dir.status();
     }
     if (!st.ok()) causes_[position] = st.ToString();
-    dir_.LogJobEvent(spec, !st.ok(), {{"cause", causes_[position]}});
+    nlohmann::json fields = {{"cause", causes_[position]}};
+    if (st.ok()) fields["cpu_seconds"] = CpuSecondsJson(outcome.value().cpu_seconds);
+    dir_.LogJobEvent(spec, !st.ok(), fields);
     printer_.OnMemberDone(spec.index, st);
   }
 

@@ -69,6 +69,10 @@ StatusOr<std::string> RunDirectory::JobDir(const std::string& name) const {
   return dir;
 }
 
+nlohmann::json CpuSecondsJson(const MemberResult::CpuSeconds& cpu) {
+  return {{"training", cpu.training}, {"basin_fit", cpu.basin_fit}, {"samples", cpu.samples}};
+}
+
 Status RunDirectory::LogJobEvent(const MemberSpec& spec, bool failed, nlohmann::json fields) {
   const bool member = spec.role == JobRole::kMember;
   fields["member"] = spec.index;
@@ -78,17 +82,31 @@ Status RunDirectory::LogJobEvent(const MemberSpec& spec, bool failed, nlohmann::
                          : (failed ? "job_failed" : "job_finished"), fields);
 }
 
-std::set<std::string> RunDirectory::JobsLoggedFinished() const {
-  std::set<std::string> jobs;
+std::map<std::string, nlohmann::json> RunDirectory::FinishedJobEvents() const {
+  std::map<std::string, nlohmann::json> jobs;
   std::ifstream in(File("events.jsonl"));
   std::string line;
   while (std::getline(in, line)) {
     const nlohmann::json e = nlohmann::json::parse(line, nullptr, false);
     if (!e.is_object() || !e.contains("job") || !e["job"].is_string()) continue;
     const std::string kind = e.value("event", "");
-    if (kind == "member_finished" || kind == "job_finished") jobs.insert(e["job"].get<std::string>());
+    if (kind == "member_finished" || kind == "job_finished") jobs[e["job"].get<std::string>()] = e;
   }
   return jobs;
+}
+
+std::map<std::string, MemberResult::CpuSeconds> RunDirectory::JobCpuSeconds() const {
+  std::map<std::string, MemberResult::CpuSeconds> costs;
+  for (const auto& [job, event] : FinishedJobEvents()) {
+    const nlohmann::json* c = event.contains("cpu_seconds") ? &event["cpu_seconds"] : nullptr;
+    if (c == nullptr || !c->is_object()) continue;
+    const auto number = [c](const char* key) {
+      return c->contains(key) && (*c)[key].is_number() ? (*c)[key].get<double>() : -1.0;
+    };
+    const MemberResult::CpuSeconds cpu{number("training"), number("basin_fit"), number("samples")};
+    if (cpu.training >= 0 && cpu.basin_fit >= 0 && cpu.samples >= 0) costs[job] = cpu;
+  }
+  return costs;
 }
 
 Status RunDirectory::LogEvent(const std::string& kind, nlohmann::json fields) {

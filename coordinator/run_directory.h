@@ -4,7 +4,7 @@
 #pragma once
 
 #include <mutex>
-#include <set>
+#include <map>
 #include <string>
 
 #include <nlohmann/json.hpp>
@@ -13,6 +13,9 @@
 #include "common/status.h"
 
 namespace chorus {
+
+// A job's CPU-seconds as its finished event carries them: {"training", "basin_fit", "samples"}.
+nlohmann::json CpuSecondsJson(const MemberResult::CpuSeconds& cpu);
 
 class RunDirectory {
  public:
@@ -33,9 +36,12 @@ class RunDirectory {
 
   // Appends {"time": ISO-8601 UTC, "event": kind, ...fields} to events.jsonl.
   Status LogEvent(const std::string& kind, nlohmann::json fields = nlohmann::json::object());
-  // The jobs events.jsonl records as finished (member_finished / job_finished); unreadable or
-  // torn lines are skipped. For resume: a result whose event was lost in a crash.
-  std::set<std::string> JobsLoggedFinished() const;
+  // The jobs events.jsonl records as finished (member_finished / job_finished), each with its
+  // last such event; unreadable or torn lines are skipped. For resume (a result whose event was
+  // lost in a crash) and the report (the CPU-seconds the events carry).
+  std::map<std::string, nlohmann::json> FinishedJobEvents() const;
+  // The CPU-seconds of every job whose finished event carries them (CpuSecondsJson), by job name.
+  std::map<std::string, MemberResult::CpuSeconds> JobCpuSeconds() const;
 
   // A job finished or failed: member_finished / member_failed for members, job_finished /
   // job_failed (with "role") for fold and search jobs; "member" and "job" (its name) added to

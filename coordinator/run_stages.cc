@@ -40,7 +40,7 @@ class StageRunner {
   StatusOr<StageResults> Run(const std::string& stage, const std::vector<MemberSpec>& specs) {
     StageResults out;
     std::vector<MemberSpec> pending;
-    const std::set<std::string> logged = dir_.JobsLoggedFinished();
+    const std::map<std::string, nlohmann::json> logged = dir_.FinishedJobEvents();
     for (const MemberSpec& s : specs) {
       StatusOr<MemberResult> r = Load(s);
       if (!r.ok()) pending.push_back(s);

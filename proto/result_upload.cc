@@ -1,10 +1,29 @@
 #include "proto/result_upload.h"
 
+#include <cmath>
 #include <utility>
 
 #include "common/sha256.h"
 
 namespace chorus {
+
+wire::JobCpuSeconds CpuSecondsToWire(const MemberResult::CpuSeconds& cpu) {
+  wire::JobCpuSeconds out;
+  out.set_training(cpu.training);
+  out.set_basin_fit(cpu.basin_fit);
+  out.set_samples(cpu.samples);
+  return out;
+}
+
+std::optional<MemberResult::CpuSeconds> ResultUpload::CpuSeconds() const {
+  if (!header_.has_cpu_seconds()) return std::nullopt;
+  const wire::JobCpuSeconds& w = header_.cpu_seconds();
+  const MemberResult::CpuSeconds cpu{w.training(), w.basin_fit(), w.samples()};
+  for (double v : {cpu.training, cpu.basin_fit, cpu.samples}) {
+    if (!std::isfinite(v) || v < 0) return std::nullopt;
+  }
+  return cpu;
+}
 
 Status ResultUpload::Add(const wire::ResultChunk& chunk) {
   if (!started_) {

@@ -6,12 +6,17 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 
+#include "common/member_training.h"
 #include "common/status.h"
 #include "service.pb.h"
 
 namespace chorus {
+
+// For the first chunk of an upload.
+wire::JobCpuSeconds CpuSecondsToWire(const MemberResult::CpuSeconds& cpu);
 
 class ResultUpload {
  public:
@@ -23,6 +28,10 @@ class ResultUpload {
 
   // The announcing (first) chunk; default-valued before any chunk.
   const wire::ResultChunk& header() const { return header_; }
+
+  // What the job cost the worker, as the first chunk says (not part of the result): null when it
+  // says nothing, or gives a negative or non-finite value.
+  std::optional<MemberResult::CpuSeconds> CpuSeconds() const;
 
   // The whole result. Errors (kInvalidInput): no chunk came, fewer bytes than announced, or
   // their SHA-256 differs from the announced one. Leaves the upload empty.

@@ -303,10 +303,29 @@ std::string CalibrationSection(const json& r) {
          "</p>" + CalibrationFigures(r) + "</section>";
 }
 
+// The size grid priced in CPU-seconds with the recommended point marked (report/compute_advice.h;
+// absent in reports written before chorus recorded costs).
+std::string CostTable(const json& r) {
+  if (!r.contains("compute")) return "";
+  const json& c = r["compute"];
+  std::string html = "<p>" + EscapeHtml(c["text"].get<std::string>()) + "</p>";
+  if (!c.contains("advice")) return html;
+  html += "<table><thead><tr><th>members</th><th>samples each</th><th>CPU-seconds</th>"
+          "<th>validation NLL</th><th>test NLL</th></tr></thead><tbody>";
+  for (const json& p : r["size_curve"]) {
+    const bool chosen = p["members"] == c["advice"]["members"] && p["samples"] == c["advice"]["samples"];
+    html += std::string(chosen ? "<tr class=\"chosen\">" : "<tr>") + "<td>" + p["members"].dump() +
+            (chosen ? " (recommended)" : "") + "</td><td>" + p["samples"].dump() + "</td><td>" +
+            EscapeHtml(FormatSignificant(p["cpu_seconds"].get<double>(), 3)) + "</td><td>" +
+            Num(p["validation_nll"]["mean"], 4) + "</td><td>" + Num(p["nll"]["mean"], 4) + "</td></tr>";
+  }
+  return html + "</tbody></table>";
+}
+
 std::string SizeSection(const json& r) {
   return "<section><h2>Ensemble size</h2><p>What another member (or another sample per member) "
          "buys: test quality of ensembles of every size, each tuned on validation.</p>" +
-         SizeCurveFigures(r) + "</section>";
+         SizeCurveFigures(r) + CostTable(r) + "</section>";
 }
 
 }  // namespace

@@ -35,7 +35,8 @@ json SpreadJson(const Spread& s) { return {{"mean", s.mean}, {"min", s.min}, {"m
 json SizeCurveJson(Task task, const std::vector<SizeCurvePoint>& curve) {
   json out = json::array();
   for (const SizeCurvePoint& p : curve) {
-    json point = {{"members", p.members}, {"samples", p.samples}, {"nll", SpreadJson(p.nll)}};
+    json point = {{"members", p.members}, {"samples", p.samples}, {"nll", SpreadJson(p.nll)},
+                  {"validation_nll", SpreadJson(p.validation_nll)}};
     if (task == Task::kClassification) {
       point["accuracy"] = SpreadJson(p.accuracy);
       point["ece"] = SpreadJson(p.ece);

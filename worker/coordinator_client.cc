@@ -206,7 +206,8 @@ Status CoordinatorClient::FetchData(const std::string& hash, int64_t max_bytes,
 
 Status CoordinatorClient::UploadResult(const std::string& worker_id, const std::string& job_id,
                                        uint64_t lease_id, int64_t total_bytes,
-                                       const std::string& sha256, const WriteResultFn& write,
+                                       const std::string& sha256,
+                                       const wire::JobCpuSeconds& cpu_seconds, const WriteResultFn& write,
                                        wire::UploadReply* reply) {
   auto ctx = Context(kStreamSeconds);
   auto writer = stub_->UploadResult(ctx.get(), reply);
@@ -216,6 +217,7 @@ Status CoordinatorClient::UploadResult(const std::string& worker_id, const std::
   chunk.set_lease_id(lease_id);
   chunk.set_total_bytes(total_bytes);
   chunk.set_sha256(sha256);
+  *chunk.mutable_cpu_seconds() = cpu_seconds;
   bool header_sent = false;
   const bool written = write([&](const char* data, size_t n) {
     chunk.set_payload(data, n);

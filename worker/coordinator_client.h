@@ -56,9 +56,11 @@ class CoordinatorClient {
   // Streams a result in chunks of at most kResultPieceBytes: `write` produces its bytes (exactly
   // `total_bytes` of them, with SHA-256 hex `sha256`) in order through the sink it is given, and
   // returns false if the sink refused a piece (the upload failed; its error is returned).
+  // `cpu_seconds`, what training the job cost, rides on the first chunk.
   using WriteResultFn = std::function<bool(const ByteSink& sink)>;
   Status UploadResult(const std::string& worker_id, const std::string& job_id, uint64_t lease_id,
-                      int64_t total_bytes, const std::string& sha256, const WriteResultFn& write,
+                      int64_t total_bytes, const std::string& sha256,
+                      const wire::JobCpuSeconds& cpu_seconds, const WriteResultFn& write,
                       wire::UploadReply* reply);
 
  private:

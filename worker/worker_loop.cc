@@ -18,6 +18,7 @@
 #include "common/sha256.h"
 #include "execution/job_slots.h"
 #include "proto/result_codec.h"
+#include "proto/result_upload.h"
 #include "proto/spec_codec.h"
 #include "worker/data_cache.h"
 
@@ -182,7 +183,7 @@ Status Upload(const Shared& s, const std::string& worker_id, const wire::LeaseRe
   while (true) {
     wire::UploadReply reply;
     const Status st = s.client->UploadResult(worker_id, lease.job_id(), lease.lease_id(), total, sha256,
-                                             write, &reply);
+                                             CpuSecondsToWire(result.cpu_seconds), write, &reply);
     if (st.code() != Status::Code::kUnavailable || s.stop.load() || SteadyClock::now() >= give_up) return st;
     LogPrintf(stderr, LogLevel::kWarning, "chorus-worker: upload of job %s: %s; retrying in %.1fs",
               lease.job_id().c_str(), st.ToString().c_str(), backoff);

@@ -95,6 +95,27 @@ TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
             report["bayes_optimal_test_nll"].get<double>() - 0.1);
   const auto manifest = nlohmann::json::parse(testing::ReadTextFile(run + "/manifest.json"));
   EXPECT_EQ(manifest["status"], "complete");
+  // Every job's cost reaches the coordinator with its result (embedded workers, over gRPC); a
+  // member is priced with its fold jobs, and the grid's price grows with the members.
+  double all_jobs = 0, member_0 = 0;
+  for (const auto& e : testing::ReadEvents(run)) {
+    if (e["event"] != "member_finished" && e["event"] != "job_finished") continue;
+    ASSERT_TRUE(e.contains("cpu_seconds")) << e.dump();
+    const double training = e["cpu_seconds"]["training"].get<double>();
+    EXPECT_GT(training, 0) << e.dump();
+    const double whole = training + e["cpu_seconds"]["basin_fit"].get<double>() + e["cpu_seconds"]["samples"].get<double>();
+    all_jobs += whole;
+    const std::string job = e["job"];
+    if (job == "0") member_0 += training;
+    if (job.rfind("fold-0-", 0) == 0) member_0 += whole;
+  }
+  EXPECT_NEAR(report["compute"]["cpu_seconds_all_jobs"].get<double>(), all_jobs, 1e-9 * all_jobs);
+  EXPECT_EQ(report["compute"]["members_costed"], 3);
+  EXPECT_NEAR(report["members"][0]["cpu_seconds"]["training"].get<double>(), member_0, 1e-9 * member_0);
+  EXPECT_LT(report["size_curve"][0]["cpu_seconds"].get<double>(), report["size_curve"][2]["cpu_seconds"].get<double>());
+  EXPECT_EQ(report["compute"]["nll_tolerance"], 0.01);
+  EXPECT_TRUE(report["compute"]["advice"]["validation_nll"].get<double>() <=
+              report["compute"]["best"]["validation_nll"].get<double>() + 0.01);
 }
 
 TEST_F(RunCommandTest, ResultBytesAreIdenticalAcrossRepeatsAndThreadCounts) {
@@ -181,6 +202,11 @@ TEST_F(RunCommandTest, ResumeReplansTheStagesAndRerunsOnlyWhatIsMissing) {
   EXPECT_EQ(rerun, 2 * 5 * 2 + 2 + 3) << "every job once, then the three removed ones again, "
                                          "member 0's lost event recovered";
   EXPECT_EQ(recovered, 1);
+  // A recovered event knows no cost: the report prices the grid with member 1's alone.
+  const auto report = nlohmann::json::parse(testing::ReadTextFile(run + "/report.json"));
+  EXPECT_EQ(report["compute"]["members_costed"], 1);
+  EXPECT_FALSE(report["members"][0].contains("cpu_seconds"));
+  EXPECT_TRUE(report["members"][1].contains("cpu_seconds"));
 }
 
 TEST_F(RunCommandTest, DivergingMembersFailWithTheirCauseAndTooFewMeansExitThree) {

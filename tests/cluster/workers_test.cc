@@ -80,6 +80,11 @@ class WorkersTest : public ::testing::Test {
     const std::string config = WriteConfig(name, members, epochs, "local_workers: 0");
     const auto r = testing::RunShell(testing::BinaryPath("chorus") + " run " + config + " --out " + out, 300);
     EXPECT_EQ(r.exit_code, 0) << r.output;
+    // In process, each job's finished event carries what it cost (report/compute_advice.h).
+    for (const json& e : testing::ReadEvents(RunDirUnder(out))) {
+      if (e["event"] != "member_finished" && e["event"] != "job_finished") continue;
+      EXPECT_TRUE(e.contains("cpu_seconds") && e["cpu_seconds"]["training"].get<double>() > 0) << e.dump();
+    }
     return JobResults(RunDirUnder(out));
   }
 

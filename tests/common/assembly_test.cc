@@ -246,6 +246,13 @@ TEST(SizeCurveTest, EndPointsMatchWholeEnsembleAndEveryMember) {
   EXPECT_DOUBLE_EQ(curve[3].nll.min, curve[3].nll.max);
   EXPECT_DOUBLE_EQ(curve[3].accuracy.mean, full.accuracy);
   EXPECT_DOUBLE_EQ(curve[3].ece.mean, full.ece);
+  // Its validation NLL is the mixture's on the rows t was tuned on, which t minimises: no higher
+  // than at T = 1.
+  const double validation_nll =
+      ScoreClassification(MixtureProbabilities(e.Validation(), uniform, t), e.validation_labels, 10).nll;
+  EXPECT_DOUBLE_EQ(curve[3].validation_nll.mean, validation_nll);
+  EXPECT_LE(validation_nll,
+            ScoreClassification(MixtureProbabilities(e.Validation(), uniform, 1.0), e.validation_labels, 10).nll);
   // k = 1 with 5 >= 4 subsets allowed: each member once, so the spread is over all members.
   std::vector<double> single;
   for (int m = 0; m < 4; ++m) {
@@ -278,6 +285,8 @@ TEST(SizeCurveTest, RegressionFullPointMatchesWholeEnsemble) {
   EXPECT_DOUBLE_EQ(curve[2].nll.mean, full.nll);
   EXPECT_DOUBLE_EQ(curve[2].rmse.mean, full.rmse);
   EXPECT_DOUBLE_EQ(curve[2].coverage_90.mean, full.coverage_90);
+  EXPECT_DOUBLE_EQ(curve[2].validation_nll.mean,
+                   ScoreRegression(MixtureGaussians(pv, uniform, TuneStddevScale(pv, uniform, yv)), yv).nll);
   EXPECT_DOUBLE_EQ(curve[2].rmse.min, curve[2].rmse.max);
 }
 

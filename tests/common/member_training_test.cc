@@ -2,6 +2,7 @@
 #include "common/member_training.h"
 
 #include <gtest/gtest.h>
+#include <sys/resource.h>
 
 #include <algorithm>
 #include <vector>
@@ -109,6 +110,40 @@ TEST(MemberTrainingTest, CyclicalSgmcmcCollectsSamplesAtTheSampleSteps) {
   ASSERT_FALSE(refused.ok());
   EXPECT_NE(refused.status().message().find("cyclical_sgmcmc over 40 steps"), std::string::npos)
       << refused.status().ToString();
+}
+
+// CPU-seconds by phase (common/cpu_account.h): training always costs something; a member without
+// a basin fit records no fit and no samples; a low-rank fit records both. Together they are at most
+// the CPU time the call took, measured by getrusage(RUSAGE_THREAD) (Linux getrusage(2)): with no
+// ParallelFor everything runs on this thread.
+TEST(MemberTrainingTest, RecordsCpuSecondsOfEachPhase) {
+  const auto thread_seconds = [] {
+    rusage u{};
+    getrusage(RUSAGE_THREAD, &u);
+    return static_cast<double>(u.ru_utime.tv_sec + u.ru_stime.tv_sec) +
+           1e-6 * static_cast<double>(u.ru_utime.tv_usec + u.ru_stime.tv_usec);
+  };
+  const PreparedData d = testing::SmallClassificationData(8);
+  MemberSpec spec = testing::SmallMemberSpec(0, 13, 3, 32);
+  const StatusOr<MemberResult> plain = TrainMember(spec, d, nullptr);
+  ASSERT_TRUE(plain.ok());
+  EXPECT_GT(plain.value().cpu_seconds.training, 0);
+  EXPECT_LT(plain.value().cpu_seconds.basin_fit, 0.001);  // two clock reads apart
+  EXPECT_EQ(plain.value().cpu_seconds.samples, 0);
+  spec.basin.method = BasinMethod::kGaussianLowRank;
+  spec.basin.epochs = 2;
+  spec.basin.snapshots = 4;
+  spec.basin.rank = 2;
+  spec.basin.samples = 3;
+  const double before = thread_seconds();
+  const StatusOr<MemberResult> fitted = TrainMember(spec, d, nullptr);
+  const double spent = thread_seconds() - before;
+  ASSERT_TRUE(fitted.ok());
+  const MemberResult::CpuSeconds& cpu = fitted.value().cpu_seconds;
+  EXPECT_GT(cpu.training, 0);
+  EXPECT_GT(cpu.basin_fit, 0);
+  EXPECT_GT(cpu.samples, 0);
+  EXPECT_LE(cpu.training + cpu.basin_fit + cpu.samples, spent + 0.001);
 }
 
 }  // namespace

@@ -253,6 +253,21 @@ TEST(ConfigLoaderTest, LaplaceBasinAndShiftTestKeysAndTheirRoundTrip) {
   EXPECT_NE(bad.status().message().find("ensemble.basin.hessian"), std::string::npos) << bad.status().ToString();
 }
 
+TEST(ConfigLoaderTest, NllToleranceOfTheAdviceAndItsRoundTrip) {
+  StatusOr<Config> a = ParseConfig(std::string(kMinimal) + "report: {nll_tolerance: 0.002}\n", "/x/a.yaml");
+  ASSERT_TRUE(a.ok()) << a.status().ToString();
+  EXPECT_EQ(a.value().report.nll_tolerance, 0.002);
+  StatusOr<Config> b = ParseConfig(ConfigToYaml(a.value()), "/y/b.yaml");
+  ASSERT_TRUE(b.ok()) << b.status().ToString();
+  EXPECT_EQ(b.value().report.nll_tolerance, 0.002);
+  StatusOr<Config> unset = ParseConfig(kMinimal, "a.yaml");
+  ASSERT_TRUE(unset.ok());
+  EXPECT_EQ(unset.value().report.nll_tolerance, 0.01);
+  const StatusOr<Config> bad = ParseConfig(std::string(kMinimal) + "report: {nll_tolerance: -1}\n", "cfg.yaml");
+  ASSERT_FALSE(bad.ok());
+  EXPECT_NE(bad.status().message().find("report.nll_tolerance"), std::string::npos) << bad.status().ToString();
+}
+
 TEST(ConfigLoaderTest, CyclicalSgmcmcKeysAndTheirRoundTrip) {
   const std::string text = std::string(kMinimal) +
       "ensemble:\n  basin: {method: cyclical_sgmcmc, sampler: sgld, cycles: 6, exploration: 0.5,\n"
