@@ -103,7 +103,8 @@ void Diagnose(const std::vector<ChainOutput>& chains, HmcReference& reference) {
 StatusOr<HmcReference> RunHmcReference(const Mlp& net, Task task, const Split& train,
                                        const ConstMatrixRef& test_x,
                                        const std::vector<std::vector<double>>& starts,
-                                       const HmcReferenceConfig& config, const ParallelFor* parallel) {
+                                       const HmcReferenceConfig& config, const ParallelFor* parallel,
+                                       const HmcProgressFunction& progress) {
   const HmcConfig& hmc = config.hmc;
   CHORUS_RETURN_IF_ERROR(CheckInputs(net, task, test_x, starts, hmc).WithContext("hmc reference"));
   CHORUS_ASSIGN_OR_RETURN(const MlpLogPosterior posterior,
@@ -113,7 +114,7 @@ StatusOr<HmcReference> RunHmcReference(const Mlp& net, Task task, const Split& t
     MlpLogPosterior target = posterior;  // this chain's own scratch
     ChainOutput& out = chains[static_cast<size_t>(c)];
     StatusOr<HmcChain> chain = RunHmcChain(std::ref(target), starts[starts.size() == 1 ? 0 : c],
-                                           hmc, static_cast<int>(c));
+                                           hmc, static_cast<int>(c), progress);
     if (!chain.ok()) {
       out.status = chain.status();
       return;

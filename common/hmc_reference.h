@@ -49,7 +49,9 @@ constexpr int64_t kMaxHmcReferenceSeriesValues = 100'000'000;  // 800 MB of doub
 // starts: one initial parameter vector per chain (Mlp layout, net.ParameterCount() entries), or
 // exactly one shared by all chains. Needs at least one test row and draws / thinning >= 4 (the
 // split diagnostics' minimum). Chains run through `parallel` (null: one after another on this
-// thread), each with its own MlpLogPosterior.
+// thread), each with its own MlpLogPosterior. `progress` (may be null) is called as RunHmcChain
+// calls it, every config.hmc.progress_every iterations of each chain, from the threads running
+// the chains at once; it must be thread-safe, and returning false stops the run (kCancelled).
 // Memory: every kept draw's probabilities, 8 * chains * (draws / thinning) * rows * classes bytes
 // (the diagnostics rank all chains' draws together), refused above kMaxHmcReferenceSeriesValues;
 // plus, per chain running at once, its parameter draws, 8 * (draws / thinning) * parameters bytes.
@@ -58,7 +60,8 @@ constexpr int64_t kMaxHmcReferenceSeriesValues = 100'000'000;  // 800 MB of doub
 StatusOr<HmcReference> RunHmcReference(const Mlp& net, Task task, const Split& train,
                                        const ConstMatrixRef& test_x,
                                        const std::vector<std::vector<double>>& starts,
-                                       const HmcReferenceConfig& config, const ParallelFor* parallel);
+                                       const HmcReferenceConfig& config, const ParallelFor* parallel,
+                                       const HmcProgressFunction& progress = nullptr);
 
 struct PredictiveAgreement {
   // Fraction of rows whose most probable class is the same (ties: the lowest index, as

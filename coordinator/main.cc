@@ -23,6 +23,7 @@ int main(int argc, char** argv) {
   chorus::RegisterReportCommand(app, &runner);
   chorus::RegisterCompareCommand(app, &runner);
   chorus::RegisterPromoteCommand(app, &runner);
+  chorus::RegisterReferenceCommand(app, &runner);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
