@@ -296,4 +296,15 @@ double LaplaceLogEvidence(const LastLayerLaplace& la, double train_nll_sum) {
          0.5 * static_cast<double>(la.parameters()) * std::log(prior) - 0.5 * log_det;
 }
 
+double PriorPrecisionByEvidence(const LastLayerLaplace& laplace, double train_nll_sum) {
+  LastLayerLaplace la = laplace;
+  double best = 0, best_evidence = -std::numeric_limits<double>::infinity();
+  for (double prior : PriorPrecisionGrid()) {
+    la.prior_precision = prior;
+    const double evidence = LaplaceLogEvidence(la, train_nll_sum);
+    if (evidence >= best_evidence) best = prior, best_evidence = evidence;
+  }
+  return best;
+}
+
 }  // namespace chorus

@@ -116,4 +116,9 @@ StatusOr<double> TunePriorPrecision(const LastLayerLaplace& laplace, const Const
 // approximation was fitted on. O(P) given the eigenvalues.
 double LaplaceLogEvidence(const LastLayerLaplace& laplace, double train_nll_sum);
 
+// The PriorPrecisionGrid value maximising LaplaceLogEvidence (MacKay 1992's evidence
+// framework; Daxberger et al. 2021's choice when no validation data is held out); ties go to the
+// larger precision. laplace.prior_precision is ignored.
+double PriorPrecisionByEvidence(const LastLayerLaplace& laplace, double train_nll_sum);
+
 }  // namespace chorus

@@ -233,8 +233,25 @@ Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& prog
   return Status::Ok();
 }
 
+// -log p(rows | Theta) of the last layer's outputs F = Phi Theta (N x K): softmax cross-entropy
+// or Gaussian NLL (outputs mean and log-variance), summed over the rows, in double.
+double SummedNll(Task task, const MatrixD& outputs, const Split& rows) {
+  double sum = 0;
+  for (Eigen::Index i = 0; i < outputs.rows(); ++i) {
+    if (task == Task::kClassification) {
+      const double top = outputs.row(i).maxCoeff();
+      sum += top + std::log((outputs.row(i).array() - top).exp().sum()) - outputs(i, rows.labels[static_cast<size_t>(i)]);
+    } else {
+      const double d = static_cast<double>(rows.targets[static_cast<size_t>(i)]) - outputs(i, 0);
+      sum += 0.5 * (outputs(i, 1) + d * d * std::exp(-outputs(i, 1)) + std::log(2 * M_PI));
+    }
+  }
+  return sum;
+}
+
 // The last-layer Laplace fit at the trained point, from the curvature of the loss over the job's
-// training rows; the prior precision as configured, or tuned on the job's validation rows.
+// training rows; the prior precision as configured, or tuned: on the job's validation rows, or
+// without any (a member of a cross-fitted run) by the Laplace evidence of its training rows.
 Status FitLaplace(const MemberSpec& spec, SgdRun& run, const PreparedData& data,
                   const Split& validation, MemberResult& result) {
   const Mlp& net = run.net();
@@ -254,10 +271,10 @@ Status FitLaplace(const MemberSpec& spec, SgdRun& run, const PreparedData& data,
   CHORUS_ASSIGN_OR_RETURN(LastLayerLaplace laplace,
                           FitLastLayerLaplace(data.task, form, features, theta,
                                               tune ? 1.0 : spec.basin.prior_precision));
-  if (tune) {
-    if (validation.rows() == 0) {
-      return Status::InvalidInput("basin.prior_precision: tune needs validation rows; give a number");
-    }
+  if (tune && validation.rows() == 0) {
+    const MatrixD outputs = LastLayerOutputs(features, theta);
+    laplace.prior_precision = PriorPrecisionByEvidence(laplace, SummedNll(data.task, outputs, all_rows ? data.train : subset));
+  } else if (tune) {
     CHORUS_ASSIGN_OR_RETURN(const Matrix validation_features, LastHiddenFeatures(net, params, validation.x));
     StatusOr<double> chosen = data.task == Task::kClassification
                                   ? TunePriorPrecision(laplace, validation_features, validation.labels)

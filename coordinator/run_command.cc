@@ -2,8 +2,6 @@
 
 #include <chrono>
 #include <cstdio>
-#include <map>
-#include <optional>
 #include <filesystem>
 #include <thread>
 #include <utility>
@@ -26,11 +24,11 @@
 #include "coordinator/job_runner.h"
 #include "coordinator/run_stages.h"
 #include "coordinator/shift_evaluation.h"
+#include "coordinator/method_facts.h"
 #include "coordinator/training_facts.h"
 #include "coordinator/config_loader.h"
 #include "coordinator/report_files.h"
 #include "coordinator/run_directory.h"
-#include "report/compute_advice.h"
 #include "report/report_model.h"
 #include "coordinator/terminal.h"
 
@@ -151,28 +149,6 @@ Config TuneScale(const Inputs& in, TrainedRun& trained, RunDirectory& dir) {
   return assembled;
 }
 
-// Prices the report's size grid with the CPU-seconds the jobs' finished events carry. A member's
-// training includes its cross-fitting fold jobs (named "fold-<member>-<fold>...", JobName).
-void AddCosts(const RunDirectory& dir, const std::vector<MemberResult>& members, double nll_tolerance,
-              json& report) {
-  const std::map<std::string, MemberResult::CpuSeconds> jobs = dir.JobCpuSeconds();
-  double all_jobs = 0;
-  for (const auto& [name, cpu] : jobs) all_jobs += cpu.training + cpu.basin_fit + cpu.samples;
-  std::vector<MemberCpuSeconds> costs;
-  for (const MemberResult& r : members) {
-    const auto own = jobs.find(std::to_string(r.index));
-    std::optional<MemberResult::CpuSeconds> cost;
-    if (own != jobs.end()) cost = own->second;
-    const std::string folds = "fold-" + std::to_string(r.index) + "-";
-    for (auto it = jobs.lower_bound(folds); cost && it != jobs.end() && it->first.rfind(folds, 0) == 0; ++it) {
-      cost->training += it->second.training + it->second.basin_fit + it->second.samples;
-    }
-    costs.push_back({r.index, cost});
-  }
-  const int samples = std::max<int>(1, static_cast<int>(members.front().sample_test_outputs.size()));
-  AddComputeAdvice(costs, samples, all_jobs, nll_tolerance, report);
-}
-
 // Assembles, reports and writes the closing files of a run whose members have trained.
 int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const WorkersSeen& workers,
            double seconds) {
@@ -201,6 +177,7 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
   if (in.shifted) report["shift"] = ShiftJson(EvaluateShift(assembled, in.data, members, ev, *in.shifted));
   AddTrainingFacts(assembled, in.data, trained, report);
   AddCosts(dir, members, in.config.report.nll_tolerance, report);
+  AddProbitScores(assembled, in.data, members, ev.weights, report);
   // The manifest first: the report copies it (workers, version) into report.json and the page.
   Status st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds, workers).dump(2));
   if (st.ok()) st = WriteReportFiles(dir.path(), report);

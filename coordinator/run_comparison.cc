@@ -1,5 +1,6 @@
 #include "coordinator/run_comparison.h"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <sstream>
@@ -97,6 +98,35 @@ void AddRunValues(const json& a, const json& b, RunComparison& c) {
   }
 }
 
+// What tells methods apart beyond test metrics: samples per member, what the run cost, how far
+// its members disagree, and how well the ensemble's uncertainty flags the shifted rows.
+void AddMethodValues(const json& a, const json& b, RunComparison& c) {
+  const auto samples = [](const json& r) -> std::optional<double> {
+    return NumberAt(r, "/members/0/samples");
+  };
+  c.values.push_back(Value("samples_per_member", "samples per member", samples(a), samples(b), 0, Direction::kNone));
+  c.values.push_back(Value("compute.cpu_seconds_all_jobs", "CPU-seconds, all jobs",
+                           NumberAt(a, "/compute/cpu_seconds_all_jobs"), NumberAt(b, "/compute/cpu_seconds_all_jobs"),
+                           1, Direction::kLower));
+  c.values.push_back(Value("diversity.between_members.mean_kl", "members' mean KL (nats)",
+                           NumberAt(a, "/diversity/between_members/mean_kl"),
+                           NumberAt(b, "/diversity/between_members/mean_kl"), 4, Direction::kNone));
+  // The ensemble is the last of the shift section's predictives (report/report_model.h).
+  const auto shift_auroc = [](const json& r, const char* score) -> std::optional<double> {
+    if (!r.contains("shift") || r["shift"]["predictives"].empty()) return std::nullopt;
+    const json& auroc = r["shift"]["predictives"].back()["auroc"];
+    if (!auroc.contains(score) || !auroc[score].is_number()) return std::nullopt;
+    return auroc[score].get<double>();
+  };
+  for (const char* score : {"entropy", "mutual_information", "total_std", "epistemic_std"}) {
+    const std::optional<double> va = shift_auroc(a, score), vb = shift_auroc(b, score);
+    if (!va && !vb) continue;
+    std::string label = std::string("shifted rows: AUROC of ") + score;
+    std::replace(label.begin(), label.end(), '_', ' ');
+    c.values.push_back(Value(std::string("shift.ensemble.auroc.") + score, label, va, vb, 4, Direction::kHigher));
+  }
+}
+
 std::string Cell(const std::optional<double>& v, int decimals) {
   return v ? FormatFixed(*v, decimals) : "-";
 }
@@ -140,6 +170,12 @@ RunComparison CompareReports(const json& a, const json& b, const std::string& ru
   c.run_b = run_b;
   AddEnsembleMetrics(a, b, c);
   AddRunValues(a, b, c);
+  AddMethodValues(a, b, c);
+  // Reports written before the settings named the basin method had none of the new methods.
+  const auto method = [](const json& r) {
+    return r.contains("settings") ? r["settings"].value("basin_method", "none") : std::string("none");
+  };
+  c.texts.push_back({"basin_method", "basin method", method(a), method(b)});
   for (const char* key : {"task", "weighting", "data_hash", "config_hash"}) {
     std::string label = key;
     std::replace(label.begin(), label.end(), '_', ' ');

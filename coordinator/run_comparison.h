@@ -1,7 +1,9 @@
 // Two runs side by side: the values of their report.json files that a person deciding between
 // them looks at first (ensemble test metrics before and after temperature, the temperature,
-// member counts, a summary of the weights) with deltas, and whether both were measured on the
-// same data and config. Thread safety: free functions.
+// member counts, a summary of the weights; then, to tell posterior methods apart, samples per
+// member, CPU-seconds, the members' mean KL, the shifted rows' AUROC and the basin method) with
+// deltas, and whether both were measured on the same data and config. Thread safety: free
+// functions.
 #pragma once
 
 #include <optional>

@@ -22,7 +22,8 @@ json SettingsJson(const Config& c) {
           {"lr", c.train.optimizer.lr},
           {"weight_decay", c.train.optimizer.weight_decay},
           {"beta_nll", c.train.beta_nll},
-          {"epochs", c.train.epochs}};
+          {"epochs", c.train.epochs},
+          {"basin_method", BasinMethodName(c.ensemble.basin.method)}};
 }
 
 json SearchJson(const SearchOutcome& search) {

@@ -25,7 +25,8 @@ Checked at the end of every round (the invariants):
   bundle     bundle.chorus is byte-identical to the undisturbed run's
   report     report.json is identical to the undisturbed run's except the fields that describe
              the circumstances, not the result: wall_seconds, manifest.wall_seconds,
-             manifest.coordinator.mode and manifest.workers
+             manifest.coordinator.mode, manifest.workers and the measured CPU-seconds (compute,
+             members[].cpu_seconds, size_curve[].cpu_seconds)
 
 Rounds repeat until M minutes have passed (at least one). Prints a line per fault and per round,
 then totals: faults by kind, jobs retried (lease_expired, job_retry, lease_returned events),
@@ -50,7 +51,9 @@ import time
 
 LEASE_SECONDS = 2.0
 CIRCUMSTANCE_FIELDS = [("wall_seconds",), ("manifest", "wall_seconds"), ("manifest", "coordinator", "mode"),
-                       ("manifest", "workers")]
+                       ("manifest", "workers"), ("compute",)]
+# Measured CPU-seconds in each entry of a list: what the jobs cost, not what they computed.
+CIRCUMSTANCE_ENTRY_FIELDS = [("members", "cpu_seconds"), ("size_curve", "cpu_seconds")]
 
 
 def log(msg):
@@ -146,6 +149,9 @@ def without_circumstances(report):
         for key in path[:-1]:
             node = node.get(key, {})
         node.pop(path[-1], None)
+    for array, key in CIRCUMSTANCE_ENTRY_FIELDS:
+        for entry in report.get(array, []):
+            entry.pop(key, None)
     return report
 
 
@@ -334,7 +340,7 @@ def check(run_dir, reference, members):
     if out["finished"][0]:
         with open(report_path) as f:
             same = without_circumstances(json.load(f)) == reference["report"]
-    out["report"] = (same, "report.json less " + ", ".join(".".join(p) for p in CIRCUMSTANCE_FIELDS))
+    out["report"] = (same, "report.json less " + ", ".join(".".join(p) for p in CIRCUMSTANCE_FIELDS + CIRCUMSTANCE_ENTRY_FIELDS))
     return out
 
 

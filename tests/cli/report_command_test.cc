@@ -3,6 +3,7 @@
 
 #include <cmath>
 #include <filesystem>
+#include <map>
 #include <string>
 
 #include <nlohmann/json.hpp>
@@ -133,6 +134,39 @@ TEST_F(ReportCommandTest, CompareShowsDeltasAsATableAndAsJson) {
       j["values"][1]["delta"].get<double>(),
       rb["ensemble"]["test"]["nll"].get<double>() - ra["ensemble"]["test"]["nll"].get<double>(),
       1e-12);
+}
+
+// A plain ensemble against one with last-layer Laplace fits, on the same data and seed: the
+// comparison names both methods and sets their samples and costs side by side.
+TEST_F(ReportCommandTest, CompareWorksAcrossPosteriorMethods) {
+  const std::string plain = Run("plain", 3);
+  const std::string laplace = testing::RunDemo(
+      dir_, "laplace",
+      testing::DemoClassificationYaml("laplace", 3,
+                                      "train: {epochs: 3, batch_size: 50}\nensemble: {members: 3,\n"
+                                      "  basin: {method: laplace_last_layer, samples: 4}}\n"));
+  ASSERT_FALSE(plain.empty());
+  ASSERT_FALSE(laplace.empty());
+  const auto r = Chorus("compare --json " + plain + " " + laplace);
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const json j = json::parse(r.output);
+  EXPECT_TRUE(j["same_data"].get<bool>());
+  std::map<std::string, json> values, texts;
+  for (const json& v : j["values"]) values[v["key"]] = v;
+  for (const json& t : j["texts"]) texts[t["key"]] = t;
+  EXPECT_EQ(texts["basin_method"]["a"], "none");
+  EXPECT_EQ(texts["basin_method"]["b"], "laplace_last_layer");
+  EXPECT_EQ(values["samples_per_member"]["a"], 1);
+  EXPECT_EQ(values["samples_per_member"]["b"], 4);
+  EXPECT_GT(values["compute.cpu_seconds_all_jobs"]["a"].get<double>(), 0);
+  EXPECT_GT(values["compute.cpu_seconds_all_jobs"]["b"].get<double>(), 0);
+  // The Laplace run also scores its members' probit predictives (T = 1), the plain run cannot.
+  const json rb = json::parse(testing::ReadTextFile(laplace + "/report.json"));
+  const json ra = json::parse(testing::ReadTextFile(plain + "/report.json"));
+  ASSERT_TRUE(rb["ensemble"].contains("test_probit"));
+  EXPECT_FALSE(ra["ensemble"].contains("test_probit"));
+  EXPECT_GT(rb["ensemble"]["test_probit"]["nll"].get<double>(), 0);
+  EXPECT_LE(rb["ensemble"]["test_probit"]["accuracy"].get<double>(), 1);
 }
 
 TEST_F(ReportCommandTest, CompareExitsTwoOnAnUnreadableRun) {

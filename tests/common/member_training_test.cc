@@ -5,8 +5,10 @@
 #include <sys/resource.h>
 
 #include <algorithm>
+#include <cmath>
 #include <vector>
 
+#include "common/heads.h"
 #include "common/last_layer_laplace.h"
 #include "common/rng.h"
 #include "tests/testing/small_data.h"
@@ -73,6 +75,32 @@ TEST(MemberTrainingTest, LaplaceSamplesVaryOnlyTheLastLayer) {
   const StatusOr<MemberResult> fixed = TrainMember(spec, d, nullptr);
   ASSERT_TRUE(fixed.ok());
   EXPECT_EQ(fixed.value().basin.laplace.prior_precision, 3.5);
+}
+
+// Without validation rows (a member of a cross-fitted run), `prior_precision: tune` picks the grid
+// value of largest Laplace evidence on the training rows (MacKay 1992), here recomputed from the
+// trained network's own outputs, so the member trains instead of failing.
+TEST(MemberTrainingTest, LaplaceWithoutValidationRowsTunesThePriorByEvidence) {
+  PreparedData d = testing::SmallClassificationData(8);
+  d.validation = Split{};
+  MemberSpec spec = testing::SmallMemberSpec(0, 13, 3, 32);
+  spec.basin.method = BasinMethod::kLaplaceLastLayer;
+  spec.basin.samples = 2;
+  const StatusOr<MemberResult> r = TrainMember(spec, d, nullptr);
+  ASSERT_TRUE(r.ok()) << r.status().ToString();
+  LastLayerLaplace la = ToLastLayerLaplace(r.value().basin);
+  const Mlp net = NetworkFor(spec.model, d);
+  const double train_nll_sum =
+      SoftmaxCrossEntropyValue(PredictOutputs(net, r.value().parameters.data(), d.train.x), d.train.labels.data()) *
+      static_cast<double>(d.train.rows());
+  const double chosen = la.prior_precision;
+  const double chosen_evidence = LaplaceLogEvidence(la, train_nll_sum);
+  for (double prior : PriorPrecisionGrid()) {
+    la.prior_precision = prior;
+    // float logits against the fit's double ones: 1e-6 relative covers the rounding.
+    EXPECT_LE(LaplaceLogEvidence(la, train_nll_sum), chosen_evidence + 1e-6 * std::abs(chosen_evidence))
+        << "prior " << prior << " beats the chosen " << chosen;
+  }
 }
 
 // basin.method cyclical_sgmcmc: cycles x samples_per_cycle samples, each the weights at a sample

@@ -91,5 +91,37 @@ TEST(RunComparisonTest, JsonHasNullsForMissingValues) {
   EXPECT_TRUE(saw_brier);
 }
 
+// Runs of different posterior methods: the basin method as text, and what the method buys and
+// costs as values: cheaper is better, a higher shifted-rows AUROC is better; values a report
+// lacks (an older report without costs or shift section) are absent on that side.
+TEST(RunComparisonTest, MethodsAreComparedByCostDiversityAndShift) {
+  json a = testing::SampleReport(Task::kClassification);
+  json b = a;
+  a["settings"]["basin_method"] = "none";
+  b["settings"]["basin_method"] = "laplace_last_layer";
+  a["compute"]["cpu_seconds_all_jobs"] = 100.0;
+  b["compute"]["cpu_seconds_all_jobs"] = 120.0;
+  for (json& m : b["members"]) m["samples"] = 20;
+  b["shift"]["predictives"] = json::array({{{"predictive", "one member"}, {"auroc", {{"entropy", 0.9}}}},
+                                           {{"predictive", "ensemble"},
+                                            {"auroc", {{"entropy", 0.6}, {"mutual_information", 0.7}}}}});
+  const RunComparison c = CompareReports(a, b, "a", "b");
+  EXPECT_EQ(Find(c, "compute.cpu_seconds_all_jobs").better, "a");
+  EXPECT_EQ(*Find(c, "samples_per_member").b, 20);
+  const ComparedValue& entropy = Find(c, "shift.ensemble.auroc.entropy");
+  EXPECT_FALSE(entropy.a.has_value());
+  EXPECT_EQ(*entropy.b, 0.6);  // the ensemble's, not the single member's
+  EXPECT_EQ(*Find(c, "shift.ensemble.auroc.mutual_information").b, 0.7);
+  a["shift"] = b["shift"];
+  a["shift"]["predictives"][1]["auroc"]["mutual_information"] = 0.5;
+  EXPECT_EQ(Find(CompareReports(a, b, "a", "b"), "shift.ensemble.auroc.mutual_information").better, "b");
+  bool method_differs = false;
+  for (const ComparedText& t : c.texts) {
+    if (t.key == "basin_method") method_differs = t.a == "none" && t.b == "laplace_last_layer" && !t.equal();
+  }
+  EXPECT_TRUE(method_differs);
+  EXPECT_NE(ComparisonTable(c).find("basin method"), std::string::npos);
+}
+
 }  // namespace
 }  // namespace chorus
