@@ -50,7 +50,7 @@ hmc, ens = ref["predictives"][0], ref["predictives"][1]
 cpu = report.get("compute", {}).get("cpu_seconds_all_jobs", float("nan"))
 print(f"| {label} | {ens['top1_agreement']:.4f} | {ens['mean_total_variation']:.4f} "
       f"| {ens['test']['nll']:.4f} | {ens['test']['accuracy']:.4f} | {hmc['test']['nll']:.4f} "
-      f"| {ref['hmc']['max_r_hat']:.3f} | {cpu:.1f} |")
+      f"| {ref['hmc']['max_r_hat']:.3f} | {cpu:.2f} |")
 PY
 }
 

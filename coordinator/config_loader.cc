@@ -2,6 +2,7 @@
 
 #include <yaml-cpp/yaml.h>
 
+#include <algorithm>
 #include <filesystem>
 #include <functional>
 #include <limits>
@@ -307,6 +308,8 @@ Status LoadBasin(const Section& s, BasinConfig* b) {
   CHORUS_RETURN_IF_ERROR(s.Get<double>("lr", &b->lr, "a learning rate", 1e-12, 1e6));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("snapshots", &b->snapshots, "a snapshot count", 2, 100000));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("rank", &b->rank, "a rank (at most snapshots)", 2, b->snapshots));
+  // The default rank follows fewer snapshots down (it may not exceed them).
+  if (!s.Has("rank")) b->rank = std::min(b->rank, b->snapshots);
   CHORUS_RETURN_IF_ERROR(s.Get<int>("samples", &b->samples, "a sample count", 1, 10000));
   if (s.Has("scale") && s.Node("scale").IsScalar() && s.Node("scale").Scalar() == "tune") {
     if (b->method == BasinMethod::kCyclicalSgmcmc) {

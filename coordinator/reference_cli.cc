@@ -16,7 +16,7 @@ void RegisterReferenceCommand(CLI::App& app, CommandRunner* runner) {
       "variation, test NLL, accuracy), with R-hat and ESS of the chains. Writes\n"
       "RUN_DIR/hmc_reference.json. Minutes for a few thousand parameters on a few thousand rows.");
   cmd->add_option("RUN_DIR", o->run_dir, "a finished run directory")->required();
-  cmd->add_option("--chains", o->chains, "chains; chain c starts at member c mod M's trained point")
+  cmd->add_option("--chains", o->chains, "chains; chain c starts at member c mod M's point (its trained weights, or its Gaussian basin fit's mean)")
       ->capture_default_str()->check(CLI::Range(1, 64));
   cmd->add_option("--warmup", o->warmup, "warm-up iterations per chain (step-size tuning)")
       ->capture_default_str()->check(CLI::Range(0, 1000000));

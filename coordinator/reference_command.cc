@@ -41,11 +41,17 @@ struct Compared {
   MatrixD probabilities;
 };
 
-// The members' trained points as HMC-style draws (one row each): `first` .. `first + count`.
-MatrixD TrainedPoints(const Bundle& bundle, size_t first, size_t count) {
-  MatrixD draws(static_cast<Eigen::Index>(count), static_cast<Eigen::Index>(bundle.members[first].parameters.size()));
+// A member's point: its trained weights, or with a basin fit the fit's mean (for last-layer Laplace
+// and cyclical SG-MCMC the trained weights too; for the Gaussian fits the snapshots' mean).
+const std::vector<float>& MemberPoint(const BundleMember& m) {
+  return m.basin.method == BasinMethod::kNone ? m.parameters : m.basin.mean;
+}
+
+// The members' points as HMC-style draws (one row each): `first` .. `first + count`.
+MatrixD MemberPoints(const Bundle& bundle, size_t first, size_t count) {
+  MatrixD draws(static_cast<Eigen::Index>(count), static_cast<Eigen::Index>(MemberPoint(bundle.members[first]).size()));
   for (size_t m = 0; m < count; ++m) {
-    const std::vector<float>& p = bundle.members[first + m].parameters;
+    const std::vector<float>& p = MemberPoint(bundle.members[first + m]);
     for (size_t j = 0; j < p.size(); ++j) draws(static_cast<Eigen::Index>(m), static_cast<Eigen::Index>(j)) = p[j];
   }
   return draws;
@@ -90,7 +96,7 @@ StatusOr<json> Reference(const ReferenceOptions& o) {
   hmc.hmc.trajectory_jitter = 0.2;  // Neal 2011 sec. 5.4.2: breaks periodic orbits
   std::vector<std::vector<double>> starts;
   for (int c = 0; c < o.chains; ++c) {
-    const std::vector<float>& p = bundle.members[static_cast<size_t>(c) % bundle.members.size()].parameters;
+    const std::vector<float>& p = MemberPoint(bundle.members[static_cast<size_t>(c) % bundle.members.size()]);
     starts.emplace_back(p.begin(), p.end());
   }
   LogPrintf(stderr, LogLevel::kInfo,
@@ -126,10 +132,10 @@ StatusOr<json> Reference(const ReferenceOptions& o) {
   compared.push_back({"HMC reference", ref.predictive});
   compared.push_back({"ensemble (bundle: weights, samples, temperature)",
                       predictor.Predict(data.test.x).classification.probabilities});
-  compared.push_back({"members' trained points, T = 1",
-                      PosteriorPredictive(net, Task::kClassification, {TrainedPoints(bundle, 0, bundle.members.size())}, data.test.x)});
-  compared.push_back({"member 0 alone, T = 1",
-                      PosteriorPredictive(net, Task::kClassification, {TrainedPoints(bundle, 0, 1)}, data.test.x)});
+  compared.push_back({"members' points, T = 1",
+                      PosteriorPredictive(net, Task::kClassification, {MemberPoints(bundle, 0, bundle.members.size())}, data.test.x)});
+  compared.push_back({"member 0's point alone, T = 1",
+                      PosteriorPredictive(net, Task::kClassification, {MemberPoints(bundle, 0, 1)}, data.test.x)});
   json predictives = json::array();
   for (const Compared& c : compared) {
     CHORUS_ASSIGN_OR_RETURN(const PredictiveAgreement a, ComparePredictives(ref.predictive, c.probabilities));

@@ -2,8 +2,10 @@
 // posterior (common/hmc_reference.h) on the run's own training rows and network, and how close
 // the run's predictives come to it on the test rows: top-1 agreement and mean total variation
 // (Izmailov et al., ICML 2021), beside each one's test NLL and accuracy. The predictives: the
-// ensemble as its bundle predicts (weights, samples, temperature), the members' trained points
-// averaged at T = 1, and member 0 alone at T = 1. Writes RUN_DIR/hmc_reference.json atomically and
+// ensemble as its bundle predicts (weights, samples, temperature), the members' points averaged
+// at T = 1, and member 0's point alone at T = 1. A member's point is its trained weights, or with
+// a Gaussian basin fit (diagonal, low-rank) the fit's mean. Chain c starts at member c mod M's
+// point. Writes RUN_DIR/hmc_reference.json atomically and
 // prints a table. Thread safety: call from one thread.
 #pragma once
 
@@ -14,7 +16,7 @@ namespace chorus {
 
 struct ReferenceOptions {
   std::string run_dir;
-  int chains = 4;             // chain c starts at member c mod M's trained point
+  int chains = 4;             // chain c starts at member c mod M's point
   int warmup = 500;           // iterations tuning the step size (dual averaging), then discarded
   int draws = 1000;           // iterations kept per chain before thinning
   int thinning = 2;

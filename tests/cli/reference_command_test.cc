@@ -65,6 +65,22 @@ TEST_F(ReferenceCommandTest, ComparesTheRunsPredictivesWithTheHmcReference) {
   EXPECT_NEAR(p[2]["test"]["accuracy"].get<double>(), report["ensemble"]["test_uncalibrated"]["accuracy"].get<double>(), 1e-12);
 }
 
+// With a Gaussian basin fit a bundle member keeps no trained weights, only the fit: its point,
+// where a chain starts, is the fit's mean.
+TEST_F(ReferenceCommandTest, MembersWithBasinFitsStartChainsAtTheirFitsMean) {
+  const std::string run = testing::RunDemo(
+      dir_, "diag", testing::DemoClassificationYaml("diag", 5, "train: {epochs: 3, batch_size: 50}\nensemble: {members: 2,\n"
+                                                    "  basin: {method: gaussian_diag, epochs: 1, snapshots: 4, samples: 3}}\n"));
+  ASSERT_FALSE(run.empty());
+  const auto r = Chorus("reference " + run + kShortChains);
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const json ref = json::parse(testing::ReadTextFile(run + "/hmc_reference.json"));
+  EXPECT_EQ(ref["basin_method"], "gaussian_diag");
+  ASSERT_EQ(ref["predictives"].size(), 4u);
+  const json report = json::parse(testing::ReadTextFile(run + "/report.json"));
+  EXPECT_NEAR(ref["predictives"][1]["test"]["nll"].get<double>(), report["ensemble"]["test"]["nll"].get<double>(), 1e-9);
+}
+
 TEST_F(ReferenceCommandTest, RefusesRegressionLargeNetworksAndMissingRuns) {
   const std::string regression = testing::RunDemo(
       dir_, "reg", testing::DemoRegressionYaml("reg", 5, "train: {epochs: 2, batch_size: 50}\nensemble: {members: 2}\n"));

@@ -253,6 +253,18 @@ TEST(ConfigLoaderTest, LaplaceBasinAndShiftTestKeysAndTheirRoundTrip) {
   EXPECT_NE(bad.status().message().find("ensemble.basin.hessian"), std::string::npos) << bad.status().ToString();
 }
 
+// Fewer snapshots than the default rank (10) without a rank: the rank follows them down, rather
+// than every job being refused later for a rank above its snapshots.
+TEST(ConfigLoaderTest, DefaultRankFollowsFewerSnapshots) {
+  StatusOr<Config> few = ParseConfig(std::string(kMinimal) + "ensemble: {basin: {method: gaussian_diag, snapshots: 4}}\n", "a.yaml");
+  ASSERT_TRUE(few.ok()) << few.status().ToString();
+  EXPECT_EQ(few.value().ensemble.basin.rank, 4);
+  StatusOr<Config> many = ParseConfig(std::string(kMinimal) + "ensemble: {basin: {method: gaussian_lowrank, snapshots: 40}}\n", "a.yaml");
+  ASSERT_TRUE(many.ok());
+  EXPECT_EQ(many.value().ensemble.basin.rank, 10);
+  EXPECT_FALSE(ParseConfig(std::string(kMinimal) + "ensemble: {basin: {snapshots: 4, rank: 5}}\n", "a.yaml").ok());
+}
+
 TEST(ConfigLoaderTest, NllToleranceOfTheAdviceAndItsRoundTrip) {
   StatusOr<Config> a = ParseConfig(std::string(kMinimal) + "report: {nll_tolerance: 0.002}\n", "/x/a.yaml");
   ASSERT_TRUE(a.ok()) << a.status().ToString();
