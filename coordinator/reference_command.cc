@@ -20,6 +20,7 @@
 #include "common/mlp_posterior.h"
 #include "common/predictor.h"
 #include "coordinator/config_loader.h"
+#include "coordinator/report_files.h"
 #include "execution/tbb_parallel_for.h"
 #include "proto/bundle_codec.h"
 #include "report/report_model.h"
@@ -189,12 +190,15 @@ int ReferenceCommand(const ReferenceOptions& options) {
   StatusOr<json> result = Reference(options);
   Status st = result.status();
   if (st.ok()) st = WriteFileAtomic(options.run_dir + "/hmc_reference.json", result.value().dump(2) + "\n");
+  // The report shows the comparison from now on (report.json's "hmc_reference", an HTML section).
+  StatusOr<json> report = st.ok() ? ReadRunReport(options.run_dir) : st;
+  if (report.ok()) st = WriteReportFiles(options.run_dir, std::move(report).value());
   if (!st.ok()) {
     LogPrintf(stderr, LogLevel::kError, "chorus reference: %s", st.ToString().c_str());
     return st.ExitCode();
   }
   std::fputs(Table(result.value()).c_str(), stdout);
-  std::printf("written: %s/hmc_reference.json\n", options.run_dir.c_str());
+  std::printf("written: %s/hmc_reference.json; report.json and report.html show it\n", options.run_dir.c_str());
   return 0;
 }
 

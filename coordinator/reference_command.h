@@ -5,8 +5,8 @@
 // ensemble as its bundle predicts (weights, samples, temperature), the members' points averaged
 // at T = 1, and member 0's point alone at T = 1. A member's point is its trained weights, or with
 // a Gaussian basin fit (diagonal, low-rank) the fit's mean. Chain c starts at member c mod M's
-// point. Writes RUN_DIR/hmc_reference.json atomically and
-// prints a table. Thread safety: call from one thread.
+// point. Writes RUN_DIR/hmc_reference.json atomically, rewrites report.json and report.html
+// with it (coordinator/report_files.h), and prints a table. Thread safety: call from one thread.
 #pragma once
 
 #include <cstdint>

@@ -11,11 +11,12 @@ namespace chorus {
 using nlohmann::json;
 
 Status WriteReportFiles(const std::string& run_dir, json report) {
-  StatusOr<std::string> manifest_text =
-      ReadFileToString(run_dir + "/manifest.json", kMaxReportBytes);
-  if (manifest_text.ok()) {
-    json manifest = json::parse(manifest_text.value(), nullptr, /*allow_exceptions=*/false);
-    if (manifest.is_object()) report["manifest"] = std::move(manifest);
+  for (const auto& [file, key] : {std::pair<const char*, const char*>{"/manifest.json", "manifest"},
+                                  {"/hmc_reference.json", "hmc_reference"}}) {
+    StatusOr<std::string> text = ReadFileToString(run_dir + file, kMaxReportBytes);
+    if (!text.ok()) continue;
+    json parsed = json::parse(text.value(), nullptr, /*allow_exceptions=*/false);
+    if (parsed.is_object()) report[key] = std::move(parsed);
   }
   std::string html;
   try {

@@ -330,10 +330,36 @@ std::string SizeSection(const json& r) {
 
 }  // namespace
 
+// `chorus reference`'s comparison with an HMC posterior, once it has been run on this run.
+std::string HmcReferenceSection(const json& r) {
+  if (!r.contains("hmc_reference")) return "";
+  const json& ref = r["hmc_reference"];
+  const json& h = ref["hmc"];
+  std::string html =
+      "<section><h2>HMC reference</h2><p>How close each predictive comes to full-batch HMC on the "
+      "same network, training rows and prior (" + h["kept_draws"].dump() + " kept draws from " +
+      h["chains"].dump() + " chains; largest split R-hat of the test probabilities " +
+      Num(h["max_r_hat"], 3) + ", smallest bulk ESS " + Num(h["min_ess"], 0) + ", " +
+      h["divergences"].dump() + " divergences): agreement of the most probable class and mean "
+      "total variation distance on the " + ref["test_rows"].dump() + " test rows.</p>";
+  if (!h.value("converged", false)) {
+    html += "<p class=\"warning\">R-hat is above 1.01: the chains disagree, so the reference is "
+            "not yet a reliable yardstick.</p>";
+  }
+  html += "<table><thead><tr><th>predictive</th><th>top-1 agreement</th><th>total variation</th>"
+          "<th>test NLL</th><th>accuracy</th></tr></thead><tbody>";
+  for (const json& p : ref["predictives"]) {
+    html += "<tr><td>" + EscapeHtml(p["predictive"]) + "</td><td>" + Num(p["top1_agreement"], 4) + "</td><td>" +
+            Num(p["mean_total_variation"], 4) + "</td><td>" + Num(p["test"]["nll"], 4) + "</td><td>" +
+            Num(p["test"]["accuracy"], 4) + "</td></tr>";
+  }
+  return html + "</tbody></table></section>";
+}
+
 std::string ReportHtml(const json& report) {
   return Head(report) + Header(report) + Caution(report) + KeyFigures(report) +
          TestSection(report) + SizeSection(report) + CalibrationSection(report) +
-         UncertaintySection(report) + ShiftSection(report) + MembersSection(report) + TrainingSectionHtml(report) +
+         UncertaintySection(report) + ShiftSection(report) + HmcReferenceSection(report) + MembersSection(report) + TrainingSectionHtml(report) +
          FactsSection(report) +
          "<footer>Written by chorus from report.json alone: one self-contained file, no scripts, "
          "nothing loaded from the network.</footer></main></body></html>\n";

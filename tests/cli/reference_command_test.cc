@@ -63,6 +63,11 @@ TEST_F(ReferenceCommandTest, ComparesTheRunsPredictivesWithTheHmcReference) {
   EXPECT_NEAR(p[1]["test"]["nll"].get<double>(), report["ensemble"]["test"]["nll"].get<double>(), 1e-9);
   EXPECT_NEAR(p[2]["test"]["nll"].get<double>(), report["ensemble"]["test_uncalibrated"]["nll"].get<double>(), 1e-6);
   EXPECT_NEAR(p[2]["test"]["accuracy"].get<double>(), report["ensemble"]["test_uncalibrated"]["accuracy"].get<double>(), 1e-12);
+  // The report carries the comparison from now on, and the page shows it.
+  EXPECT_EQ(report["hmc_reference"], ref);
+  const std::string html = testing::ReadTextFile(run + "/report.html");
+  EXPECT_NE(html.find("<h2>HMC reference</h2>"), std::string::npos);
+  EXPECT_NE(html.find("member 0&#39;s point alone, T = 1"), std::string::npos);
 }
 
 // With a Gaussian basin fit a bundle member keeps no trained weights, only the fit: its point,

@@ -4,6 +4,9 @@
 
 #include <gtest/gtest.h>
 
+#include <cmath>
+#include <optional>
+
 #include "common/sha256.h"
 
 namespace chorus {
@@ -62,6 +65,28 @@ TEST(ResultUploadTest, RefusesAShortOrCorruptedOrEmptyUpload) {
   EXPECT_EQ(corrupted.Finish().status().code(), Status::Code::kInvalidInput);
   ResultUpload empty(100);
   EXPECT_EQ(empty.Finish().status().code(), Status::Code::kInvalidInput);
+}
+
+// The job's cost rides on the first chunk: read back as sent, and dropped (not the upload) when
+// absent, negative or not finite.
+TEST(ResultUploadTest, CpuSecondsOfTheFirstChunkAreKeptOnlyWhenValid) {
+  const auto upload_with = [](const std::optional<MemberResult::CpuSeconds>& cpu) {
+    wire::ResultChunk first = Chunk("", 0, Sha256Hex("", 0));
+    if (cpu) *first.mutable_cpu_seconds() = CpuSecondsToWire(*cpu);
+    ResultUpload upload(100);
+    EXPECT_TRUE(upload.Add(first).ok());
+    EXPECT_TRUE(upload.Finish().ok());
+    return upload.CpuSeconds();
+  };
+  const std::optional<MemberResult::CpuSeconds> kept = upload_with(MemberResult::CpuSeconds{1.5, 0.25, 2});
+  ASSERT_TRUE(kept.has_value());
+  EXPECT_EQ(kept->training, 1.5);
+  EXPECT_EQ(kept->basin_fit, 0.25);
+  EXPECT_EQ(kept->samples, 2);
+  EXPECT_FALSE(upload_with(std::nullopt).has_value());
+  EXPECT_FALSE(upload_with(MemberResult::CpuSeconds{-1, 0, 0}).has_value());
+  EXPECT_FALSE(upload_with(MemberResult::CpuSeconds{1, std::nan(""), 0}).has_value());
+  EXPECT_FALSE(upload_with(MemberResult::CpuSeconds{1, 0, INFINITY}).has_value());
 }
 
 }  // namespace
