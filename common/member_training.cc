@@ -233,20 +233,13 @@ Status RunBasinPhase(const MemberSpec& spec, SgdRun& run, const ProgressFn& prog
   return Status::Ok();
 }
 
-// -log p(rows | Theta) of the last layer's outputs F = Phi Theta (N x K): softmax cross-entropy
-// or Gaussian NLL (outputs mean and log-variance), summed over the rows, in double.
+// The training loss of the last layer's outputs F = Phi Theta (N x K) summed over the rows
+// (common/heads.h's mean losses times N): -log p(rows | Theta) up to a constant.
 double SummedNll(Task task, const MatrixD& outputs, const Split& rows) {
-  double sum = 0;
-  for (Eigen::Index i = 0; i < outputs.rows(); ++i) {
-    if (task == Task::kClassification) {
-      const double top = outputs.row(i).maxCoeff();
-      sum += top + std::log((outputs.row(i).array() - top).exp().sum()) - outputs(i, rows.labels[static_cast<size_t>(i)]);
-    } else {
-      const double d = static_cast<double>(rows.targets[static_cast<size_t>(i)]) - outputs(i, 0);
-      sum += 0.5 * (outputs(i, 1) + d * d * std::exp(-outputs(i, 1)) + std::log(2 * M_PI));
-    }
-  }
-  return sum;
+  const Matrix f = outputs.cast<float>();
+  const double mean = task == Task::kClassification ? SoftmaxCrossEntropyValue(f, rows.labels.data())
+                                                    : GaussianNllValue(f, rows.targets.data());
+  return mean * static_cast<double>(f.rows());
 }
 
 // The last-layer Laplace fit at the trained point, from the curvature of the loss over the job's

@@ -58,9 +58,9 @@ MatrixD MemberPoints(const Bundle& bundle, size_t first, size_t count) {
   return draws;
 }
 
-StatusOr<json> Reference(const ReferenceOptions& o) {
+// `report`: the run's report.json, read once by the caller (which rewrites it with the result).
+StatusOr<json> Reference(const ReferenceOptions& o, const json& report) {
   const std::string& run = o.run_dir;
-  CHORUS_ASSIGN_OR_RETURN(const json report, ReadRunReport(run));
   CHORUS_ASSIGN_OR_RETURN(const Config config, LoadConfigFile(run + "/config.yaml"));
   CHORUS_ASSIGN_OR_RETURN(const BundleFile file, ReadBundleFile(run + "/bundle.chorus"));
   const Bundle& bundle = file.bundle;
@@ -187,12 +187,12 @@ std::string Table(const json& r) {
 }  // namespace
 
 int ReferenceCommand(const ReferenceOptions& options) {
-  StatusOr<json> result = Reference(options);
+  StatusOr<json> report = ReadRunReport(options.run_dir);
+  StatusOr<json> result = report.ok() ? Reference(options, report.value()) : report.status();
   Status st = result.status();
   if (st.ok()) st = WriteFileAtomic(options.run_dir + "/hmc_reference.json", result.value().dump(2) + "\n");
   // The report shows the comparison from now on (report.json's "hmc_reference", an HTML section).
-  StatusOr<json> report = st.ok() ? ReadRunReport(options.run_dir) : st;
-  if (report.ok()) st = WriteReportFiles(options.run_dir, std::move(report).value());
+  if (st.ok()) st = WriteReportFiles(options.run_dir, std::move(report).value());
   if (!st.ok()) {
     LogPrintf(stderr, LogLevel::kError, "chorus reference: %s", st.ToString().c_str());
     return st.ExitCode();
