@@ -1,6 +1,8 @@
 // chorus-bench-train: training throughput of ensemble members on this machine.
 //
-// Network 784-512-512-10, relu, batch B (default 128), SGD (momentum 0.9, weight decay 5e-4,
+// Network 784-512-512-10 (NETWORK mlp, the default) or a convolutional member (NETWORK conv:
+// 1 x 28 x 28 images, 3 x 3 convolutions to 16 then 32 channels, each with 2 x 2 max pooling,
+// then 1568-128-10, as configs/fashion_mnist_conv.yaml), relu, batch B (default 128), SGD (momentum 0.9, weight decay 5e-4,
 // cosine schedule), on synthetic data: 8192 standard-normal rows with uniformly random labels. Each
 // member runs through TrainMember, the same code a worker runs for a job (shuffle, gather,
 // forward, head, backward, schedule, SGD step), single-threaded. Two configurations:
@@ -9,9 +11,9 @@
 // The first epoch is a warm-up (page faults, caches, frequency ramp). The epoch-end callbacks
 // give the timed window: from the end of each member's first epoch to the end of its last, and
 // the reported rate is all timed samples divided by the union of the members' windows.
-// Usage: chorus-bench-train [BATCH [TIMED_EPOCHS]]   (defaults 128 and 5)
+// Usage: chorus-bench-train [BATCH [TIMED_EPOCHS [NETWORK]]]   (defaults 128, 5, mlp)
 // Output: one "machine:" line, then per configuration one line
-//   chorus threads=T members=T batch=B samples_per_s=R gflops=G flops_per_sample=F
+//   chorus threads=T members=T batch=B samples_per_s=R gflops=G flops_per_sample=F [network=conv]
 #include <sched.h>
 #include <tbb/parallel_for.h>
 #include <tbb/task_arena.h>
@@ -71,11 +73,28 @@ PreparedData SyntheticData() {
   return data;
 }
 
-MemberSpec BenchSpec(int index, int batch, int timed_epochs) {
+// The convolutional member: FLOPs per sample of its convolutions (as dense layers over the
+// unfolded pixels: forward and kernel gradient for both stages, input gradient for the second)
+// and of its dense layers.
+ModelConfig ConvModel() {
+  ModelConfig m;
+  m.image = {1, 28, 28};
+  m.conv = {{16, 3, Pooling::kMax}, {32, 3, Pooling::kMax}};
+  m.hidden = {128};
+  return m;
+}
+
+double ConvFlopsPerSample() {
+  const double stage1 = 2.0 * 28 * 28 * 9 * 16, stage2 = 2.0 * 14 * 14 * 144 * 32;
+  return 2 * stage1 + 3 * stage2 + 6.0 * 1568 * 128 + 6.0 * 128 * kClasses;
+}
+
+MemberSpec BenchSpec(int index, int batch, int timed_epochs, bool conv) {
   MemberSpec spec;
   spec.index = index;
   spec.seed = Derive(7, static_cast<uint64_t>(index));
-  spec.model.hidden = {512, 512};
+  if (conv) spec.model = ConvModel();
+  else spec.model.hidden = {512, 512};
   spec.model.activation = Activation::kRelu;
   spec.train.epochs = kWarmupEpochs + timed_epochs;
   spec.train.batch_size = batch;
@@ -84,7 +103,7 @@ MemberSpec BenchSpec(int index, int batch, int timed_epochs) {
 
 // Trains `threads` members at once, one per arena slot; returns samples per second over the union
 // of their timed windows. Exits with a message if a member fails.
-double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, const PreparedData& data) {
+double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, bool conv, const PreparedData& data) {
   std::vector<Clock::time_point> first(threads), last(threads);
   tbb::task_arena arena(threads);
   arena.execute([&] {
@@ -94,7 +113,7 @@ double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, const P
         if (p.epoch == p.epochs) last[m] = Clock::now();
       };
       const StatusOr<MemberResult> result =
-          TrainMember(BenchSpec(m, batch, timed_epochs), data, mark);
+          TrainMember(BenchSpec(m, batch, timed_epochs, conv), data, mark);
       if (!result.ok()) {
         std::fprintf(stderr, "member %d failed: %s\n", m, result.status().ToString().c_str());
         std::exit(1);
@@ -133,18 +152,20 @@ int main(int argc, char** argv) {
   using namespace chorus;
   const int batch = argc > 1 ? std::atoi(argv[1]) : 128;
   const int timed_epochs = argc > 2 ? std::atoi(argv[2]) : 5;
-  if (argc > 3 || batch < 1 || timed_epochs < 1) {
-    std::fprintf(stderr, "usage: chorus-bench-train [BATCH [TIMED_EPOCHS]]   (both >= 1)\n");
+  const std::string network = argc > 3 ? argv[3] : "mlp";
+  if (argc > 4 || batch < 1 || timed_epochs < 1 || (network != "mlp" && network != "conv")) {
+    std::fprintf(stderr, "usage: chorus-bench-train [BATCH [TIMED_EPOCHS [mlp|conv]]]   (both >= 1)\n");
     return 2;
   }
+  const bool conv = network == "conv";
   PrintMachine();
   const PreparedData data = SyntheticData();
-  const double flops = FlopsPerSample({kFeatures, 512, 512, kClasses});
+  const double flops = conv ? ConvFlopsPerSample() : FlopsPerSample({kFeatures, 512, 512, kClasses});
   for (int threads : {1, 2}) {
-    const double rate = MeasureSamplesPerSecond(threads, batch, timed_epochs, data);
+    const double rate = MeasureSamplesPerSecond(threads, batch, timed_epochs, conv, data);
     std::printf("chorus threads=%d members=%d batch=%d samples_per_s=%.0f gflops=%.2f", threads,
                 threads, batch, rate, rate * flops * 1e-9);
-    std::printf(" flops_per_sample=%.0f\n", flops);
+    std::printf(" flops_per_sample=%.0f%s\n", flops, conv ? " network=conv" : "");
     std::fflush(stdout);
   }
   return 0;

@@ -4,6 +4,8 @@
 #include <cmath>
 #include <set>
 
+#include "common/conv_front.h"
+
 namespace chorus {
 namespace {
 
@@ -22,7 +24,18 @@ Status CheckArchitecture(const Bundle& b, const std::string& source) {
     return Status::InvalidInput(source + ": widths: expected 2 to " + Text(kMaxBundleLayers + 1) +
                                 " layer widths, found " + Text(b.widths.size()));
   }
-  if (BundleParameterCount(b.widths) < 0) {
+  if (!b.conv.empty()) {
+    const std::string problem = CheckConvStages(b.image, b.conv);
+    if (!problem.empty()) return Status::InvalidInput(source + ": conv: " + problem);
+    const int64_t front_outputs = ConvFront(b.image, b.conv, b.activation).Outputs();
+    if (b.widths[0] != front_outputs) {
+      return Status::InvalidInput(source + ": widths: the convolution stages give " + Text(front_outputs) +
+                                  " features, the first dense layer takes " + Text(b.widths[0]));
+    }
+  } else if (b.image.size() != 0) {
+    return Status::InvalidInput(source + ": an image shape without convolution stages");
+  }
+  if (BundleParameterCount(b) < 0) {
     return Status::InvalidInput(source + ": widths: expected each width in [1, " +
                                 Text(kMaxBundleWidth) + "] and at most " +
                                 Text(kMaxBundleParameters) + " parameters in all");
@@ -85,8 +98,8 @@ Status CheckPreprocessing(const Bundle& b, const std::string& source) {
   const Preprocessing& p = b.preprocessing;
   CHORUS_RETURN_IF_ERROR(CheckColumns(p, source));
   const int64_t features = p.plan.Features();
-  const size_t inputs = static_cast<size_t>(b.widths[0]);
-  if (features != b.widths[0] || p.standardizer.mean.size() != inputs ||
+  const size_t inputs = static_cast<size_t>(BundleInputs(b));
+  if (features != BundleInputs(b) || p.standardizer.mean.size() != inputs ||
       p.standardizer.scale.size() != inputs) {
     return Status::InvalidInput(source + ": preprocessing: the network takes " + Text(inputs) +
                                 " features; the columns give " + Text(features) +
@@ -189,7 +202,7 @@ Status CheckEnsemble(const Bundle& b, const std::string& source) {
   if (!Positive(b.temperature) || !Positive(b.basin_scale)) {
     return Status::InvalidInput(source + ": expected a positive temperature and basin scale");
   }
-  const int64_t parameters = BundleParameterCount(b.widths);
+  const int64_t parameters = BundleParameterCount(b);
   const int64_t last_layer = BundleParameterCount({b.widths[b.widths.size() - 2], b.widths.back()});
   double sum = 0;
   for (const BundleMember& m : b.members) {
@@ -215,6 +228,16 @@ int64_t BundleParameterCount(const std::vector<int>& widths) {
   }
   return count;
 }
+
+int64_t BundleParameterCount(const Bundle& b) {
+  const int64_t dense = BundleParameterCount(b.widths);
+  if (b.conv.empty() || dense < 0) return dense;
+  const int64_t front = ConvParameterCount(b.image, b.conv);
+  if (front < 0 || dense + front > kMaxBundleParameters) return -1;
+  return dense + front;
+}
+
+int64_t BundleInputs(const Bundle& b) { return b.conv.empty() ? b.widths[0] : b.image.size(); }
 
 Status CheckBundle(const Bundle& bundle, const std::string& source) {
   CHORUS_RETURN_IF_ERROR(CheckArchitecture(bundle, source));

@@ -56,8 +56,12 @@ struct Bundle {
   Task task = Task::kClassification;
   std::vector<std::string> class_names;  // classification: one per output, in output order
   Preprocessing preprocessing;
-  std::vector<int> widths;  // {inputs, hidden..., outputs} (common/mlp.h)
+  std::vector<int> widths;  // dense {inputs, hidden..., outputs} (common/mlp.h)
   Activation activation = Activation::kRelu;
+  // Convolution stages before the dense layers (common/conv_front.h), and the input image they
+  // read; with stages, widths[0] is their output size. Both empty without stages.
+  ImageShape image;
+  std::vector<ConvStage> conv;
   std::vector<BundleMember> members;
   double basin_scale = 1.0;  // multiplies every basin fit's covariance
   double temperature = 1.0;  // classification: logits / T; regression: stddev * T
@@ -72,6 +76,10 @@ struct Bundle {
 
 // Parameters of a network with these widths, or -1 if a width or the total is out of bounds.
 int64_t BundleParameterCount(const std::vector<int>& widths);
+// Parameters of the bundle's network (front and dense layers), or -1 as above.
+int64_t BundleParameterCount(const Bundle& b);
+// The features the bundle's network reads: the image's size with stages, else widths[0].
+int64_t BundleInputs(const Bundle& b);
 
 // Checks that a bundle can be used: every dimension within the limits above and consistent with
 // the others (features, classes, parameter counts, deviations, standardizer, vocabularies sorted

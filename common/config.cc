@@ -66,6 +66,22 @@ std::optional<Task> ParseTask(const std::string& s) {
   return std::nullopt;
 }
 
+const char* PoolingName(Pooling p) {
+  switch (p) {
+    case Pooling::kNone: return "none";
+    case Pooling::kMax: return "max";
+    case Pooling::kAverage: return "average";
+  }
+  return "?";
+}
+
+std::optional<Pooling> ParsePooling(const std::string& s) {
+  if (s == "none") return Pooling::kNone;
+  if (s == "max") return Pooling::kMax;
+  if (s == "average") return Pooling::kAverage;
+  return std::nullopt;
+}
+
 std::optional<Activation> ParseActivation(const std::string& s) {
   if (s == "relu") return Activation::kRelu;
   if (s == "tanh") return Activation::kTanh;

@@ -15,6 +15,8 @@ namespace chorus {
 
 enum class Task { kClassification, kRegression };
 enum class Activation { kRelu, kTanh, kGelu };
+// Pooling after a convolution stage: none, or a 2 x 2 window at stride 2 (max or mean).
+enum class Pooling { kNone, kMax, kAverage };
 enum class ScheduleKind { kConstant, kCosine, kStep };
 enum class Weighting { kUniform, kStacking, kGreedy };
 enum class BasinMethod { kNone, kGaussianDiag, kGaussianLowRank, kLaplaceLastLayer, kCyclicalSgmcmc };
@@ -67,10 +69,39 @@ struct DataConfig {
                                    // report show the Bayes-optimal test NLL (invented data only)
 };
 
+// The shape of one input row seen as an image: channels x height x width, channel-major (the row
+// holds channel 0's height x width pixels row by row, then channel 1's, ...).
+struct ImageShape {
+  int channels = 0;  // each in [1, 65536] when set; all zero = not an image
+  int height = 0;
+  int width = 0;
+  int64_t size() const { return int64_t{channels} * height * width; }
+  bool operator==(const ImageShape& o) const {
+    return channels == o.channels && height == o.height && width == o.width;
+  }
+};
+
+// One convolution stage (common/conv_front.h): a kernel x kernel convolution at stride 1 with
+// "same" zero padding (kernel / 2 on each side), its bias and the model's activation, then the
+// pooling.
+struct ConvStage {
+  int channels = 16;   // output channels, in [1, 4096]
+  int kernel = 3;      // odd, in [1, 15]
+  Pooling pool = Pooling::kMax;
+  bool operator==(const ConvStage& o) const {
+    return channels == o.channels && kernel == o.kernel && pool == o.pool;
+  }
+};
+
 struct ModelConfig {
+  // Optional convolution stages before the dense layers (at most kMaxConvStages); they need
+  // `image`, whose size must equal the data's feature count.
+  ImageShape image;
+  std::vector<ConvStage> conv;
   std::vector<int> hidden = {64, 64};  // widths of hidden layers, each in [1, 65536]; may be empty
   Activation activation = Activation::kRelu;
 };
+inline constexpr int kMaxConvStages = 8;
 
 struct ScheduleConfig {
   ScheduleKind kind = ScheduleKind::kCosine;  // multiplies optimizer.lr, per step
@@ -209,6 +240,7 @@ struct Config {
 // Names used in YAML and messages, and their inverses (nullopt for an unknown name).
 const char* TaskName(Task t);
 const char* ActivationName(Activation a);
+const char* PoolingName(Pooling p);
 const char* ScheduleName(ScheduleKind s);
 const char* WeightingName(Weighting w);
 const char* BasinMethodName(BasinMethod m);
@@ -216,6 +248,7 @@ const char* LaplaceHessianName(LaplaceHessian h);
 const char* SwitchName(Switch s);
 std::optional<Task> ParseTask(const std::string& s);
 std::optional<Activation> ParseActivation(const std::string& s);
+std::optional<Pooling> ParsePooling(const std::string& s);
 std::optional<ScheduleKind> ParseSchedule(const std::string& s);
 std::optional<Weighting> ParseWeighting(const std::string& s);
 std::optional<BasinMethod> ParseBasinMethod(const std::string& s);

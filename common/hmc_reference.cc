@@ -18,9 +18,9 @@ Status CheckInputs(const Mlp& net, Task task, const ConstMatrixRef& test_x,
   if (task != Task::kClassification)
     return Status::InvalidInput("the HMC reference predictive is for classification only, not regression");
   if (test_x.rows() < 1) return Status::InvalidInput("there are no test rows");
-  if (test_x.cols() != net.widths().front()) {
+  if (test_x.cols() != net.Inputs()) {
     return Status::InvalidInput("the test rows have " + std::to_string(test_x.cols()) +
-                                " features, the network " + std::to_string(net.widths().front()) +
+                                " features, the network " + std::to_string(net.Inputs()) +
                                 " inputs");
   }
   if (hmc.chains < 1) return Status::InvalidInput("hmc.chains must be >= 1");

@@ -58,15 +58,16 @@ Status CheckFeatureMatrix(const ConstMatrixRef& m, int64_t width, const std::str
 }
 
 StatusOr<Matrix> LastHiddenFeatures(const Mlp& mlp, const float* params, const ConstMatrixRef& x) {
-  CHORUS_RETURN_IF_ERROR(CheckFeatureMatrix(x, mlp.widths().front(), "LastHiddenFeatures: inputs"));
-  if (mlp.layers() == 1) return Matrix(x);
+  CHORUS_RETURN_IF_ERROR(CheckFeatureMatrix(x, mlp.Inputs(), "LastHiddenFeatures: inputs"));
+  if (mlp.layers() == 1 && mlp.front().empty()) return Matrix(x);
   const int64_t n = x.rows();
   Matrix features(n, mlp.widths()[mlp.layers() - 1]);
   Mlp::Workspace ws = mlp.MakeWorkspace(std::min(n, kFeatureBatchRows));
   for (int64_t r0 = 0; r0 < n; r0 += kFeatureBatchRows) {
     const int64_t rows = std::min(kFeatureBatchRows, n - r0);
-    mlp.Forward(params, x.middleRows(r0, rows), ws);
-    features.middleRows(r0, rows) = ws.post.back().topRows(rows);
+    const ConstMatrixRef chunk = x.middleRows(r0, rows);
+    mlp.Forward(params, chunk, ws);
+    features.middleRows(r0, rows) = mlp.LastLayerInput(chunk, ws);
   }
   return features;
 }

@@ -24,7 +24,8 @@ namespace chorus {
 // kInvalidInput "what: ..." naming the count, or the row and column of the first bad entry.
 Status CheckFeatureMatrix(const ConstMatrixRef& m, int64_t width, const std::string& what);
 
-// The N x H activations feeding the last layer (x itself when the network has no hidden layer),
+// The N x H activations feeding the last layer (the front's output or x itself when the network
+// has no hidden layer),
 // computed in batches of at most 256 rows. x: N x width[0]. Errors: CheckFeatureMatrix's on x.
 StatusOr<Matrix> LastHiddenFeatures(const Mlp& mlp, const float* params, const ConstMatrixRef& x);
 

@@ -163,10 +163,29 @@ double SplitNll(const Mlp& net, const float* params, const Split& split) {
 }  // namespace
 
 Mlp NetworkFor(const ModelConfig& model, const PreparedData& data) {
-  std::vector<int> widths = {static_cast<int>(data.features())};
+  ConvFront front;
+  if (!model.conv.empty()) front = ConvFront(model.image, model.conv, model.activation);
+  std::vector<int> widths = {static_cast<int>(front.empty() ? data.features() : front.Outputs())};
   widths.insert(widths.end(), model.hidden.begin(), model.hidden.end());
   widths.push_back(data.task == Task::kClassification ? static_cast<int>(data.classes()) : 2);
-  return Mlp(widths, model.activation);
+  return Mlp(widths, model.activation, std::move(front));
+}
+
+Status CheckModelForData(const ModelConfig& model, int64_t features, const std::string& where) {
+  if (model.conv.empty()) return Status::Ok();
+  const std::string problem = CheckConvStages(model.image, model.conv);
+  if (!problem.empty()) return Status::InvalidInput(where + ": " + problem);
+  if (model.image.size() != features) {
+    const ImageShape& i = model.image;
+    return Status::InvalidInput(where + ": image " + std::to_string(i.channels) + " x " +
+                                std::to_string(i.height) + " x " + std::to_string(i.width) + " holds " +
+                                std::to_string(i.size()) + " values per row, but the data has " +
+                                std::to_string(features) + " features");
+  }
+  if (ConvFront(model.image, model.conv, model.activation).Outputs() > 65536) {
+    return Status::InvalidInput(where + ": the last convolution stage gives more than 65536 features; pool more");
+  }
+  return Status::Ok();
 }
 
 Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef& x,
@@ -422,6 +441,7 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
                                    const ParallelFor* parallel) {
   const std::string where = (spec.role == JobRole::kMember ? "member " : "job ") + JobName(spec);
   if (data.train.rows() == 0) return Status::InvalidInput(where + ": no training rows");
+  CHORUS_RETURN_IF_ERROR(CheckModelForData(spec.model, data.features(), where + ": model"));
   JobRows rows = RowsForJob(spec, data);
   if (rows.train.empty()) return Status::InvalidInput(where + ": no training rows outside the fold");
   const Split& validation = rows.validation != nullptr ? *rows.validation : rows.held_out;

@@ -97,7 +97,13 @@ uint64_t BasinSampleSeed(uint64_t member_seed, int sample);
 
 // The network a config describes for this data: inputs = features, outputs = classes
 // (classification) or 2 (regression: mean and log-variance of the standardised target).
+// Requires CheckModelForData(model, data) to pass.
 Mlp NetworkFor(const ModelConfig& model, const PreparedData& data);
+
+// Whether the model's convolution stages fit the data: without stages, always; with them, the
+// image shape must be valid for them and hold exactly the data's features. kInvalidInput naming
+// `where` (a config path such as "model.image") otherwise.
+Status CheckModelForData(const ModelConfig& model, int64_t features, const std::string& where);
 
 // Trains member `spec.index` on the training split (a fold job: on the rows outside its fold),
 // measuring the validation NLL after every epoch; with early stopping on, stops after `patience`

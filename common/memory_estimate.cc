@@ -4,6 +4,8 @@
 #include <cstdio>
 #include <vector>
 
+#include "common/conv_front.h"
+
 namespace chorus {
 namespace {
 
@@ -21,6 +23,19 @@ void NetworkSize(int64_t features, const std::vector<int>& hidden, int64_t outpu
   }
   *parameters += (in + 1) * outputs;
   *widths += outputs;
+}
+
+// Floats a convolutional front holds for each row of a minibatch (activations, their gradients,
+// pooled copies; the pooling winners' bytes rounded up), and the unfolding buffers it holds
+// whatever the batch.
+void FrontSize(const ConvFront& front, int64_t* per_row, int64_t* fixed) {
+  *per_row = 0;
+  *fixed = 0;
+  for (const ConvFront::Stage& g : front.stages()) {
+    const bool pooled = g.pool != Pooling::kNone;
+    *per_row += (3 * g.Pixels() + (pooled ? 2 * g.OutPixels() + g.OutPixels() / 4 + 1 : 0)) * g.out_channels;
+    *fixed = std::max(*fixed, 2 * ConvFront::kChunkSamples * g.Pixels() * g.KernelRows());
+  }
 }
 
 }  // namespace
@@ -52,11 +67,19 @@ MemoryEstimate EstimateRunMemory(const Config& config, const PreparedData& data,
   shapes.push_back(config.model.hidden);
   MemoryEstimate e;
   e.members_at_once = members_at_once;
+  // With convolution stages (valid for the data: CheckModelForData) the dense layers start at
+  // their output.
+  const ConvFront front = config.model.conv.empty()
+                              ? ConvFront()
+                              : ConvFront(config.model.image, config.model.conv, config.model.activation);
+  int64_t front_per_row = 0, front_fixed = 0;
+  FrontSize(front, &front_per_row, &front_fixed);
+  const int64_t dense_inputs = front.empty() ? data.features() : front.Outputs();
   int64_t widths = 0;
   for (const std::vector<int>& hidden : shapes) {
     int64_t p = 0, w = 0;
-    NetworkSize(data.features(), hidden, outputs, &p, &w);
-    e.parameters = std::max(e.parameters, p);
+    NetworkSize(dense_inputs, hidden, outputs, &p, &w);
+    e.parameters = std::max(e.parameters, p + front.ParameterCount());
     widths = std::max(widths, w);
   }
   const BasinConfig& basin = config.ensemble.basin;
@@ -67,7 +90,7 @@ MemoryEstimate EstimateRunMemory(const Config& config, const PreparedData& data,
   // about three curvature-sized matrices of doubles (6 floats each); it keeps one in floats.
   int64_t laplace_fit_floats = 0, laplace_kept_floats = 0;
   if (basin.method == BasinMethod::kLaplaceLastLayer) {
-    const int64_t last_hidden = config.model.hidden.empty() ? data.features() : config.model.hidden.back();
+    const int64_t last_hidden = config.model.hidden.empty() ? dense_inputs : config.model.hidden.back();
     const int64_t last_layer = (last_hidden + 1) * outputs;
     const bool full = basin.hessian == LaplaceHessian::kFull ||
                       (basin.hessian == LaplaceHessian::kAuto && last_layer <= kMaxExactLaplaceParameters);
@@ -80,7 +103,8 @@ MemoryEstimate EstimateRunMemory(const Config& config, const PreparedData& data,
           ? int64_t{basin.sgmcmc.cycles} * basin.sgmcmc.samples_per_cycle + 1
           : 0;
   const int64_t per_member_floats = e.parameters * (6 + config.train.parts + basin_vectors + collected_vectors) +
-                                    int64_t{config.train.batch_size} * widths * 4 + laplace_fit_floats;
+                                    int64_t{config.train.batch_size} * (widths * 4 + front_per_row) +
+                                    front_fixed + laplace_fit_floats;
   e.training_bytes = int64_t{members_at_once} * per_member_floats * 4;
   const int64_t samples = basin.method == BasinMethod::kNone ? 1
                           : basin.method == BasinMethod::kCyclicalSgmcmc ? collected_vectors - 1

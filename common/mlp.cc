@@ -18,9 +18,10 @@ inline float NormalCdf(float z) { return 0.5f * (1.0f + std::erf(z * kInvSqrt2))
 
 }  // namespace
 
-Mlp::Mlp(std::vector<int> widths, Activation activation)
-    : widths_(std::move(widths)), activation_(activation) {
-  assert(widths_.size() >= 2);
+Mlp::Mlp(std::vector<int> widths, Activation activation, ConvFront front)
+    : widths_(std::move(widths)), activation_(activation), front_(std::move(front)),
+      parameter_count_(front_.ParameterCount()) {
+  assert(widths_.size() >= 2 && (front_.empty() || widths_.front() == front_.Outputs()));
   for (size_t l = 0; l + 1 < widths_.size(); ++l) {
     offsets_.push_back(parameter_count_);
     parameter_count_ += int64_t{widths_[l]} * widths_[l + 1] + widths_[l + 1];
@@ -34,11 +35,13 @@ Mlp::Workspace Mlp::MakeWorkspace(int64_t max_rows) const {
     ws.grad.emplace_back(max_rows, widths_[l + 1]);
     if (l + 1 < layers()) ws.post.emplace_back(max_rows, widths_[l + 1]);
   }
+  ws.front = front_.MakeWorkspace(max_rows);
   return ws;
 }
 
 void Mlp::Initialize(uint64_t seed, float* params) const {
   Philox rng(seed);
+  front_.Initialize(rng, params);
   for (int l = 0; l < layers(); ++l) {
     const bool hidden = l + 1 < layers();
     const double gain2 = hidden && activation_ != Activation::kTanh ? 2.0 : 1.0;
@@ -50,14 +53,29 @@ void Mlp::Initialize(uint64_t seed, float* params) const {
   }
 }
 
+ConstMatrixRef Mlp::DenseInput(int l, const ConstMatrixRef& x, const Workspace& ws) const {
+  const int64_t rows = x.rows();
+  if (l > 0) return ws.post[l - 1].topRows(rows);
+  if (front_.empty()) return x;
+  // The front's output: its last stage's activations, pooled or not.
+  const int last = static_cast<int>(front_.stages().size()) - 1;
+  const Matrix& out = front_.stages().back().pool == Pooling::kNone ? ws.front.post[last] : ws.front.pooled[last];
+  return Eigen::Map<const Matrix>(out.data(), rows, widths_.front());
+}
+
+ConstMatrixRef Mlp::LastLayerInput(const ConstMatrixRef& x, const Workspace& ws) const {
+  return DenseInput(layers() - 1, x, ws);
+}
+
 MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& ws) const {
   const int64_t rows = x.rows();
+  if (!front_.empty()) front_.Forward(params, x, ws.front);
   for (int l = 0; l < layers(); ++l) {
     Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
     Eigen::Map<const Eigen::RowVectorXf> b(params + BiasOffset(l), widths_[l + 1]);
     auto z = ws.pre[l].topRows(rows);
     // Z_l = H_{l-1} W_l + 1 b^T, then H_l = act(Z_l) in the same pass as the bias
-    const ConstMatrixRef input = l == 0 ? x : ConstMatrixRef(ws.post[l - 1].topRows(rows));
+    const ConstMatrixRef input = DenseInput(l, x, ws);
     Gemm(Transpose::kNo, Transpose::kNo, 1.0f, input, w, 0.0f, z);
     if (l + 1 < layers()) {
       AddBiasAndActivate(activation_, params + BiasOffset(l), z, ws.post[l].topRows(rows));
@@ -95,9 +113,13 @@ void Mlp::BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrix
       auto dprev = ws.grad[l - 1].topRows(rows);
       Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev);
       MultiplyActivationDerivative(activation_, ws.pre[l - 1].topRows(rows), dprev);
+    } else if (!front_.empty()) {
+      // dL/d(front output) = dZ_0 W_0^T, before W_0 is updated.
+      Eigen::Map<const Matrix> w(params + WeightOffset(0), widths_[0], widths_[1]);
+      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, front_.OutputGradient(ws.front, rows));
     }
     // dW_l = H_{l-1}^T dZ_l ; db_l = 1^T dZ_l
-    const ConstMatrixRef input = l == 0 ? x : ConstMatrixRef(ws.post[l - 1].topRows(rows));
+    const ConstMatrixRef input = DenseInput(l, x, ws);
     db = dz.colwise().sum();
     if (optimizer == nullptr) {
       Gemm(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, 0.0f, dw);
@@ -110,6 +132,7 @@ void Mlp::BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrix
     SgdStep(*optimizer, lr, widths_[l + 1], grad + BiasOffset(l), params + BiasOffset(l),
             velocity + BiasOffset(l));
   }
+  if (!front_.empty()) front_.Backward(params, x, ws.front, grad, optimizer, lr, velocity);
 }
 
 namespace {

@@ -1,27 +1,33 @@
-// A multi-layer perceptron over a flat parameter vector, with forward and backward passes.
-// Layer l maps width[l] -> width[l+1]: Z_l = H_{l-1} W_l + 1 b_l^T, H_l = act(Z_l) for hidden
-// layers; the last layer is linear (its Z is the network output: logits, or mean/log-variance).
-// Parameter layout (float32): for each layer in order, W_l (width[l] x width[l+1], row-major)
-// then b_l (width[l+1]). Thread safety: an Mlp is immutable and shareable; a Workspace belongs to
-// one thread.
+// A network over a flat parameter vector, with forward and backward passes: an optional
+// convolutional front (common/conv_front.h) followed by dense layers (a multi-layer perceptron).
+// Dense layer l maps width[l] -> width[l+1]: Z_l = H_{l-1} W_l + 1 b_l^T, H_l = act(Z_l) for
+// hidden layers, H_{-1} = the input (or the front's output); the last layer is linear (its Z is
+// the network output: logits, or mean/log-variance).
+// Parameter layout (float32): the front's block, then for each dense layer in order, W_l
+// (width[l] x width[l+1], row-major) then b_l (width[l+1]).
+// Thread safety: an Mlp is immutable and shareable; a Workspace belongs to one thread.
 #pragma once
 
 #include <cstdint>
 #include <vector>
 
 #include "common/config.h"
+#include "common/conv_front.h"
 #include "common/matrix.h"
 
 namespace chorus {
 
 class Mlp {
  public:
-  // widths = {inputs, hidden..., outputs}, each >= 1, at least two entries.
-  Mlp(std::vector<int> widths, Activation activation);
+  // widths = {dense inputs, hidden..., outputs}, each >= 1, at least two entries; the dense
+  // inputs are the network's inputs, or with a front, its Outputs().
+  Mlp(std::vector<int> widths, Activation activation, ConvFront front = ConvFront());
 
   int64_t ParameterCount() const { return parameter_count_; }
-  int layers() const { return static_cast<int>(widths_.size()) - 1; }
+  int layers() const { return static_cast<int>(widths_.size()) - 1; }  // dense layers
   const std::vector<int>& widths() const { return widths_; }
+  const ConvFront& front() const { return front_; }
+  int64_t Inputs() const { return front_.empty() ? widths_.front() : front_.Inputs(); }
   Activation activation() const { return activation_; }
   int64_t WeightOffset(int layer) const { return offsets_[layer]; }
   int64_t BiasOffset(int layer) const { return offsets_[layer] + int64_t{widths_[layer]} * widths_[layer + 1]; }
@@ -32,6 +38,7 @@ class Mlp {
     std::vector<Matrix> pre;   // Z_l, max_rows x width[l+1], one per layer
     std::vector<Matrix> post;  // H_l = act(Z_l), one per hidden layer
     std::vector<Matrix> grad;  // dL/dZ_l scratch, one per layer
+    ConvFront::Workspace front;
   };
   Workspace MakeWorkspace(int64_t max_rows) const;
 
@@ -39,9 +46,13 @@ class Mlp {
   // for the output layer; He et al., ICCV 2015) and zero biases, drawn from Philox(seed).
   void Initialize(uint64_t seed, float* params) const;
 
-  // Runs x (rows x inputs, rows <= max_rows) forward; returns a view of the output Z_L
+  // Runs x (rows x Inputs(), rows <= max_rows) forward; returns a view of the output Z_L
   // (rows x outputs) inside `ws`, valid until the next call with the same workspace.
   MatrixRef Forward(const float* params, const ConstMatrixRef& x, Workspace& ws) const;
+
+  // The input of the last dense layer after Forward on `ws` (rows x widths()[layers() - 1]): the
+  // last hidden activation, the front's output, or x itself.
+  ConstMatrixRef LastLayerInput(const ConstMatrixRef& x, const Workspace& ws) const;
 
   // Given dL/dZ_L (rows x outputs, same rows as the last Forward on `ws`), writes dL/dparams into
   // grad (ParameterCount() floats, overwritten).
@@ -63,8 +74,12 @@ class Mlp {
                     Workspace& ws, float* grad, const OptimizerConfig* optimizer, float lr,
                     float* velocity) const;
 
+  // The input of dense layer l: x, the front's output or H_{l-1}.
+  ConstMatrixRef DenseInput(int l, const ConstMatrixRef& x, const Workspace& ws) const;
+
   std::vector<int> widths_;
   Activation activation_;
+  ConvFront front_;
   std::vector<int64_t> offsets_;
   int64_t parameter_count_ = 0;
 };

@@ -13,9 +13,9 @@ namespace {
 Status CheckData(const Mlp& net, Task task, const Split& data) {
   const int64_t rows = data.rows(), outputs = net.widths().back();
   if (rows < 1) return Status::InvalidInput("the data set has no rows");
-  if (data.x.cols() != net.widths().front()) {
+  if (data.x.cols() != net.Inputs()) {
     return Status::InvalidInput("the data has " + std::to_string(data.x.cols()) +
-                                " features, the network " + std::to_string(net.widths().front()) +
+                                " features, the network " + std::to_string(net.Inputs()) +
                                 " inputs");
   }
   if (task == Task::kRegression) {
@@ -84,7 +84,7 @@ double MlpLogPosterior::operator()(const std::vector<double>& theta, std::vector
 MatrixD PosteriorPredictive(const Mlp& net, Task task, const std::vector<MatrixD>& draws,
                             const ConstMatrixRef& x, int64_t chunk_rows) {
   const int64_t rows = x.rows(), outputs = net.widths().back();
-  assert(x.cols() == net.widths().front() && chunk_rows >= 1);
+  assert(x.cols() == net.Inputs() && chunk_rows >= 1);
   assert(task == Task::kClassification || outputs == 2);
   Mlp::Workspace ws = net.MakeWorkspace(std::min(chunk_rows, std::max<int64_t>(rows, 1)));
   std::vector<float> params(net.ParameterCount());

@@ -32,8 +32,13 @@ std::vector<Source> Sources(const Bundle& bundle) {
 
 }  // namespace
 
+Mlp BundleNetwork(const Bundle& bundle) {
+  return Mlp(bundle.widths, bundle.activation,
+             bundle.conv.empty() ? ConvFront() : ConvFront(bundle.image, bundle.conv, bundle.activation));
+}
+
 Predictor::Predictor(const Bundle& bundle)
-    : net_(bundle.widths, bundle.activation), temperature_(bundle.temperature) {
+    : net_(BundleNetwork(bundle)), temperature_(bundle.temperature) {
   target_units_.task = bundle.task;
   target_units_.target_mean = bundle.preprocessing.target_mean;
   target_units_.target_scale = bundle.preprocessing.target_scale;
@@ -42,7 +47,7 @@ Predictor::Predictor(const Bundle& bundle)
 StatusOr<Predictor> Predictor::Create(const Bundle& bundle, const ParallelFor* parallel,
                                       int64_t max_sample_bytes) {
   CHORUS_RETURN_IF_ERROR(CheckBundle(bundle, "bundle"));
-  const int64_t parameters = BundleParameterCount(bundle.widths);
+  const int64_t parameters = BundleParameterCount(bundle);
   int64_t components = 0;
   for (const BundleMember& m : bundle.members) components += m.Samples();
   // components <= 1e9 and parameters <= 2^31, so the product fits in int64.

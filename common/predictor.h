@@ -50,6 +50,9 @@ struct Prediction {
   RegressionPrediction regression;
 };
 
+// The network of a bundle that CheckBundle accepted.
+Mlp BundleNetwork(const Bundle& bundle);
+
 class Predictor {
  public:
   // Rows per forward pass. The run computed its outputs in batches of this size from row 0
@@ -66,7 +69,7 @@ class Predictor {
                                     int64_t max_sample_bytes = kDefaultMaxSampleBytes);
 
   Task task() const { return target_units_.task; }
-  int64_t Features() const { return net_.widths().front(); }
+  int64_t Features() const { return net_.Inputs(); }
   int64_t Components() const { return static_cast<int64_t>(samples_.size()); }
 
   // Network outputs of component c (0 <= c < Components()) for standardised features x

@@ -51,6 +51,8 @@ Bundle MakeRunBundle(const Config& config, const PreparedData& data,
   b.preprocessing = RunPreprocessing(config.data, data);
   b.widths = NetworkFor(config.model, data).widths();
   b.activation = config.model.activation;
+  b.image = config.model.conv.empty() ? ImageShape() : config.model.image;
+  b.conv = config.model.conv;
   for (size_t m = 0; m < members.size(); ++m)
     b.members.push_back(RunMember(members[m], ev.weights[m]));
   b.basin_scale = config.ensemble.basin.scale;

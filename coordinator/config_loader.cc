@@ -9,6 +9,7 @@
 #include <set>
 #include <sstream>
 
+#include "common/conv_front.h"
 #include "common/file_util.h"
 #include "common/sha256.h"
 
@@ -39,6 +40,10 @@ class Section {
   YAML::Node Node(const std::string& key) const { return node_[key]; }
   std::string Path(const std::string& key) const { return name_.empty() ? key : name_ + "." + key; }
   Section Child(const std::string& key) const { return Section(node_[key], Path(key), file_); }
+  // Item i of the list at `key`, as a section named key[i].
+  Section Item(const std::string& key, size_t i) const {
+    return Section(node_[key][i], Path(key) + "[" + std::to_string(i) + "]", file_);
+  }
 
   template <typename T>
   Status Get(const std::string& key, T* out, const char* expected, T lo, T hi) const {
@@ -230,8 +235,62 @@ Status LayerWidths(const Section& s, const YAML::Node& list, const std::string& 
   return Status::Ok();
 }
 
+// model.image: [channels, height, width], each in [1, 65536].
+Status LoadImage(const Section& s, ImageShape* image) {
+  const YAML::Node list = s.Node("image");
+  int v[3] = {0, 0, 0};
+  bool ok = list.IsSequence() && list.size() == 3;
+  for (size_t i = 0; ok && i < 3; ++i) {
+    ok = list[i].IsScalar() && YAML::convert<int>::decode(list[i], v[i]) && v[i] >= 1 && v[i] <= 65536;
+  }
+  if (!ok) {
+    return s.Error(list, s.Path("image"),
+                   "expected [channels, height, width], each in [1, 65536], e.g. [1, 28, 28]");
+  }
+  *image = {v[0], v[1], v[2]};
+  return Status::Ok();
+}
+
+// model.conv: a list of stages, each {channels, kernel, pool}.
+Status LoadConvStages(const Section& s, std::vector<ConvStage>* stages) {
+  const YAML::Node list = s.Node("conv");
+  if (!list.IsSequence() || list.size() < 1 || list.size() > static_cast<size_t>(kMaxConvStages)) {
+    return s.Error(list, s.Path("conv"),
+                   "expected a list of 1 to " + std::to_string(kMaxConvStages) +
+                       " stages, e.g. [{channels: 16, kernel: 3, pool: max}]");
+  }
+  stages->clear();
+  for (size_t i = 0; i < list.size(); ++i) {
+    const Section item = s.Item("conv", i);
+    CHORUS_RETURN_IF_ERROR(item.Check({"channels", "kernel", "pool"}));
+    ConvStage stage;
+    CHORUS_RETURN_IF_ERROR(item.Get<int>("channels", &stage.channels, "a channel count", 1, 4096));
+    CHORUS_RETURN_IF_ERROR(item.Get<int>("kernel", &stage.kernel, "an odd kernel size", 1, 15));
+    if (stage.kernel % 2 == 0) {
+      return item.Error(item.Node("kernel"), item.Path("kernel"),
+                        "expected an odd kernel size (the padding keeps the image size), found " +
+                            std::to_string(stage.kernel));
+    }
+    CHORUS_RETURN_IF_ERROR(item.GetEnum<Pooling>("pool", &stage.pool, ParsePooling, "none, max, average"));
+    stages->push_back(stage);
+  }
+  return Status::Ok();
+}
+
 Status LoadModel(const Section& s, ModelConfig* m) {
-  CHORUS_RETURN_IF_ERROR(s.Check({"hidden", "activation"}));
+  CHORUS_RETURN_IF_ERROR(s.Check({"image", "conv", "hidden", "activation"}));
+  if (s.Has("image")) CHORUS_RETURN_IF_ERROR(LoadImage(s, &m->image));
+  if (s.Has("conv")) {
+    CHORUS_RETURN_IF_ERROR(LoadConvStages(s, &m->conv));
+    if (!s.Has("image")) {
+      return s.Error(s.Node("conv"), s.Path("image"),
+                     "convolution stages need the input's shape, e.g. image: [1, 28, 28] (channels, height, width)");
+    }
+    const std::string problem = CheckConvStages(m->image, m->conv);
+    if (!problem.empty()) return s.Error(s.Node("conv"), s.Path("conv"), problem);
+  } else if (s.Has("image")) {
+    return s.Error(s.Node("image"), s.Path("image"), "only used with conv stages; add model.conv or remove it");
+  }
   if (s.Has("hidden")) CHORUS_RETURN_IF_ERROR(LayerWidths(s, s.Node("hidden"), "hidden", &m->hidden));
   return s.GetEnum<Activation>("activation", &m->activation, ParseActivation, "relu, tanh, gelu");
 }
@@ -560,6 +619,21 @@ void EmitCluster(YAML::Emitter& out, const ClusterConfig& c) {
       << YAML::Key << "max_attempts" << YAML::Value << c.max_attempts << YAML::EndMap;
 }
 
+// model.image and model.conv, only when there are stages (so that the resolved config, and its
+// hash, of a network without them is what it was before stages existed).
+void EmitConv(YAML::Emitter& out, const ModelConfig& m) {
+  if (m.conv.empty()) return;
+  out << YAML::Key << "image" << YAML::Value << YAML::Flow
+      << std::vector<int>{m.image.channels, m.image.height, m.image.width};
+  out << YAML::Key << "conv" << YAML::Value << YAML::BeginSeq;
+  for (const ConvStage& st : m.conv) {
+    out << YAML::Flow << YAML::BeginMap << YAML::Key << "channels" << YAML::Value << st.channels
+        << YAML::Key << "kernel" << YAML::Value << st.kernel << YAML::Key << "pool" << YAML::Value
+        << PoolingName(st.pool) << YAML::EndMap;
+  }
+  out << YAML::EndSeq;
+}
+
 // The model-relevant sections; with `everything`, also names, paths and speed-only settings.
 std::string Emit(const Config& c, bool everything) {
   YAML::Emitter out;
@@ -571,9 +645,10 @@ std::string Emit(const Config& c, bool everything) {
   if (everything) out << YAML::Key << "out_dir" << YAML::Value << c.run.out_dir;
   out << YAML::EndMap;
   EmitData(out, c.data);
-  out << YAML::Key << "model" << YAML::Value << YAML::BeginMap << YAML::Key << "hidden"
-      << YAML::Value << YAML::Flow << c.model.hidden << YAML::Key << "activation" << YAML::Value
-      << ActivationName(c.model.activation) << YAML::EndMap;
+  out << YAML::Key << "model" << YAML::Value << YAML::BeginMap;
+  EmitConv(out, c.model);
+  out << YAML::Key << "hidden" << YAML::Value << YAML::Flow << c.model.hidden << YAML::Key
+      << "activation" << YAML::Value << ActivationName(c.model.activation) << YAML::EndMap;
   EmitTrain(out, c.train);
   out << YAML::Key << "ensemble" << YAML::Value << YAML::BeginMap
       << YAML::Key << "members" << YAML::Value << c.ensemble.members

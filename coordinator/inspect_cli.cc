@@ -72,10 +72,20 @@ std::string Members(const Bundle& b) {
 }
 
 std::string Architecture(const Bundle& b) {
+  std::string text;
+  if (!b.conv.empty()) {
+    text = "image " + std::to_string(b.image.channels) + "x" + std::to_string(b.image.height) + "x" +
+           std::to_string(b.image.width) + ", conv";
+    for (const ConvStage& s : b.conv) {
+      text += " " + std::to_string(s.channels) + "@" + std::to_string(s.kernel) + "x" +
+              std::to_string(s.kernel) + (s.pool == Pooling::kNone ? "" : std::string("/") + PoolingName(s.pool));
+    }
+    text += ", dense ";
+  }
   std::string widths;
   for (int w : b.widths) widths += (widths.empty() ? "" : "-") + std::to_string(w);
-  return widths + ", " + ActivationName(b.activation) + ", " +
-         std::to_string(BundleParameterCount(b.widths)) + " parameters per network";
+  return text + widths + ", " + ActivationName(b.activation) + ", " +
+         std::to_string(BundleParameterCount(b)) + " parameters per network";
 }
 
 std::string Summary(const std::string& path, const BundleFile& file) {

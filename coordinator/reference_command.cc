@@ -67,7 +67,7 @@ StatusOr<json> Reference(const ReferenceOptions& o, const json& report) {
   if (bundle.task != Task::kClassification) {
     return Status::InvalidInput(run + ": a regression run; the HMC reference compares class predictions only");
   }
-  const Mlp net(bundle.widths, bundle.activation);
+  const Mlp net = BundleNetwork(bundle);
   if (net.ParameterCount() > o.max_parameters) {
     return Status::InvalidInput(run + ": the network has " + std::to_string(net.ParameterCount()) +
                                 " parameters, more than --max-parameters " + std::to_string(o.max_parameters) +

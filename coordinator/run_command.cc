@@ -53,6 +53,7 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
   if (options.threads >= 0) in.config.compute.threads = options.threads;
   if (options.workers >= 0) in.config.cluster.local_workers = options.workers;
   CHORUS_ASSIGN_OR_RETURN(in.data, LoadPreparedData(in.config.data, in.config.run.seed));
+  CHORUS_RETURN_IF_ERROR(CheckModelForData(in.config.model, in.data.features(), path + ": model.image"));
   if (!in.config.data.true_probabilities.empty()) {
     CHORUS_ASSIGN_OR_RETURN(in.true_probabilities,
                             LoadTrueProbabilities(in.config.data.true_probabilities, in.data));

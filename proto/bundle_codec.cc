@@ -85,6 +85,15 @@ void ToWire(const Bundle& b, wire::Bundle* out) {
   ToWire(b.preprocessing, out->mutable_preprocessing());
   out->mutable_widths()->Add(b.widths.begin(), b.widths.end());
   out->set_activation(ActivationName(b.activation));
+  if (!b.conv.empty()) {
+    for (int v : {b.image.channels, b.image.height, b.image.width}) out->add_image(v);
+    for (const ConvStage& st : b.conv) {
+      wire::ConvStage* c = out->add_conv();
+      c->set_channels(st.channels);
+      c->set_kernel(st.kernel);
+      c->set_pool(PoolingName(st.pool));
+    }
+  }
   for (const BundleMember& m : b.members) ToWire(m, out->add_members());
   out->set_basin_scale(b.basin_scale);
   out->set_temperature(b.temperature);
@@ -207,6 +216,15 @@ StatusOr<Bundle> FromWire(wire::Bundle& w, const std::string& source) {
   b.class_names.assign(w.class_names().begin(), w.class_names().end());
   b.preprocessing = FromWire(w.preprocessing());
   b.widths.assign(w.widths().begin(), w.widths().end());
+  if (w.image_size() != 0 && w.image_size() != 3) {
+    return Status::InvalidInput(source + ": image: expected channels, height and width, found " +
+                                std::to_string(w.image_size()) + " values");
+  }
+  if (w.image_size() == 3) b.image = {w.image(0), w.image(1), w.image(2)};
+  for (const wire::ConvStage& c : w.conv()) {
+    CHORUS_ASSIGN_OR_RETURN(const Pooling pool, Parsed(ParsePooling(c.pool()), c.pool(), "conv.pool", source));
+    b.conv.push_back({c.channels(), c.kernel(), pool});
+  }
   for (wire::Member& m : *w.mutable_members()) {
     CHORUS_ASSIGN_OR_RETURN(BundleMember member, FromWire(m, source));
     b.members.push_back(std::move(member));

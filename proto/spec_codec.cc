@@ -1,5 +1,7 @@
 #include "proto/spec_codec.h"
 
+#include "common/conv_front.h"
+
 namespace chorus {
 
 void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
@@ -7,6 +9,16 @@ void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
   out->set_seed(spec.seed);
   out->mutable_hidden()->Add(spec.model.hidden.begin(), spec.model.hidden.end());
   out->set_activation(ActivationName(spec.model.activation));
+  if (!spec.model.conv.empty()) {
+    const ImageShape& i = spec.model.image;
+    for (int v : {i.channels, i.height, i.width}) out->add_image(v);
+    for (const ConvStage& st : spec.model.conv) {
+      wire::ConvStage* c = out->add_conv();
+      c->set_channels(st.channels);
+      c->set_kernel(st.kernel);
+      c->set_pool(PoolingName(st.pool));
+    }
+  }
   const TrainConfig& t = spec.train;
   out->set_epochs(t.epochs);
   out->set_batch_size(t.batch_size);
@@ -74,6 +86,17 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
     if (h < 1 || h > 65536) return Status::InvalidInput("job spec: hidden width out of range");
   }
   s.model.activation = *activation;
+  if (w.conv_size() > 0 || w.image_size() > 0) {
+    if (w.image_size() != 3) return Status::InvalidInput("job spec: expected an image shape of 3 values");
+    s.model.image = {w.image(0), w.image(1), w.image(2)};
+    for (const wire::ConvStage& c : w.conv()) {
+      const auto pool = ParsePooling(c.pool());
+      if (!pool) return Status::InvalidInput("job spec: unknown pooling \"" + c.pool() + "\"");
+      s.model.conv.push_back({c.channels(), c.kernel(), *pool});
+    }
+    const std::string problem = CheckConvStages(s.model.image, s.model.conv);
+    if (!problem.empty()) return Status::InvalidInput("job spec: convolution stages: " + problem);
+  }
   s.train.epochs = w.epochs();
   s.train.batch_size = w.batch_size();
   s.train.parts = w.parts();

@@ -80,6 +80,18 @@ TEST(TrainingStepAllocations, NoneAfterWarmUpForRegression) {
   EXPECT_EQ(AllocationsPerSteps(p, step, nullptr, 2, 20), 0);
 }
 
+// A convolutional member: two stages (max and average pooling) on 1 x 12 x 25 images (300
+// features), then the dense layers; more rows than one unfolding chunk.
+TEST(TrainingStepAllocations, NoneAfterWarmUpWithConvolutionStages) {
+  Problem p;
+  const ConvFront front({1, 12, 25}, {{6, 3, Pooling::kMax}, {8, 3, Pooling::kAverage}}, Activation::kRelu);
+  p.net = Mlp({static_cast<int>(front.Outputs()), 32, 10}, Activation::kRelu, front);
+  p.params.assign(p.net.ParameterCount(), 0.0f);
+  p.net.Initialize(8, p.params.data());
+  TrainingStep step(p.net, Task::kClassification, OptimizerConfig{}, kBatch, 1);
+  EXPECT_EQ(AllocationsPerSteps(p, step, nullptr, 2, 20), 0);
+}
+
 // Each thread's first product allocates its packing buffers (common/gemm.cc): make every thread
 // of the arena do one, all at once, so the warm-up does not depend on how tasks were stolen.
 void WarmUpEveryThread(tbb::task_arena& arena) {

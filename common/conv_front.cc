@@ -1,0 +1,344 @@
+#include "common/conv_front.h"
+
+#include <algorithm>
+#include <cassert>
+#include <cmath>
+#include <string>
+
+#include "common/gemm.h"
+#include "common/mlp.h"
+
+namespace chorus {
+namespace {
+
+constexpr int kMaxConvChannels = 4096;
+constexpr int kMaxConvKernel = 15;
+constexpr int kMaxImageSide = 65536;
+
+// Where pixel (sample, channel, y, x) of a stage's input lies, in floats.
+struct InputStrides {
+  int64_t sample, channel, y, x;
+};
+
+InputStrides StridesOf(const ConvFront::Stage& g, bool channel_major) {
+  const int64_t c = g.in_channels, h = g.height, w = g.width;
+  if (channel_major) return {c * h * w, h * w, w, 1};
+  return {h * w * c, 1, w * c, c};
+}
+
+// Unfolds `samples` samples of `in` into columns: row (i H + y) W + x, column (dy k + dx) C + c
+// holds input channel c at (y + dy - pad, x + dx - pad) of sample i, or 0 outside the image.
+void Unfold(const float* in, int64_t samples, const ConvFront::Stage& g, const InputStrides& st,
+            float* columns) {
+  const int k = g.kernel, c_in = g.in_channels;
+  const int64_t row_floats = g.KernelRows();
+  float* out = columns;
+  for (int64_t i = 0; i < samples; ++i) {
+    const float* sample = in + i * st.sample;
+    for (int y = 0; y < g.height; ++y) {
+      for (int x = 0; x < g.width; ++x, out += row_floats) {
+        float* dst = out;
+        for (int dy = 0; dy < k; ++dy) {
+          const int iy = y + dy - g.pad;
+          if (iy < 0 || iy >= g.height) {
+            std::fill(dst, dst + int64_t{k} * c_in, 0.0f);
+            dst += int64_t{k} * c_in;
+            continue;
+          }
+          for (int dx = 0; dx < k; ++dx, dst += c_in) {
+            const int ix = x + dx - g.pad;
+            if (ix < 0 || ix >= g.width) {
+              std::fill(dst, dst + c_in, 0.0f);
+              continue;
+            }
+            // A loop, not memcpy: rows are a few channels long, where the call costs more than
+            // the copy (measured: memcpy was 4% of a Fashion-MNIST member's step).
+            const float* src = sample + iy * st.y + ix * st.x;
+            if (st.channel == 1) {
+              for (int c = 0; c < c_in; ++c) dst[c] = src[c];
+            } else {
+              for (int c = 0; c < c_in; ++c) dst[c] = src[c * st.channel];
+            }
+          }
+        }
+      }
+    }
+  }
+}
+
+// The adjoint of Unfold for a channels-last input: adds each column entry back onto the input
+// pixel it was copied from. `in_grad` (samples H W C floats) is overwritten.
+void Fold(const float* columns, int64_t samples, const ConvFront::Stage& g, float* in_grad) {
+  const int k = g.kernel, c_in = g.in_channels;
+  const InputStrides st = StridesOf(g, false);
+  std::fill(in_grad, in_grad + samples * st.sample, 0.0f);
+  const float* src_row = columns;
+  for (int64_t i = 0; i < samples; ++i) {
+    float* sample = in_grad + i * st.sample;
+    for (int y = 0; y < g.height; ++y) {
+      for (int x = 0; x < g.width; ++x, src_row += g.KernelRows()) {
+        for (int dy = 0; dy < k; ++dy) {
+          const int iy = y + dy - g.pad;
+          if (iy < 0 || iy >= g.height) continue;
+          for (int dx = 0; dx < k; ++dx) {
+            const int ix = x + dx - g.pad;
+            if (ix < 0 || ix >= g.width) continue;
+            const float* src = src_row + (int64_t{dy} * k + dx) * c_in;
+            float* dst = sample + iy * st.y + ix * st.x;
+            for (int c = 0; c < c_in; ++c) dst[c] += src[c];
+          }
+        }
+      }
+    }
+  }
+}
+
+// 2 x 2 pooling at stride 2 of a channels-last (rows H W) x C matrix. Max keeps the first of
+// equal values in window order (0,0), (0,1), (1,0), (1,1), as PyTorch does.
+void Pool(const ConvFront::Stage& g, int64_t samples, const Matrix& in, Matrix& out,
+          std::vector<uint8_t>& argmax) {
+  const int64_t c = g.out_channels;
+  for (int64_t i = 0; i < samples; ++i) {
+    for (int oy = 0; oy < g.out_height; ++oy) {
+      for (int ox = 0; ox < g.out_width; ++ox) {
+        const int64_t out_row = (i * g.out_height + oy) * g.out_width + ox;
+        const int64_t top = (i * g.height + 2 * oy) * g.width + 2 * ox;
+        const float* window[4] = {in.row(top).data(), in.row(top + 1).data(),
+                                  in.row(top + g.width).data(), in.row(top + g.width + 1).data()};
+        float* dst = out.row(out_row).data();
+        if (g.pool == Pooling::kAverage) {
+          for (int64_t j = 0; j < c; ++j) {
+            dst[j] = 0.25f * (((window[0][j] + window[1][j]) + window[2][j]) + window[3][j]);
+          }
+          continue;
+        }
+        uint8_t* best = argmax.data() + out_row * c;
+        for (int64_t j = 0; j < c; ++j) {
+          // Branch-free, so the compiler vectorises it; a later value wins only if greater.
+          float v = window[0][j];
+          uint8_t b = 0;
+          for (uint8_t p = 1; p < 4; ++p) {
+            const bool greater = window[p][j] > v;
+            v = greater ? window[p][j] : v;
+            b = greater ? p : b;
+          }
+          best[j] = b;
+          dst[j] = v;
+        }
+      }
+    }
+  }
+}
+
+// The adjoint of Pool: spreads dL/d(pooled) back onto the window (max: onto its winner; mean: a
+// quarter each). Pixels in no window (odd edges) get 0. `grad` is overwritten.
+void Unpool(const ConvFront::Stage& g, int64_t samples, const Matrix& pooled_grad,
+            const std::vector<uint8_t>& argmax, Matrix& grad) {
+  const int64_t c = g.out_channels;
+  // Every window's four pixels are written below; only odd edges need zeroing first.
+  if (g.height % 2 != 0 || g.width % 2 != 0) grad.topRows(samples * g.Pixels()).setZero();
+  for (int64_t i = 0; i < samples; ++i) {
+    for (int oy = 0; oy < g.out_height; ++oy) {
+      for (int ox = 0; ox < g.out_width; ++ox) {
+        const int64_t out_row = (i * g.out_height + oy) * g.out_width + ox;
+        const int64_t top = (i * g.height + 2 * oy) * g.width + 2 * ox;
+        float* window[4] = {grad.row(top).data(), grad.row(top + 1).data(),
+                            grad.row(top + g.width).data(), grad.row(top + g.width + 1).data()};
+        const float* src = pooled_grad.row(out_row).data();
+        if (g.pool == Pooling::kAverage) {
+          for (int64_t j = 0; j < c; ++j) {
+            const float share = 0.25f * src[j];
+            for (float* w : window) w[j] = share;
+          }
+          continue;
+        }
+        const uint8_t* best = argmax.data() + out_row * c;
+        for (int64_t j = 0; j < c; ++j) {
+          for (uint8_t p = 0; p < 4; ++p) window[p][j] = best[j] == p ? src[j] : 0.0f;
+        }
+      }
+    }
+  }
+}
+
+std::vector<ConvFront::Stage> Geometry(const ImageShape& input, const std::vector<ConvStage>& stages) {
+  std::vector<ConvFront::Stage> out;
+  int c = input.channels, h = input.height, w = input.width;
+  for (const ConvStage& s : stages) {
+    ConvFront::Stage g{c, h, w, s.channels, s.kernel, s.kernel / 2, s.pool, h, w};
+    if (s.pool != Pooling::kNone) {
+      g.out_height = h / 2;
+      g.out_width = w / 2;
+    }
+    out.push_back(g);
+    c = g.out_channels;
+    h = g.out_height;
+    w = g.out_width;
+  }
+  return out;
+}
+
+}  // namespace
+
+std::string CheckConvStages(const ImageShape& input, const std::vector<ConvStage>& stages) {
+  for (int d : {input.channels, input.height, input.width}) {
+    if (d < 1 || d > kMaxImageSide) {
+      return "image: expected channels, height and width each in [1, " + std::to_string(kMaxImageSide) + "]";
+    }
+  }
+  if (stages.empty() || static_cast<int>(stages.size()) > kMaxConvStages) {
+    return "expected 1 to " + std::to_string(kMaxConvStages) + " stages";
+  }
+  int h = input.height, w = input.width;
+  for (size_t i = 0; i < stages.size(); ++i) {
+    const ConvStage& s = stages[i];
+    const std::string where = "stage " + std::to_string(i + 1) + ": ";
+    if (s.channels < 1 || s.channels > kMaxConvChannels) {
+      return where + "expected channels in [1, " + std::to_string(kMaxConvChannels) + "]";
+    }
+    if (s.kernel < 1 || s.kernel > kMaxConvKernel || s.kernel % 2 == 0) {
+      return where + "expected an odd kernel in [1, " + std::to_string(kMaxConvKernel) + "]";
+    }
+    if (s.pool != Pooling::kNone) {
+      if (h < 2 || w < 2) {
+        return where + "its input is " + std::to_string(h) + " x " + std::to_string(w) +
+               ", too small to pool 2 x 2";
+      }
+      h /= 2;
+      w /= 2;
+    }
+  }
+  return "";
+}
+
+int64_t ConvParameterCount(const ImageShape& input, const std::vector<ConvStage>& stages) {
+  if (!CheckConvStages(input, stages).empty()) return -1;
+  int64_t count = 0;
+  for (const ConvFront::Stage& g : Geometry(input, stages)) count += (g.KernelRows() + 1) * g.out_channels;
+  return count;
+}
+
+ConvFront::ConvFront(ImageShape input, const std::vector<ConvStage>& stages, Activation activation)
+    : input_(input), activation_(activation), stages_(Geometry(input, stages)) {
+  assert(CheckConvStages(input, stages).empty());
+  for (const Stage& g : stages_) {
+    offsets_.push_back(parameter_count_);
+    parameter_count_ += (g.KernelRows() + 1) * g.out_channels;
+  }
+}
+
+std::vector<ConvStage> ConvFront::Config() const {
+  std::vector<ConvStage> out;
+  for (const Stage& g : stages_) out.push_back({g.out_channels, g.kernel, g.pool});
+  return out;
+}
+
+int64_t ConvFront::Outputs() const {
+  if (stages_.empty()) return Inputs();
+  const Stage& g = stages_.back();
+  return g.OutPixels() * g.out_channels;
+}
+
+ConvFront::Workspace ConvFront::MakeWorkspace(int64_t max_rows) const {
+  Workspace ws;
+  int64_t column_floats = 0;
+  for (const Stage& g : stages_) {
+    const bool pooled = g.pool != Pooling::kNone;
+    ws.pre.emplace_back(max_rows * g.Pixels(), g.out_channels);
+    ws.post.emplace_back(max_rows * g.Pixels(), g.out_channels);
+    ws.grad.emplace_back(max_rows * g.Pixels(), g.out_channels);
+    ws.pooled.emplace_back(pooled ? max_rows * g.OutPixels() : 0, g.out_channels);
+    ws.grad_pooled.emplace_back(pooled ? max_rows * g.OutPixels() : 0, g.out_channels);
+    ws.argmax.emplace_back(g.pool == Pooling::kMax ? max_rows * g.OutPixels() * g.out_channels : 0);
+    column_floats = std::max(column_floats, g.Pixels() * g.KernelRows());
+  }
+  const int64_t chunk = std::min(max_rows, kChunkSamples);
+  ws.columns.resize(chunk * column_floats, 1);
+  ws.column_grad.resize(chunk * column_floats, 1);
+  return ws;
+}
+
+void ConvFront::Initialize(Philox& rng, float* params) const {
+  const double gain2 = activation_ == Activation::kTanh ? 1.0 : 2.0;
+  for (size_t s = 0; s < stages_.size(); ++s) {
+    const Stage& g = stages_[s];
+    const double sd = std::sqrt(gain2 / static_cast<double>(g.KernelRows()));
+    float* w = params + WeightOffset(static_cast<int>(s));
+    for (int64_t i = 0; i < g.KernelRows() * g.out_channels; ++i) w[i] = static_cast<float>(sd * rng.NextNormal());
+    std::fill(params + BiasOffset(static_cast<int>(s)), params + BiasOffset(static_cast<int>(s)) + g.out_channels, 0.0f);
+  }
+}
+
+const float* ConvFront::StageInput(int s, const ConstMatrixRef& x, const Workspace& ws) const {
+  if (s == 0) return x.data();
+  return stages_[s - 1].pool == Pooling::kNone ? ws.post[s - 1].data() : ws.pooled[s - 1].data();
+}
+
+Matrix& ConvFront::StageOutputGradient(int s, Workspace& ws) const {
+  return stages_[s].pool == Pooling::kNone ? ws.grad[s] : ws.grad_pooled[s];
+}
+
+Eigen::Map<const Matrix> ConvFront::Forward(const float* params, const ConstMatrixRef& x,
+                                            Workspace& ws) const {
+  assert(x.cols() == Inputs() && x.outerStride() == Inputs());
+  const int64_t rows = x.rows();
+  for (int s = 0; s < static_cast<int>(stages_.size()); ++s) {
+    const Stage& g = stages_[s];
+    const InputStrides st = StridesOf(g, s == 0);
+    const float* in = StageInput(s, x, ws);
+    Eigen::Map<const Matrix> kernel(params + WeightOffset(s), g.KernelRows(), g.out_channels);
+    for (int64_t i0 = 0; i0 < rows; i0 += kChunkSamples) {
+      const int64_t n = std::min(kChunkSamples, rows - i0);
+      Eigen::Map<Matrix> columns(ws.columns.data(), n * g.Pixels(), g.KernelRows());
+      Unfold(in + i0 * st.sample, n, g, st, columns.data());
+      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, columns, kernel, 0.0f,
+           ws.pre[s].middleRows(i0 * g.Pixels(), n * g.Pixels()));
+    }
+    AddBiasAndActivate(activation_, params + BiasOffset(s), ws.pre[s].topRows(rows * g.Pixels()),
+                       ws.post[s].topRows(rows * g.Pixels()));
+    if (g.pool != Pooling::kNone) Pool(g, rows, ws.post[s], ws.pooled[s], ws.argmax[s]);
+  }
+  const float* out = StageInput(static_cast<int>(stages_.size()), x, ws);
+  return Eigen::Map<const Matrix>(out, rows, Outputs());
+}
+
+Eigen::Map<Matrix> ConvFront::OutputGradient(Workspace& ws, int64_t rows) const {
+  return Eigen::Map<Matrix>(StageOutputGradient(static_cast<int>(stages_.size()) - 1, ws).data(), rows, Outputs());
+}
+
+void ConvFront::Backward(float* params, const ConstMatrixRef& x, Workspace& ws, float* grad,
+                         const OptimizerConfig* optimizer, float lr, float* velocity) const {
+  const int64_t rows = x.rows();
+  for (int s = static_cast<int>(stages_.size()) - 1; s >= 0; --s) {
+    const Stage& g = stages_[s];
+    auto dz = ws.grad[s].topRows(rows * g.Pixels());
+    if (g.pool != Pooling::kNone) Unpool(g, rows, ws.grad_pooled[s], ws.argmax[s], ws.grad[s]);
+    MultiplyActivationDerivative(activation_, ws.pre[s].topRows(rows * g.Pixels()), dz);
+    // dK = sum over chunks of columns^T dZ; db = 1^T dZ; for s > 0 also
+    // dL/d(input) = Fold(dZ K^T), taken before K is updated.
+    const InputStrides st = StridesOf(g, s == 0);
+    const float* in = StageInput(s, x, ws);
+    Eigen::Map<const Matrix> kernel(params + WeightOffset(s), g.KernelRows(), g.out_channels);
+    Eigen::Map<Matrix> dkernel(grad + WeightOffset(s), g.KernelRows(), g.out_channels);
+    for (int64_t i0 = 0; i0 < rows; i0 += kChunkSamples) {
+      const int64_t n = std::min(kChunkSamples, rows - i0);
+      const auto dz_chunk = dz.middleRows(i0 * g.Pixels(), n * g.Pixels());
+      Eigen::Map<Matrix> columns(ws.columns.data(), n * g.Pixels(), g.KernelRows());
+      Unfold(in + i0 * st.sample, n, g, st, columns.data());
+      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, columns, dz_chunk, i0 == 0 ? 0.0f : 1.0f, dkernel);
+      if (s == 0) continue;
+      Eigen::Map<Matrix> column_grad(ws.column_grad.data(), n * g.Pixels(), g.KernelRows());
+      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz_chunk, kernel, 0.0f, column_grad);
+      const Stage& prev = stages_[s - 1];
+      Fold(column_grad.data(), n, g,
+           StageOutputGradient(s - 1, ws).row(i0 * prev.OutPixels()).data());
+    }
+    Eigen::Map<Eigen::RowVectorXf>(grad + BiasOffset(s), g.out_channels) = dz.colwise().sum();
+    if (optimizer != nullptr) {
+      const int64_t block = (g.KernelRows() + 1) * g.out_channels;
+      SgdStep(*optimizer, lr, block, grad + WeightOffset(s), params + WeightOffset(s), velocity + WeightOffset(s));
+    }
+  }
+}
+
+}  // namespace chorus
