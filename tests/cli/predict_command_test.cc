@@ -16,6 +16,7 @@
 #include "coordinator/config_loader.h"
 #include "proto/bundle_codec.h"
 #include "tests/testing/process.h"
+#include "tests/testing/run_dir.h"
 #include "tests/testing/reference.h"
 #include "tests/testing/synthetic_bundle.h"
 
@@ -255,6 +256,53 @@ TEST_F(PredictCommandTest, IdxImagesReproduceTheRun) {
   EXPECT_EQ(t.rows[1099][0], "1099");
   const PreparedData data = RunData("idx");
   ExpectScoresEqualReport(Probabilities(t, data.class_names), data, Report(run));
+}
+
+// Convolutional members (model.conv) through the whole path on IDX images: members with low-rank
+// basin fits, and members with a last-layer Laplace fit on the stages' own output (no hidden
+// layer). `chorus predict` reproduces each run's report, the result bytes are the same on one and
+// two threads, and inspect names the stages.
+TEST_F(PredictCommandTest, ConvolutionalMembersReproduceTheRunOnAnyThreadCount) {
+  WriteIdxData(dir_ + "/train", 600, 1);
+  WriteIdxData(dir_ + "/test", 300, 2);
+  const std::string data =
+      "data: {format: idx, train: {images: train-images.idx, labels: train-labels.idx},\n"
+      "       test: {images: test-images.idx, labels: test-labels.idx}}\n"
+      "train: {epochs: 2, batch_size: 50}\n";
+  const std::string low_rank = data +
+      "model: {image: [1, 4, 4], conv: [{channels: 4, kernel: 3, pool: max}], hidden: [8]}\n"
+      "ensemble: {members: 2, basin: {method: gaussian_lowrank, epochs: 1, snapshots: 4, rank: 3, samples: 2}}\n";
+  const std::string laplace = data +
+      "model: {image: [1, 4, 4], conv: [{channels: 3, kernel: 3, pool: average}, {channels: 4, kernel: 1, pool: none}],\n"
+      "        hidden: []}\n"
+      "ensemble: {members: 2, basin: {method: laplace_last_layer, samples: 3}}\n";
+  for (const auto& [name, yaml] : {std::pair<std::string, std::string>{"convlr", low_rank}, {"convla", laplace}}) {
+    SCOPED_TRACE(name);
+    const std::string run = Run(name, yaml);
+    ASSERT_FALSE(run.empty());
+    const auto r = Chorus("predict " + run + "/bundle.chorus " + dir_ + "/test-images.idx -o " + dir_ +
+                          "/" + name + ".csv --threads 2");
+    ASSERT_EQ(r.exit_code, 0) << r.output;
+    const PreparedData prepared = RunData(name);
+    ExpectScoresEqualReport(Probabilities(ReadTable(dir_ + "/" + name + ".csv"), prepared.class_names),
+                            prepared, Report(run));
+    const std::string one_thread = dir_ + "/runs-" + name + "-1";
+    ASSERT_EQ(Chorus("run " + dir_ + "/" + name + ".yaml --threads 1 --out " + one_thread).exit_code, 0);
+    EXPECT_TRUE(testing::JobResults(run) == testing::JobResults(testing::RunDirUnder(one_thread)))
+        << "two threads vs one";
+  }
+  // An image shape that does not hold the data's features is refused before anything is written.
+  WriteTextFile(dir_ + "/wrong.yaml", "run: {name: wrong}\n" + data +
+                "model: {image: [1, 4, 5], conv: [{channels: 4}]}\n");
+  const auto wrong = Chorus("run " + dir_ + "/wrong.yaml --out " + dir_ + "/runs-wrong");
+  EXPECT_EQ(wrong.exit_code, 2) << wrong.output;
+  EXPECT_NE(wrong.output.find("wrong.yaml: model.image: image 1 x 4 x 5 holds 20 values per row, but the data "
+                              "has 16 features"),
+            std::string::npos)
+      << wrong.output;
+  EXPECT_FALSE(fs::exists(dir_ + "/runs-wrong"));
+  const auto inspect = Chorus("inspect " + testing::RunDirUnder(dir_ + "/runs-convlr") + "/bundle.chorus");
+  EXPECT_NE(inspect.output.find("image 1x4x4, conv 4@3x3/max, dense 16-8-3"), std::string::npos) << inspect.output;
 }
 
 TEST_F(PredictCommandTest, InvalidRowsStopWithExitTwoUnlessSkipped) {

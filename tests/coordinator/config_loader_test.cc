@@ -67,6 +67,43 @@ TEST(ConfigLoaderTest, HashIgnoresSpeedOnlySettingsButNotModelSettings) {
   EXPECT_NE(ConfigHash(a), ConfigHash(b));
 }
 
+TEST(ConfigLoaderTest, ConvolutionStagesLoadRoundTripAndChangeTheHash) {
+  const std::string text = std::string(kMinimal) +
+      "model:\n  image: [3, 32, 30]\n  conv:\n    - {channels: 8, kernel: 5, pool: average}\n"
+      "    - {channels: 16}\n  hidden: [32]\n";
+  StatusOr<Config> a = ParseConfig(text, "/x/a.yaml");
+  ASSERT_TRUE(a.ok()) << a.status().ToString();
+  EXPECT_TRUE(a.value().model.image == (ImageShape{3, 32, 30}));
+  ASSERT_EQ(a.value().model.conv.size(), 2u);
+  EXPECT_TRUE(a.value().model.conv[0] == (ConvStage{8, 5, Pooling::kAverage}));
+  EXPECT_TRUE(a.value().model.conv[1] == (ConvStage{16, 3, Pooling::kMax}));  // the defaults
+  StatusOr<Config> b = ParseConfig(ConfigToYaml(a.value()), "/y/b.yaml");
+  ASSERT_TRUE(b.ok()) << b.status().ToString();
+  EXPECT_EQ(ConfigHash(a.value()), ConfigHash(b.value()));
+  Config c = a.value();
+  c.model.conv[1].pool = Pooling::kNone;
+  EXPECT_NE(ConfigHash(a.value()), ConfigHash(c));
+}
+
+TEST(ConfigLoaderTest, BadConvolutionStagesNameTheKeyAndLine) {
+  const auto error = [](const std::string& model) {
+    StatusOr<Config> c = ParseConfig(std::string(kMinimal) + model, "/x/a.yaml");
+    return c.ok() ? std::string("loaded") : c.status().message();
+  };
+  EXPECT_EQ(error("model: {image: [1, 28, 28], conv: [{channels: 8, kernel: 4}]}\n"),
+            "/x/a.yaml:5:58: model.conv[0].kernel: expected an odd kernel size (the padding keeps the image size), found 4");
+  EXPECT_EQ(error("model: {conv: [{channels: 8}]}\n"),
+            "/x/a.yaml:5:15: model.image: convolution stages need the input's shape, e.g. image: [1, 28, 28] (channels, height, width)");
+  EXPECT_EQ(error("model: {image: [1, 28], conv: [{channels: 8}]}\n"),
+            "/x/a.yaml:5:16: model.image: expected [channels, height, width], each in [1, 65536], e.g. [1, 28, 28]");
+  EXPECT_EQ(error("model: {image: [1, 2, 2], conv: [{channels: 8}, {channels: 8}]}\n"),
+            "/x/a.yaml:5:33: model.conv: stage 2: its input is 1 x 1, too small to pool 2 x 2");
+  EXPECT_EQ(error("model: {image: [1, 8, 8], conv: [{channels: 8, pool: min}]}\n"),
+            "/x/a.yaml:5:54: model.conv[0].pool: expected one of none, max, average, found \"min\"");
+  EXPECT_EQ(error("model: {image: [1, 8, 8]}\n"),
+            "/x/a.yaml:5:16: model.image: only used with conv stages; add model.conv or remove it");
+}
+
 TEST(ConfigLoaderTest, SmallDataKeysSearchGridAndTheirRoundTrip) {
   const std::string text = std::string(kMinimal) +
       "  small_data_rows: 500\n"
