@@ -5,6 +5,7 @@
 #include <cmath>
 #include <string>
 
+#include "common/activation.h"
 #include "common/gemm.h"
 #include "common/mlp.h"
 
@@ -93,72 +94,110 @@ void Fold(const float* columns, int64_t samples, const ConvFront::Stage& g, floa
   }
 }
 
-// 2 x 2 pooling at stride 2 of a channels-last (rows H W) x C matrix. Max keeps the first of
-// equal values in window order (0,0), (0,1), (1,0), (1,1), as PyTorch does.
-void Pool(const ConvFront::Stage& g, int64_t samples, const Matrix& in, Matrix& out,
-          std::vector<uint8_t>& argmax) {
-  const int64_t c = g.out_channels;
+// Calls visit(sample, top_row, out_row) for every 2 x 2 window of a stage's pixel rows: the
+// window's pixels are rows top, top + 1, top + W, top + W + 1; out_row is its pooled row.
+template <typename Visit>
+void ForEachWindow(const ConvFront::Stage& g, int64_t samples, const Visit& visit) {
   for (int64_t i = 0; i < samples; ++i) {
     for (int oy = 0; oy < g.out_height; ++oy) {
       for (int ox = 0; ox < g.out_width; ++ox) {
-        const int64_t out_row = (i * g.out_height + oy) * g.out_width + ox;
-        const int64_t top = (i * g.height + 2 * oy) * g.width + 2 * ox;
-        const float* window[4] = {in.row(top).data(), in.row(top + 1).data(),
-                                  in.row(top + g.width).data(), in.row(top + g.width + 1).data()};
-        float* dst = out.row(out_row).data();
-        if (g.pool == Pooling::kAverage) {
-          for (int64_t j = 0; j < c; ++j) {
-            dst[j] = 0.25f * (((window[0][j] + window[1][j]) + window[2][j]) + window[3][j]);
-          }
-          continue;
-        }
-        uint8_t* best = argmax.data() + out_row * c;
-        for (int64_t j = 0; j < c; ++j) {
-          // Branch-free, so the compiler vectorises it; a later value wins only if greater.
-          float v = window[0][j];
-          uint8_t b = 0;
-          for (uint8_t p = 1; p < 4; ++p) {
-            const bool greater = window[p][j] > v;
-            v = greater ? window[p][j] : v;
-            b = greater ? p : b;
-          }
-          best[j] = b;
-          dst[j] = v;
-        }
+        visit((i * g.height + 2 * oy) * g.width + 2 * ox, (i * g.out_height + oy) * g.out_width + ox);
       }
     }
   }
 }
 
-// The adjoint of Pool: spreads dL/d(pooled) back onto the window (max: onto its winner; mean: a
-// quarter each). Pixels in no window (odd edges) get 0. `grad` is overwritten.
-void Unpool(const ConvFront::Stage& g, int64_t samples, const Matrix& pooled_grad,
-            const std::vector<uint8_t>& argmax, Matrix& grad) {
-  const int64_t c = g.out_channels;
-  // Every window's four pixels are written below; only odd edges need zeroing first.
-  if (g.height % 2 != 0 || g.width % 2 != 0) grad.topRows(samples * g.Pixels()).setZero();
+// Calls visit(row) for every pixel row in no window: the last row or column of an odd image.
+template <typename Visit>
+void ForEachUnpooledPixel(const ConvFront::Stage& g, int64_t samples, const Visit& visit) {
+  if (g.height % 2 == 0 && g.width % 2 == 0) return;
   for (int64_t i = 0; i < samples; ++i) {
-    for (int oy = 0; oy < g.out_height; ++oy) {
-      for (int ox = 0; ox < g.out_width; ++ox) {
-        const int64_t out_row = (i * g.out_height + oy) * g.out_width + ox;
-        const int64_t top = (i * g.height + 2 * oy) * g.width + 2 * ox;
-        float* window[4] = {grad.row(top).data(), grad.row(top + 1).data(),
-                            grad.row(top + g.width).data(), grad.row(top + g.width + 1).data()};
-        const float* src = pooled_grad.row(out_row).data();
-        if (g.pool == Pooling::kAverage) {
-          for (int64_t j = 0; j < c; ++j) {
-            const float share = 0.25f * src[j];
-            for (float* w : window) w[j] = share;
-          }
-          continue;
-        }
-        const uint8_t* best = argmax.data() + out_row * c;
-        for (int64_t j = 0; j < c; ++j) {
-          for (uint8_t p = 0; p < 4; ++p) window[p][j] = best[j] == p ? src[j] : 0.0f;
-        }
+    for (int y = 0; y < g.height; ++y) {
+      for (int x = 0; x < g.width; ++x) {
+        if (y >= 2 * g.out_height || x >= 2 * g.out_width) visit((i * g.height + y) * g.width + x);
       }
     }
   }
+}
+
+// For a pooled stage, in one pass over the pre-activations z (channels-last (rows H W) x C): adds
+// the bias to z, applies the activation and pools 2 x 2 at stride 2 into `pooled`. Max keeps the
+// first of equal values in window order (0,0), (0,1), (1,0), (1,1), as PyTorch does, and records
+// it in `argmax`; average is ((a0 + a1) + a2) + a3 over 4. The activations themselves are never
+// stored: backward needs only z and the winners.
+void BiasActivateAndPool(Activation activation, const ConvFront::Stage& g, int64_t samples,
+                         const float* bias, Matrix& z, Matrix& pooled, std::vector<uint8_t>& argmax) {
+  const int64_t c = g.out_channels;
+  WithActivation(activation, [&](const auto act) {
+    ForEachWindow(g, samples, [&](int64_t top, int64_t out_row) {
+      float* window[4] = {z.row(top).data(), z.row(top + 1).data(), z.row(top + g.width).data(),
+                          z.row(top + g.width + 1).data()};
+      float* dst = pooled.row(out_row).data();
+      float a[4];
+      if (g.pool == Pooling::kAverage) {
+        for (int64_t j = 0; j < c; ++j) {
+          for (int p = 0; p < 4; ++p) {
+            window[p][j] += bias[j];
+            a[p] = act(window[p][j]);
+          }
+          dst[j] = 0.25f * (((a[0] + a[1]) + a[2]) + a[3]);
+        }
+        return;
+      }
+      uint8_t* best = argmax.data() + out_row * c;
+      for (int64_t j = 0; j < c; ++j) {
+        for (int p = 0; p < 4; ++p) {
+          window[p][j] += bias[j];
+          a[p] = act(window[p][j]);
+        }
+        // Branch-free, so the compiler vectorises it; a later value wins only if greater.
+        float v = a[0];
+        uint8_t b = 0;
+        for (uint8_t p = 1; p < 4; ++p) {
+          const bool greater = a[p] > v;
+          v = greater ? a[p] : v;
+          b = greater ? p : b;
+        }
+        best[j] = b;
+        dst[j] = v;
+      }
+    });
+    ForEachUnpooledPixel(g, samples, [&](int64_t row) {
+      for (int64_t j = 0; j < c; ++j) z(row, j) += bias[j];
+    });
+  });
+}
+
+// The adjoint of BiasActivateAndPool, in one pass: from dL/d(pooled) and z, writes dL/dz into
+// `grad` (same shape as z). A window's gradient goes to its winner (max) or a quarter to each
+// pixel (average), times the activation's derivative; pixels in no window get 0.
+void UnpoolThroughActivation(Activation activation, const ConvFront::Stage& g, int64_t samples,
+                             const Matrix& pooled_grad, const std::vector<uint8_t>& argmax,
+                             const Matrix& z, Matrix& grad) {
+  const int64_t c = g.out_channels;
+  WithActivation(activation, [&](const auto act) {
+    ForEachWindow(g, samples, [&](int64_t top, int64_t out_row) {
+      const int64_t rows[4] = {top, top + 1, top + g.width, top + g.width + 1};
+      const float* src = pooled_grad.row(out_row).data();
+      if (g.pool == Pooling::kAverage) {
+        for (int64_t r : rows) {
+          const float* zr = z.row(r).data();
+          float* dst = grad.row(r).data();
+          for (int64_t j = 0; j < c; ++j) dst[j] = act.Backward(0.25f * src[j], zr[j]);
+        }
+        return;
+      }
+      const uint8_t* best = argmax.data() + out_row * c;
+      for (uint8_t p = 0; p < 4; ++p) {
+        const float* zr = z.row(rows[p]).data();
+        float* dst = grad.row(rows[p]).data();
+        for (int64_t j = 0; j < c; ++j) dst[j] = act.Backward(best[j] == p ? src[j] : 0.0f, zr[j]);
+      }
+    });
+    ForEachUnpooledPixel(g, samples, [&](int64_t row) {
+      for (int64_t j = 0; j < c; ++j) grad(row, j) = act.Backward(0.0f, z(row, j));
+    });
+  });
 }
 
 std::vector<ConvFront::Stage> Geometry(const ImageShape& input, const std::vector<ConvStage>& stages) {
@@ -239,21 +278,26 @@ int64_t ConvFront::Outputs() const {
   return g.OutPixels() * g.out_channels;
 }
 
-ConvFront::Workspace ConvFront::MakeWorkspace(int64_t max_rows) const {
+ConvFront::Workspace ConvFront::MakeWorkspace(int64_t max_rows, int64_t kept_columns_bytes) const {
   Workspace ws;
-  int64_t column_floats = 0;
+  int64_t column_floats = 0, kept_floats = 0;
   for (const Stage& g : stages_) {
     const bool pooled = g.pool != Pooling::kNone;
     ws.pre.emplace_back(max_rows * g.Pixels(), g.out_channels);
-    ws.post.emplace_back(max_rows * g.Pixels(), g.out_channels);
+    ws.post.emplace_back(pooled ? 0 : max_rows * g.Pixels(), g.out_channels);
     ws.grad.emplace_back(max_rows * g.Pixels(), g.out_channels);
     ws.pooled.emplace_back(pooled ? max_rows * g.OutPixels() : 0, g.out_channels);
     ws.grad_pooled.emplace_back(pooled ? max_rows * g.OutPixels() : 0, g.out_channels);
     ws.argmax.emplace_back(g.pool == Pooling::kMax ? max_rows * g.OutPixels() * g.out_channels : 0);
     column_floats = std::max(column_floats, g.Pixels() * g.KernelRows());
+    kept_floats += max_rows * g.Pixels() * g.KernelRows();
   }
   const int64_t chunk = std::min(max_rows, kChunkSamples);
-  ws.columns.resize(chunk * column_floats, 1);
+  if (kept_floats * int64_t{sizeof(float)} <= kept_columns_bytes) {
+    for (const Stage& g : stages_) ws.kept_columns.emplace_back(max_rows * g.Pixels(), g.KernelRows());
+  } else {
+    ws.columns.resize(chunk * column_floats, 1);
+  }
   ws.column_grad.resize(chunk * column_floats, 1);
   return ws;
 }
@@ -287,16 +331,24 @@ Eigen::Map<const Matrix> ConvFront::Forward(const float* params, const ConstMatr
     const InputStrides st = StridesOf(g, s == 0);
     const float* in = StageInput(s, x, ws);
     Eigen::Map<const Matrix> kernel(params + WeightOffset(s), g.KernelRows(), g.out_channels);
-    for (int64_t i0 = 0; i0 < rows; i0 += kChunkSamples) {
+    if (!ws.kept_columns.empty()) {
+      auto columns = ws.kept_columns[s].topRows(rows * g.Pixels());
+      Unfold(in, rows, g, st, columns.data());
+      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, columns, kernel, 0.0f, ws.pre[s].topRows(rows * g.Pixels()));
+    }
+    for (int64_t i0 = 0; ws.kept_columns.empty() && i0 < rows; i0 += kChunkSamples) {
       const int64_t n = std::min(kChunkSamples, rows - i0);
       Eigen::Map<Matrix> columns(ws.columns.data(), n * g.Pixels(), g.KernelRows());
       Unfold(in + i0 * st.sample, n, g, st, columns.data());
       Gemm(Transpose::kNo, Transpose::kNo, 1.0f, columns, kernel, 0.0f,
            ws.pre[s].middleRows(i0 * g.Pixels(), n * g.Pixels()));
     }
+    if (g.pool != Pooling::kNone) {
+      BiasActivateAndPool(activation_, g, rows, params + BiasOffset(s), ws.pre[s], ws.pooled[s], ws.argmax[s]);
+      continue;
+    }
     AddBiasAndActivate(activation_, params + BiasOffset(s), ws.pre[s].topRows(rows * g.Pixels()),
                        ws.post[s].topRows(rows * g.Pixels()));
-    if (g.pool != Pooling::kNone) Pool(g, rows, ws.post[s], ws.pooled[s], ws.argmax[s]);
   }
   const float* out = StageInput(static_cast<int>(stages_.size()), x, ws);
   return Eigen::Map<const Matrix>(out, rows, Outputs());
@@ -312,20 +364,27 @@ void ConvFront::Backward(float* params, const ConstMatrixRef& x, Workspace& ws, 
   for (int s = static_cast<int>(stages_.size()) - 1; s >= 0; --s) {
     const Stage& g = stages_[s];
     auto dz = ws.grad[s].topRows(rows * g.Pixels());
-    if (g.pool != Pooling::kNone) Unpool(g, rows, ws.grad_pooled[s], ws.argmax[s], ws.grad[s]);
-    MultiplyActivationDerivative(activation_, ws.pre[s].topRows(rows * g.Pixels()), dz);
-    // dK = sum over chunks of columns^T dZ; db = 1^T dZ; for s > 0 also
-    // dL/d(input) = Fold(dZ K^T), taken before K is updated.
+    if (g.pool != Pooling::kNone) {
+      UnpoolThroughActivation(activation_, g, rows, ws.grad_pooled[s], ws.argmax[s], ws.pre[s], ws.grad[s]);
+    } else {
+      MultiplyActivationDerivative(activation_, ws.pre[s].topRows(rows * g.Pixels()), dz);
+    }
+    // dK = columns^T dZ (summed over chunks when they are not kept); db = 1^T dZ; for s > 0
+    // also dL/d(input) = Fold(dZ K^T), taken before K is updated.
     const InputStrides st = StridesOf(g, s == 0);
     const float* in = StageInput(s, x, ws);
     Eigen::Map<const Matrix> kernel(params + WeightOffset(s), g.KernelRows(), g.out_channels);
     Eigen::Map<Matrix> dkernel(grad + WeightOffset(s), g.KernelRows(), g.out_channels);
-    for (int64_t i0 = 0; i0 < rows; i0 += kChunkSamples) {
+    const bool kept = !ws.kept_columns.empty();
+    if (kept) Gemm(Transpose::kYes, Transpose::kNo, 1.0f, ws.kept_columns[s].topRows(rows * g.Pixels()), dz, 0.0f, dkernel);
+    for (int64_t i0 = 0; i0 < rows && (s > 0 || !kept); i0 += kChunkSamples) {
       const int64_t n = std::min(kChunkSamples, rows - i0);
       const auto dz_chunk = dz.middleRows(i0 * g.Pixels(), n * g.Pixels());
-      Eigen::Map<Matrix> columns(ws.columns.data(), n * g.Pixels(), g.KernelRows());
-      Unfold(in + i0 * st.sample, n, g, st, columns.data());
-      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, columns, dz_chunk, i0 == 0 ? 0.0f : 1.0f, dkernel);
+      if (!kept) {
+        Eigen::Map<Matrix> columns(ws.columns.data(), n * g.Pixels(), g.KernelRows());
+        Unfold(in + i0 * st.sample, n, g, st, columns.data());
+        Gemm(Transpose::kYes, Transpose::kNo, 1.0f, columns, dz_chunk, i0 == 0 ? 0.0f : 1.0f, dkernel);
+      }
       if (s == 0) continue;
       Eigen::Map<Matrix> column_grad(ws.column_grad.data(), n * g.Pixels(), g.KernelRows());
       Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz_chunk, kernel, 0.0f, column_grad);

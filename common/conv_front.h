@@ -10,8 +10,11 @@
 // weight row order.
 // Parameters (float32, one block): for each stage, the kernel as a (k k C_s) x C_{s+1} row-major
 // matrix whose row (dy k + dx) C_s + c is input channel c at offset (dy, dx), then the bias.
-// The unfolding works on chunks of kChunkSamples samples, so its scratch memory does not grow with
-// the batch; the kernel gradient sums the chunks in order, so bits depend on nothing but the data.
+// A workspace whose unfolded inputs for max_rows samples fit in kKeptColumnsBytes keeps them from
+// Forward for Backward (one unfolding and one kernel-gradient GEMM per stage: a training
+// minibatch); a larger one unfolds chunks of kChunkSamples samples, twice, so its scratch memory
+// does not grow with the batch (prediction over many rows), and sums the kernel gradient over the
+// chunks in order. Either way the bits depend only on the data and the workspace's max_rows.
 // Thread safety: a ConvFront is immutable and shareable; a Workspace belongs to one thread.
 #pragma once
 
@@ -28,6 +31,7 @@ namespace chorus {
 class ConvFront {
  public:
   static constexpr int64_t kChunkSamples = 16;
+  static constexpr int64_t kKeptColumnsBytes = int64_t{64} << 20;
 
   // The geometry of one stage.
   struct Stage {
@@ -58,15 +62,17 @@ class ConvFront {
   // max_rows rows allocate nothing.
   struct Workspace {
     std::vector<Matrix> pre;      // per stage: pre-activation, (rows H W) x C_out
-    std::vector<Matrix> post;     // per stage: activation, same shape
+    std::vector<Matrix> post;     // per unpooled stage: activation, same shape; else empty
     std::vector<Matrix> pooled;   // per pooled stage: (rows H' W') x C_out; else empty
     std::vector<std::vector<uint8_t>> argmax;  // per max-pooled stage: winner in its 2 x 2 window
     std::vector<Matrix> grad;     // per stage: dL/d(post), then dL/d(pre) in place
     std::vector<Matrix> grad_pooled;  // per pooled stage: dL/d(pooled)
-    Matrix columns;               // unfolded input of one chunk
-    Matrix column_grad;           // its gradient
+    std::vector<Matrix> kept_columns;  // per stage: the whole batch unfolded, or all empty
+    Matrix columns;               // unfolded input of one chunk, when not kept
+    Matrix column_grad;           // the gradient of one chunk's unfolded input
   };
-  Workspace MakeWorkspace(int64_t max_rows) const;
+  // kept_columns_bytes: the budget for keeping the unfolded inputs (tests pass 0 to force chunks).
+  Workspace MakeWorkspace(int64_t max_rows, int64_t kept_columns_bytes = kKeptColumnsBytes) const;
 
   // N(0, gain^2 / (k k C_s)) kernels (gain^2 = 2 for relu/gelu, 1 for tanh; He et al. 2015) and
   // zero biases, drawn in parameter order from rng.

@@ -70,6 +70,7 @@ struct EnsembleEvaluation {
   // ..., 0.95, at scale 1 and at the tuned scale. Empty for classification.
   std::vector<IntervalCoverage> interval_coverage_uncalibrated, interval_coverage;
   std::vector<SizeCurvePoint> size_curve;
+  double size_curve_seconds = 0;  // wall time the size grid took (steady clock)
   std::optional<double> bayes_optimal_test_nll;  // when true class probabilities are known
 };
 

@@ -1,6 +1,7 @@
 #include "common/evaluation.h"
 
 #include <algorithm>
+#include <chrono>
 #include <cmath>
 
 #include "common/ensemble_assembly.h"
@@ -80,8 +81,10 @@ void EvaluateClassification(const PreparedData& data, const std::vector<MemberRe
   ev.uncertainty = ClassificationUncertaintySummary(test, ev.weights, ev.temperature, y_test);
   ev.diversity = ClassificationDiversitySummary(test);
   ClassificationReliability(test, y_test, rep.ece_bins, ev);
+  const auto curve_start = std::chrono::steady_clock::now();
   ev.size_curve = ClassificationSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets,
                                          rep.ece_bins, seed);
+  ev.size_curve_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - curve_start).count();
 }
 
 std::vector<double> OriginalTargets(const Split& split, const PreparedData& data) {
@@ -137,7 +140,9 @@ void EvaluateRegression(const PreparedData& data, const std::vector<MemberResult
   ScoreRegressionMembers(test, test_g.points, y_test, GaussianLikelihoods(val, y_val), ev.members);
   RegressionCalibration(test, y_test, ev);
   ev.diversity = RegressionDiversitySummary(test);
+  const auto curve_start = std::chrono::steady_clock::now();
   ev.size_curve = RegressionSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets, seed);
+  ev.size_curve_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - curve_start).count();
 }
 
 }  // namespace

@@ -25,15 +25,17 @@ void NetworkSize(int64_t features, const std::vector<int>& hidden, int64_t outpu
   *widths += outputs;
 }
 
-// Floats a convolutional front holds for each row of a minibatch (activations, their gradients,
-// pooled copies; the pooling winners' bytes rounded up), and the unfolding buffers it holds
-// whatever the batch.
+// Floats a convolutional front holds for each row of a minibatch (common/conv_front.h Workspace:
+// pre-activations and their gradients, activations or pooled copies and the pooling winners'
+// bytes rounded up, the unfolded input a training minibatch keeps), and the unfolding buffers it
+// holds whatever the batch.
 void FrontSize(const ConvFront& front, int64_t* per_row, int64_t* fixed) {
   *per_row = 0;
   *fixed = 0;
   for (const ConvFront::Stage& g : front.stages()) {
     const bool pooled = g.pool != Pooling::kNone;
-    *per_row += (3 * g.Pixels() + (pooled ? 2 * g.OutPixels() + g.OutPixels() / 4 + 1 : 0)) * g.out_channels;
+    *per_row += (2 * g.Pixels() + (pooled ? 2 * g.OutPixels() + g.OutPixels() / 4 + 1 : g.Pixels())) * g.out_channels +
+                g.Pixels() * g.KernelRows();
     *fixed = std::max(*fixed, 2 * ConvFront::kChunkSamples * g.Pixels() * g.KernelRows());
   }
 }

@@ -3,20 +3,12 @@
 #include <cassert>
 #include <cmath>
 
+#include "common/activation.h"
 #include "common/gemm.h"
 #include "common/rng.h"
 #include "common/sgd.h"
 
 namespace chorus {
-namespace {
-
-constexpr float kInvSqrt2 = 0.70710678118654752f;
-constexpr float kInvSqrt2Pi = 0.39894228040143268f;
-
-// Phi(z) = 0.5 (1 + erf(z / sqrt 2)), the standard normal CDF.
-inline float NormalCdf(float z) { return 0.5f * (1.0f + std::erf(z * kInvSqrt2)); }
-
-}  // namespace
 
 Mlp::Mlp(std::vector<int> widths, Activation activation, ConvFront front)
     : widths_(std::move(widths)), activation_(activation), front_(std::move(front)),
@@ -135,56 +127,26 @@ void Mlp::BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrix
   if (!front_.empty()) front_.Backward(params, x, ws.front, grad, optimizer, lr, velocity);
 }
 
-namespace {
-
-template <typename Act>
-void AddBiasAndApply(const float* bias, Eigen::Ref<Matrix> z, Eigen::Ref<Matrix> h, Act act) {
-  const int64_t cols = z.cols();
-  for (int64_t i = 0; i < z.rows(); ++i) {
-    float* zr = z.row(i).data();
-    float* hr = h.row(i).data();
-    for (int64_t j = 0; j < cols; ++j) {
-      const float v = zr[j] + bias[j];
-      zr[j] = v;
-      hr[j] = act(v);
-    }
-  }
-}
-
-}  // namespace
-
 void AddBiasAndActivate(Activation a, const float* bias, Eigen::Ref<Matrix> z, Eigen::Ref<Matrix> h) {
-  switch (a) {
-    case Activation::kRelu:
-      AddBiasAndApply(bias, z, h, [](float v) { return v > 0.0f ? v : 0.0f; });
-      break;
-    case Activation::kTanh:
-      AddBiasAndApply(bias, z, h, [](float v) { return std::tanh(v); });
-      break;
-    case Activation::kGelu:
-      AddBiasAndApply(bias, z, h, [](float v) { return v * NormalCdf(v); });
-      break;
-  }
+  WithActivation(a, [&](const auto act) {
+    const int64_t cols = z.cols();
+    for (int64_t i = 0; i < z.rows(); ++i) {
+      float* zr = z.row(i).data();
+      float* hr = h.row(i).data();
+      for (int64_t j = 0; j < cols; ++j) {
+        const float v = zr[j] + bias[j];
+        zr[j] = v;
+        hr[j] = act(v);
+      }
+    }
+  });
 }
 
 void MultiplyActivationDerivative(Activation a, const Eigen::Ref<const Matrix>& z,
                                   Eigen::Ref<Matrix> dh) {
-  switch (a) {
-    case Activation::kRelu:  // relu'(z) = [z > 0]
-      dh = dh.binaryExpr(z, [](float g, float v) { return v > 0.0f ? g : 0.0f; });
-      break;
-    case Activation::kTanh:  // tanh'(z) = 1 - tanh(z)^2
-      dh = dh.binaryExpr(z, [](float g, float v) {
-        const float t = std::tanh(v);
-        return g * (1.0f - t * t);
-      });
-      break;
-    case Activation::kGelu:  // gelu'(z) = Phi(z) + z phi(z)
-      dh = dh.binaryExpr(z, [](float g, float v) {
-        return g * (NormalCdf(v) + v * kInvSqrt2Pi * std::exp(-0.5f * v * v));
-      });
-      break;
-  }
+  WithActivation(a, [&](const auto act) {
+    dh = dh.binaryExpr(z, [&act](float g, float v) { return act.Backward(g, v); });
+  });
 }
 
 }  // namespace chorus

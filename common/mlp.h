@@ -84,9 +84,7 @@ class Mlp {
   int64_t parameter_count_ = 0;
 };
 
-// Element-wise activation kernels.
-// relu(z) = max(z, 0); tanh; gelu(z) = z * Phi(z) = 0.5 z (1 + erf(z / sqrt 2)) (Hendrycks &
-// Gimpel 2016, the exact form PyTorch uses by default).
+// Element-wise activation kernels (the functions: common/activation.h).
 // z <- z + 1 bias^T and h <- act(z), in one pass over z (bias: z.cols() floats; h shaped as z).
 void AddBiasAndActivate(Activation a, const float* bias, Eigen::Ref<Matrix> z, Eigen::Ref<Matrix> h);
 // dh <- dh * act'(z), in place.

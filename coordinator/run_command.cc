@@ -1,6 +1,5 @@
 #include "coordinator/run_command.h"
 
-#include <chrono>
 #include <cstdio>
 #include <filesystem>
 #include <thread>
@@ -29,6 +28,7 @@
 #include "coordinator/config_loader.h"
 #include "coordinator/report_files.h"
 #include "coordinator/run_directory.h"
+#include "coordinator/run_phases.h"
 #include "report/report_model.h"
 #include "coordinator/terminal.h"
 
@@ -151,8 +151,10 @@ Config TuneScale(const Inputs& in, TrainedRun& trained, RunDirectory& dir) {
 }
 
 // Assembles, reports and writes the closing files of a run whose members have trained.
+// Each step's wall time goes into `phases`, which report.json keeps.
 int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const WorkersSeen& workers,
-           double seconds) {
+           RunPhases& phases) {
+  const double seconds = phases.Seconds();  // to the end of training
   const std::vector<std::string>& failures = trained.failures;
   for (const std::string& f : failures) LogPrintf(stderr, LogLevel::kError, "failed: %s", f.c_str());
   std::vector<MemberResult>& members = trained.members;
@@ -162,6 +164,9 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
   }
   // The config as assembled: the search's point, and with basin.scale: tune the chosen scale.
   const Config assembled = TuneScale(in, trained, dir);
+  if (assembled.ensemble.basin.tune_scale && assembled.ensemble.basin.method != BasinMethod::kNone) {
+    phases.End("basin scale tuning");
+  }
   // Cross-fitting: assembly sees every training row as validation, out of fold.
   const std::optional<PreparedData> out_of_fold =
       in.data.folds > 0 ? std::optional<PreparedData>(OutOfFoldView(in.data)) : std::nullopt;
@@ -169,23 +174,33 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
   const EnsembleEvaluation ev = EvaluateEnsemble(assembly_data, members, assembled.ensemble, in.config.report,
                                                  in.config.run.seed,
                                                  in.true_probabilities ? &*in.true_probabilities : nullptr);
+  phases.Part("size grid", ev.size_curve_seconds);
+  phases.End("weights, temperature and test scores");
   const RunFacts facts{in.config.run.name, in.data.hash, in.config_hash, in.config.ensemble.members,
                        failures, seconds};
   const BaselineEvaluation baseline = EvaluateBaseline(in.data, trained.fold_of_row,
                                                        assembled.ensemble.tune_temperature, in.config.report.ece_bins);
+  phases.End("linear baseline");
   json report = ReportJson(ev, in.data, facts);
   report["baseline"] = BaselineJson(ev, baseline);
-  if (in.shifted) report["shift"] = ShiftJson(EvaluateShift(assembled, in.data, members, ev, *in.shifted));
+  if (in.shifted) {
+    report["shift"] = ShiftJson(EvaluateShift(assembled, in.data, members, ev, *in.shifted));
+    phases.End("shift test");
+  }
   AddTrainingFacts(assembled, in.data, trained, report);
   AddCosts(dir, members, in.config.report.nll_tolerance, report);
   AddProbitScores(assembled, in.data, members, ev.weights, report);
-  // The manifest first: the report copies it (workers, version) into report.json and the page.
-  Status st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", seconds, workers).dump(2));
-  if (st.ok()) st = WriteReportFiles(dir.path(), report);
+  phases.End("report facts");
+  Status st = WriteRunBundle(dir.File("bundle.chorus"), assembled, in.data, members, ev, in.config_hash);
+  phases.End("bundle");
+  // The phases up to here, and the manifest before the report, which copies it (workers,
+  // version) into report.json and the page; writing the report itself is the only time left out.
+  report["phases"] = phases.Json();
   if (st.ok()) {
-    st = WriteRunBundle(dir.File("bundle.chorus"), assembled, in.data, members, ev, in.config_hash);
+    st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", phases.Seconds(), workers).dump(2));
   }
-  if (!st.ok()) return Fail(dir, in, st, seconds);
+  if (st.ok()) st = WriteReportFiles(dir.path(), report);
+  if (!st.ok()) return Fail(dir, in, st, phases.Seconds());
   dir.LogEvent("run_finished", {{"members", members.size()}});
   std::printf("%s\nrun directory: %s\n", SummaryTable(ev, &baseline).c_str(), dir.path().c_str());
   return 0;
@@ -194,8 +209,7 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
 }  // namespace
 
 int RunCommand(const RunOptions& options) {
-  const auto start = std::chrono::steady_clock::now();
-  auto seconds = [&] { return std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count(); };
+  RunPhases phases;
   StatusOr<Inputs> loaded = LoadInputs(options);
   if (!loaded.ok()) {
     LogPrintf(stderr, LogLevel::kError, "chorus run: %s", loaded.status().ToString().c_str());
@@ -220,11 +234,13 @@ int RunCommand(const RunOptions& options) {
   const auto& [need, have] = memory.value();
   LogLine(stderr, LogLevel::kInfo, "memory: estimated " + need.Breakdown() + "; usable " + ByteText(have.bytes),
           {{"estimated_bytes", need.Total()}, {"usable_bytes", have.bytes}});
+  phases.End("config, data and run directory");
   std::unique_ptr<JobRunner> runner = MakeJobRunner({&in.config, &in.data, in.config_hash}, dir);
   StatusOr<TrainedRun> trained = TrainRun(in.config, in.data, in.config_hash, dir, *runner);
   runner->Close();
-  if (!trained.ok()) return Fail(dir, in, trained.status(), seconds());
-  return Finish(dir, in, trained.value(), runner->Workers(), seconds());
+  phases.End("training jobs");
+  if (!trained.ok()) return Fail(dir, in, trained.status(), phases.Seconds());
+  return Finish(dir, in, trained.value(), runner->Workers(), phases);
 }
 
 }  // namespace chorus

@@ -1,5 +1,6 @@
 #include "report/report_facts.h"
 
+#include <cstdio>
 #include <string>
 #include <utility>
 #include <vector>
@@ -73,6 +74,22 @@ std::vector<std::pair<std::string, std::string>> ManifestRows(const json& r) {
           {"workers seen", Workers(m)}};
 }
 
+// "training jobs 120.3 s (93.1%), size grid 2.1 s (1.6%), ...": report.json's phases, each with
+// its share of the total.
+std::string Phases(const json& phases) {
+  if (!phases.is_array() || phases.empty() || phases.back().value("phase", "") != "total") return "not recorded";
+  const double total = phases.back().value("seconds", 0.0);
+  std::string text;
+  for (const json& p : phases) {
+    if (p.value("phase", "") == "total") continue;
+    const double s = p.value("seconds", 0.0);
+    char share[32];
+    std::snprintf(share, sizeof share, " (%.1f%%)", total > 0 ? 100.0 * s / total : 0.0);
+    text += (text.empty() ? "" : ", ") + EscapeHtml(p.value("phase", "")) + " " + Seconds(json(s)) + share;
+  }
+  return text;
+}
+
 }  // namespace
 
 std::string FactsSection(const json& r) {
@@ -87,6 +104,7 @@ std::string FactsSection(const json& r) {
                       Text(r["members_planned"]) + " planned"},
       {"failed members", FailedMembers(r["failed_members"])},
       {"wall time to evaluation", Seconds(r.value("wall_seconds", json()))},
+      {"wall time by phase", Phases(r.value("phases", json()))},
   };
   for (auto& row : ManifestRows(r)) rows.push_back(std::move(row));
   std::string html = "<section><h2>Run facts</h2><table class=\"facts\"><tbody>";

@@ -25,7 +25,8 @@ Checked at the end of every round (the invariants):
   bundle     bundle.chorus is byte-identical to the undisturbed run's
   report     report.json is identical to the undisturbed run's except the fields that describe
              the circumstances, not the result: wall_seconds, manifest.wall_seconds,
-             manifest.coordinator.mode, manifest.workers and the measured CPU-seconds (compute,
+             manifest.coordinator.mode, manifest.workers, the wall time by phase (phases) and the
+             measured CPU-seconds (compute,
              members[].cpu_seconds, size_curve[].cpu_seconds)
 
 Rounds repeat until M minutes have passed (at least one). Prints a line per fault and per round,
@@ -51,7 +52,7 @@ import time
 
 LEASE_SECONDS = 2.0
 CIRCUMSTANCE_FIELDS = [("wall_seconds",), ("manifest", "wall_seconds"), ("manifest", "coordinator", "mode"),
-                       ("manifest", "workers"), ("compute",)]
+                       ("manifest", "workers"), ("compute",), ("phases",)]
 # Measured CPU-seconds in each entry of a list: what the jobs cost, not what they computed.
 CIRCUMSTANCE_ENTRY_FIELDS = [("members", "cpu_seconds"), ("size_curve", "cpu_seconds")]
 

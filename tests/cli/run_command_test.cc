@@ -95,6 +95,24 @@ TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
             report["bayes_optimal_test_nll"].get<double>() - 0.1);
   const auto manifest = nlohmann::json::parse(testing::ReadTextFile(run + "/manifest.json"));
   EXPECT_EQ(manifest["status"], "complete");
+  // The wall time by phase, in order; the phases add up to the total (up to the report's own
+  // writing, which comes after), which is the manifest's whole-run time.
+  std::vector<std::string> phase_names;
+  double phase_sum = 0;
+  for (const auto& p : report["phases"]) {
+    phase_names.push_back(p["phase"]);
+    EXPECT_GE(p["seconds"].get<double>(), 0.0) << p.dump();
+    if (p["phase"] != "total") phase_sum += p["seconds"].get<double>();
+  }
+  EXPECT_EQ(phase_names, (std::vector<std::string>{"config, data and run directory", "training jobs",
+                                                   "weights, temperature and test scores", "size grid",
+                                                   "linear baseline", "report facts", "bundle", "total"}));
+  const double total = report["phases"].back()["seconds"].get<double>();
+  EXPECT_NEAR(phase_sum, total, 0.05 * total);
+  EXPECT_LE(total, manifest["wall_seconds"].get<double>() + 1e-9);
+  EXPECT_GT(report["phases"][1]["seconds"].get<double>(), 0.0);
+  EXPECT_NE(testing::ReadTextFile(run + "/report.html").find("wall time by phase</th><td>config, data and run directory"),
+            std::string::npos);
   // Every job's cost reaches the coordinator with its result (embedded workers, over gRPC); a
   // member is priced with its fold jobs, and the grid's price grows with the members.
   double all_jobs = 0, member_0 = 0;
