@@ -160,14 +160,17 @@ class Report:
         backends = "/".join(sorted({name for _, name in per_round if name is not None}))
         return median(rates), backends or None, rates
 
-    def chorus_in(self, batch, threads, rnd):
-        found = [f for f in select(self.records, "chorus", batch=batch, threads=threads)
-                 if round_of(f) == rnd]
+    def chorus_lines(self, batch, threads, network="mlp"):
+        return [f for f in select(self.records, "chorus", batch=batch, threads=threads)
+                if f.get("network", "mlp") == network]
+
+    def chorus_in(self, batch, threads, rnd, network="mlp"):
+        found = [f for f in self.chorus_lines(batch, threads, network) if round_of(f) == rnd]
         return num(found[0], "samples_per_s") if found else None
 
     def chorus(self, batch, threads):
         """(median over rounds, the per-round rates, the lines)."""
-        found = select(self.records, "chorus", batch=batch, threads=threads)
+        found = self.chorus_lines(batch, threads)
         rates = [self.chorus_in(batch, threads, r) for r in self.rounds(batch)]
         return median(rates), rates, found
 
@@ -293,6 +296,35 @@ class Report:
                          "PyTorch 2 processes, default malloc", "PyTorch 2 processes, tuned malloc",
                          "chorus / best PyTorch", "load"), two))
 
+    def conv_section(self):
+        """The convolutional member at batch 128: chorus against PyTorch (tuned malloc) per round,
+        and the median of the within-round ratios."""
+        rounds = sorted({round_of(f) for f in self.chorus_lines(128, 1, "conv")} - {None})
+        if not rounds:
+            return "### Convolutional member (batch 128)\n\nNot measured in this run."
+        rows, ratios = [], {1: [], 2: []}
+        for r in rounds:
+            cells = [r]
+            for procs in (1, 2):
+                c = self.chorus_in(128, procs, r, "conv")
+                t = union_rate([f for f in select(self.records, "torch", group=f"b128-tuned-{procs}-conv")
+                                if round_of(f) == r])
+                ratios[procs].append(ratio(c, t))
+                cells += [rate(c), rate(t), "not measured" if ratio(c, t) is None else f"{ratio(c, t):.2f}x"]
+            cells.append(loads([f for f in self.chorus_lines(128, 1, "conv") if round_of(f) == r]))
+            rows.append(tuple(cells))
+        r1 = self.target("conv member, batch 128, 1 thread: chorus / PyTorch", median(ratios[1]), 1.5,
+                         lambda x: f"{x:.2f}x")
+        r2 = self.target("conv member, batch 128, 2 at once: chorus / PyTorch", median(ratios[2]), 1.5,
+                         lambda x: f"{x:.2f}x")
+        return ("### Convolutional member (batch 128, samples/s)\n\n"
+                "The network of configs/fashion_mnist_conv.yaml (1 x 28 x 28, 3 x 3 convolutions to 16 "
+                "and 32 channels with 2 x 2 max pooling, then 1568-128-10); PyTorch with tuned malloc, "
+                "measured right after chorus in each round. Median ratio: one member "
+                f"{r1}, two at once {r2}.\n\n"
+                + table(("round", "chorus, 1", "PyTorch, 1", "ratio", "chorus, 2 at once",
+                         "PyTorch, 2 at once", "ratio", "load"), rows))
+
     def step_section(self):
         pieces = [("products", "the eight products back to back"),
                   ("backward", "+ bias, activation, head, bias gradients"),
@@ -354,8 +386,8 @@ class Report:
 
     def render(self):
         sections = [self.machine_section(), self.gemm_section(), self.training_section(),
-                    self.step_section(), self.predict_section()]
-        sections.append("### Targets (issue 6)\n\n"
+                    self.conv_section(), self.step_section(), self.predict_section()]
+        sections.append("### Targets (issues 6 and 15)\n\n"
                         + table(("target", "measured", "required", "met"), self.targets))
         raw = "\n".join(line for _, _, line in self.records)
         sections.append("<details><summary>Raw output of this run</summary>\n\n```\n" + raw

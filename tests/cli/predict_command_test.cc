@@ -260,8 +260,8 @@ TEST_F(PredictCommandTest, IdxImagesReproduceTheRun) {
 
 // Convolutional members (model.conv) through the whole path on IDX images: members with low-rank
 // basin fits, and members with a last-layer Laplace fit on the stages' own output (no hidden
-// layer). `chorus predict` reproduces each run's report, the result bytes are the same on one and
-// two threads, and inspect names the stages.
+// layer). `chorus predict` reproduces each run's report, the low-rank run's result bytes are the
+// same on one and two threads, and inspect names the stages.
 TEST_F(PredictCommandTest, ConvolutionalMembersReproduceTheRunOnAnyThreadCount) {
   WriteIdxData(dir_ + "/train", 600, 1);
   WriteIdxData(dir_ + "/test", 300, 2);
@@ -286,6 +286,7 @@ TEST_F(PredictCommandTest, ConvolutionalMembersReproduceTheRunOnAnyThreadCount) 
     const PreparedData prepared = RunData(name);
     ExpectScoresEqualReport(Probabilities(ReadTable(dir_ + "/" + name + ".csv"), prepared.class_names),
                             prepared, Report(run));
+    if (name != "convlr") continue;  // one thread-count check is enough (CI time)
     const std::string one_thread = dir_ + "/runs-" + name + "-1";
     ASSERT_EQ(Chorus("run " + dir_ + "/" + name + ".yaml --threads 1 --out " + one_thread).exit_code, 0);
     EXPECT_TRUE(testing::JobResults(run) == testing::JobResults(testing::RunDirUnder(one_thread)))
