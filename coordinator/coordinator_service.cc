@@ -310,7 +310,7 @@ grpc::Status CoordinatorService::Store(int job, const std::string& worker,
     dir_->LogEvent("duplicate_result", {{"job", JobName(spec)}, {"worker", worker}, {"identical", same}});
     return grpc::Status::OK;
   };
-  if (table_->Snapshot()[job].state == JobState::kFinished) return duplicate();
+  if (table_->IsFinished(job)) return duplicate();
   // The file is complete before the table says finished; a racing upload of the same job writes
   // the same bytes (results are deterministic) and is then reported as a duplicate.
   const Status st = WriteFileAtomic(path, bytes);

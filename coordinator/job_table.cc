@@ -136,6 +136,11 @@ int JobTable::Count(JobState s) const {
   return n;
 }
 
+bool JobTable::IsFinished(int job) const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return jobs_[job].state == JobState::kFinished;
+}
+
 std::vector<JobSnapshot> JobTable::Snapshot() const {
   std::lock_guard<std::mutex> lock(mu_);
   std::vector<JobSnapshot> out;

@@ -15,7 +15,10 @@ TEST(JobTableTest, LeasesLowestQueuedJobAndSettlesWhenAllFinish) {
   EXPECT_EQ(a->job, 0);
   EXPECT_EQ(b->job, 1);
   EXPECT_FALSE(t.Lease("w3", kT0).has_value());
+  EXPECT_FALSE(t.IsFinished(0));
   EXPECT_TRUE(t.Finish(0));
+  EXPECT_TRUE(t.IsFinished(0));
+  EXPECT_FALSE(t.IsFinished(1));
   EXPECT_FALSE(t.AllSettled());
   EXPECT_TRUE(t.Finish(1));
   EXPECT_TRUE(t.AllSettled());
