@@ -22,18 +22,9 @@ import numpy as np
 import torch
 import torch.nn.functional as F
 
-from matrix_text import read_matrix
+from matrix_text import read_matrix, write_matrix
 
 ACTIVATIONS = {"relu": F.relu, "tanh": torch.tanh, "gelu": F.gelu}
-
-
-def write_matrix(path, m):
-    """Writes m in the matrix text format of tests/testing/reference.h (shortest exact repr)."""
-    m = np.atleast_2d(np.asarray(m, dtype=np.float64))
-    with open(path, "w") as f:
-        f.write(f"{m.shape[0]} {m.shape[1]}\n")
-        for row in m:
-            f.write(" ".join(repr(float(v)) for v in row) + "\n")
 
 
 def read_spec(directory):
@@ -126,7 +117,7 @@ def run(directory, dtype, name):
     loss.backward()
     out = lambda suffix: os.path.join(directory, f"{name}_{suffix}.txt")
     write_matrix(out("outputs"), outputs.detach().numpy())
-    write_matrix(out("loss"), [[loss.item()]])
+    write_matrix(out("loss"), np.array([[loss.item()]]))
     write_matrix(out("grad"), flat_gradient()[None, :])
 
 
