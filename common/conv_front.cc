@@ -266,12 +266,6 @@ ConvFront::ConvFront(ImageShape input, const std::vector<ConvStage>& stages, Act
   }
 }
 
-std::vector<ConvStage> ConvFront::Config() const {
-  std::vector<ConvStage> out;
-  for (const Stage& g : stages_) out.push_back({g.out_channels, g.kernel, g.pool});
-  return out;
-}
-
 int64_t ConvFront::Outputs() const {
   if (stages_.empty()) return Inputs();
   const Stage& g = stages_.back();

@@ -51,7 +51,6 @@ class ConvFront {
   bool empty() const { return stages_.empty(); }
   const ImageShape& input() const { return input_; }
   const std::vector<Stage>& stages() const { return stages_; }
-  std::vector<ConvStage> Config() const;
   int64_t Inputs() const { return input_.size(); }
   int64_t Outputs() const;  // features of the last stage's output row
   int64_t ParameterCount() const { return parameter_count_; }
