@@ -5,13 +5,13 @@
 #include <limits>
 
 #include "common/heads.h"
+#include "common/numeric_constants.h"
 
 namespace chorus {
 namespace {
 
 // Probabilities are floored here inside the logarithm of the KL's second argument only, so a
 // class one component rules out costs a large finite divergence instead of infinity.
-constexpr double kProbabilityFloor = 1e-300;
 
 size_t Kept(size_t n) { return std::min<size_t>(n, kMaxDiversityComponents); }
 

@@ -8,7 +8,6 @@
 #include <cerrno>
 #include <chrono>
 #include <cstdio>
-#include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <memory>
@@ -21,8 +20,6 @@
 namespace chorus {
 namespace {
 
-std::string Errno() { return std::strerror(errno); }
-
 bool NoSpace(int err) { return err == ENOSPC || err == EDQUOT; }
 
 // Writes all of `contents`; on failure sets *err to the errno.
@@ -33,7 +30,7 @@ Status WriteAll(int fd, const std::string& contents, const std::string& path, in
     if (n < 0 && errno == EINTR) continue;
     if (n < 0) {
       *err = errno;
-      return Status::Io(path + ": write failed: " + Errno());
+      return Status::Io(path + ": write failed: " + ErrnoText());
     }
     done += static_cast<size_t>(n);
   }
@@ -103,10 +100,10 @@ Status AppendLine(const std::string& path, const std::string& line, double disk_
   DiskFullWait wait(path, disk_full_patience);
   while (true) {
     const int fd = ::open(path.c_str(), O_WRONLY | O_CREAT | O_APPEND | O_CLOEXEC | O_NOFOLLOW, 0644);
-    if (fd < 0) return Status::Io(path + ": cannot open for append: " + Errno());
+    if (fd < 0) return Status::Io(path + ": cannot open for append: " + ErrnoText());
     struct stat before;
     if (::fstat(fd, &before) != 0) {
-      const Status st = Status::Io(path + ": cannot stat: " + Errno());
+      const Status st = Status::Io(path + ": cannot stat: " + ErrnoText());
       ::close(fd);
       return st;
     }

@@ -2,6 +2,8 @@
 
 #include <cmath>
 
+#include "common/numeric_constants.h"
+
 namespace chorus {
 
 double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, MatrixRef grad,
@@ -23,12 +25,10 @@ double SoftmaxCrossEntropy(const ConstMatrixRef& logits, const int32_t* labels, 
 
 namespace {
 
-constexpr double kLog2Pi = 1.8378770664093453;
-
 // 0.5 [s + r^2 e^{-s} + ln 2pi] for one row.
 double RowGaussianNll(float mu, float s, float y) {
   const double r = static_cast<double>(y) - mu;
-  return 0.5 * (static_cast<double>(s) + r * r * std::exp(-static_cast<double>(s)) + kLog2Pi);
+  return 0.5 * (static_cast<double>(s) + r * r * std::exp(-static_cast<double>(s)) + kLogTwoPi);
 }
 
 }  // namespace
@@ -43,7 +43,7 @@ double GaussianNll(const ConstMatrixRef& outputs, const float* targets, MatrixRe
     const float r = targets[i] - mu;
     const float precision = std::exp(-s);
     const float w = beta == 0.0f ? 1.0f : std::exp(beta * s);
-    loss += w * 0.5 * (static_cast<double>(s) + static_cast<double>(r) * r * precision + kLog2Pi);
+    loss += w * 0.5 * (static_cast<double>(s) + static_cast<double>(r) * r * precision + kLogTwoPi);
     grad(i, 0) = -r * precision * (w * inv_b);
     grad(i, 1) = 0.5f * (1.0f - r * r * precision) * (w * inv_b);
   }

@@ -8,14 +8,13 @@
 #include <string>
 #include <vector>
 
+#include "common/numeric_constants.h"
 #include "common/rng.h"
 
 namespace chorus {
 namespace {
 
 constexpr int64_t kVarianceBlockRows = 64;  // rows per projection onto the eigenbasis
-constexpr double kPi = 3.14159265358979323846;
-constexpr double kLog2Pi = 1.8378770664093453;
 
 using ConstOuterMapD = Eigen::Map<const MatrixD, 0, Eigen::OuterStride<>>;
 
@@ -101,7 +100,7 @@ double ProbitNll(const MatrixD& mean, const MatrixD& variance, const std::vector
   double sum = 0.0;
   for (Eigen::Index i = 0; i < mean.rows(); ++i) {
     const Eigen::ArrayXd z =
-        mean.row(i).array().transpose() / (1.0 + kPi / 8.0 * variance.row(i).array().transpose()).sqrt();
+        mean.row(i).array().transpose() / (1.0 + M_PI / 8.0 * variance.row(i).array().transpose()).sqrt();
     const double m = z.maxCoeff();
     sum += std::log((z - m).exp().sum()) + m - z(labels[i]);
   }
@@ -115,7 +114,7 @@ double GaussianPredictiveNll(const MatrixD& mean, const MatrixD& variance,
   for (Eigen::Index i = 0; i < mean.rows(); ++i) {
     const double var = std::exp(mean(i, 1)) + variance(i, 0);
     const double r = targets[i] - mean(i, 0);
-    sum += 0.5 * (kLog2Pi + std::log(var) + r * r / var);
+    sum += 0.5 * (kLogTwoPi + std::log(var) + r * r / var);
   }
   return sum / static_cast<double>(mean.rows());
 }
@@ -238,7 +237,7 @@ StatusOr<LinearizedOutputs> PredictLinearized(const LastLayerLaplace& la,
 MatrixD ProbitProbabilities(const MatrixD& mean, const MatrixD& variance) {
   assert(mean.rows() == variance.rows() && mean.cols() == variance.cols());
   // z_k = mean_k / sqrt(1 + pi/8 v_k), then a softmax per row
-  MatrixD p = mean.array() / (1.0 + kPi / 8.0 * variance.array()).sqrt();
+  MatrixD p = mean.array() / (1.0 + M_PI / 8.0 * variance.array()).sqrt();
   for (Eigen::Index i = 0; i < p.rows(); ++i) {
     p.row(i) = (p.row(i).array() - p.row(i).maxCoeff()).exp().matrix();
     p.row(i) /= p.row(i).sum();

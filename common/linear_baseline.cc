@@ -10,7 +10,6 @@
 namespace chorus {
 namespace {
 
-const double kPi = std::acos(-1.0);
 
 Status CheckFinite(const ConstMatrixRef& x) {
   if (!x.allFinite()) return Status::InvalidInput("linear baseline: input is not finite");
@@ -54,7 +53,7 @@ double LogEvidence(const RegressionData& d, double alpha, double beta, const Eig
       0.5 * beta * (d.t - d.phi * m).squaredNorm() + 0.5 * alpha * m.squaredNorm();
   const double log_det = (alpha + beta * d.s.array()).log().sum();
   return 0.5 * features * std::log(alpha) + 0.5 * n * std::log(beta) - energy - 0.5 * log_det -
-         0.5 * n * std::log(2 * kPi);
+         0.5 * n * std::log(2 * M_PI);
 }
 
 // Centres x and y with their means (recorded in *out) and decomposes Phi^T Phi.
@@ -445,7 +444,7 @@ MatrixD PredictLaplaceLogisticRegression(const LaplaceLogisticRegression& m,
   const Eigen::MatrixXd mu = design * m.weights;
   // kappa(s^2) = (1 + pi s^2 / 8)^(-1/2) (eq. 4.154).
   const Eigen::ArrayXXd variance = LogitVariance(design, m.covariance, m.weights.cols());
-  const Eigen::ArrayXXd kappa = (1 + kPi / 8 * variance).sqrt().inverse();
+  const Eigen::ArrayXXd kappa = (1 + M_PI / 8 * variance).sqrt().inverse();
   MatrixD probs(x.rows(), m.classes);
   if (m.weights.cols() == 1) {
     // p(class 1) = sigma(kappa(s^2) mu) (eq. 4.155), p(class 0) = sigma(-kappa(s^2) mu).

@@ -5,23 +5,13 @@
 #include <cmath>
 #include <limits>
 
+#include "common/numeric_constants.h"
+
 namespace chorus {
 namespace {
 
-constexpr double kProbabilityFloor = 1e-300;
-constexpr double kLogSqrtTwoPi = 0.91893853320467274178;  // ln sqrt(2 pi)
-constexpr double kInvSqrtTwo = 0.70710678118654752440;    // 1 / sqrt(2)
 constexpr int kMaxBracketDoublings = 64;
 constexpr double kQuantileTolerance = 1e-10;  // of the bracket's width
-
-// Arg-max of row i; ties go to the lowest index.
-int64_t ArgMax(const MatrixD& probs, int64_t i) {
-  int64_t best = 0;
-  for (int64_t k = 1; k < probs.cols(); ++k) {
-    if (probs(i, k) > probs(i, best)) best = k;
-  }
-  return best;
-}
 
 // Bin of confidence c among B bins ((b)/B, (b+1)/B]: b = ceil(c B) - 1, with c = 0 in bin 0.
 int ConfidenceBin(double c, int bins) {
@@ -50,16 +40,6 @@ double MixtureNegLogDensity(const GaussianMixture& mixture, int64_t i, double y)
   return -(max_term + std::log(sum));
 }
 
-// F(x) = sum_m w_m Phi((x - mu_m) / sigma_m), Phi(z) = erfc(-z / sqrt 2) / 2.
-double MixtureCdf(const GaussianMixture& mixture, int64_t i, double x) {
-  double cdf = 0;
-  for (size_t m = 0; m < mixture.weights.size(); ++m) {
-    const double z = (x - mixture.mean(i, m)) / mixture.stddev(i, m);
-    cdf += mixture.weights[m] * 0.5 * std::erfc(-z * kInvSqrtTwo);
-  }
-  return cdf;
-}
-
 // Mixture mean: sum_m w_m mu_m.
 double MixtureMean(const GaussianMixture& mixture, int64_t i) {
   double mean = 0;
@@ -70,6 +50,30 @@ double MixtureMean(const GaussianMixture& mixture, int64_t i) {
 
 }  // namespace
 
+size_t CoveredCount(double c, size_t n) {
+  assert(c > 0 && c <= 1 && "coverage must lie in (0, 1]");
+  const double wanted = std::ceil(c * static_cast<double>(n) - 1e-9);
+  return static_cast<size_t>(std::clamp(wanted, 1.0, static_cast<double>(n)));
+}
+
+int64_t TopClass(const MatrixD& probs, int64_t i) {
+  int64_t best = 0;
+  for (int64_t k = 1; k < probs.cols(); ++k) {
+    if (probs(i, k) > probs(i, best)) best = k;
+  }
+  return best;
+}
+
+// Phi(z) = erfc(-z / sqrt 2) / 2.
+double MixtureCdf(const GaussianMixture& mixture, int64_t i, double x) {
+  double cdf = 0;
+  for (size_t m = 0; m < mixture.weights.size(); ++m) {
+    const double z = (x - mixture.mean(i, m)) / mixture.stddev(i, m);
+    cdf += mixture.weights[m] * 0.5 * std::erfc(-z * M_SQRT1_2);
+  }
+  return cdf;
+}
+
 ClassificationMetrics ScoreClassification(const MatrixD& probs, const std::vector<int32_t>& labels,
                                           int ece_bins) {
   assert(static_cast<size_t>(probs.rows()) == labels.size() && "one label per row");
@@ -77,7 +81,7 @@ ClassificationMetrics ScoreClassification(const MatrixD& probs, const std::vecto
   const int64_t n = probs.rows();
   for (int64_t i = 0; i < n; ++i) {
     const int32_t y = labels[i];
-    if (ArgMax(probs, i) == y) out.accuracy += 1;
+    if (TopClass(probs, i) == y) out.accuracy += 1;
     out.nll -= std::log(std::max(probs(i, y), kProbabilityFloor));
     for (int64_t k = 0; k < probs.cols(); ++k) {
       const double d = probs(i, k) - (k == y ? 1.0 : 0.0);
@@ -98,7 +102,7 @@ double ExpectedCalibrationError(const MatrixD& probs, const std::vector<int32_t>
   assert(bins >= 1 && static_cast<size_t>(probs.rows()) == labels.size());
   std::vector<double> correct(bins, 0), confidence(bins, 0);
   for (int64_t i = 0; i < probs.rows(); ++i) {
-    const int64_t top = ArgMax(probs, i);
+    const int64_t top = TopClass(probs, i);
     const int b = ConfidenceBin(probs(i, top), bins);
     correct[b] += top == labels[i] ? 1 : 0;
     confidence[b] += probs(i, top);

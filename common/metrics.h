@@ -2,6 +2,7 @@
 // mean over inputs in nats. Thread safety: free functions, reentrant.
 #pragma once
 
+#include <cstddef>
 #include <cstdint>
 #include <vector>
 
@@ -43,6 +44,16 @@ RegressionMetrics ScoreRegression(const GaussianMixture& mixture, const std::vec
 
 // The `nll` of ScoreRegression alone (no quantile search): cheap enough to call while tuning.
 double MixtureNll(const GaussianMixture& mixture, const std::vector<double>& targets);
+
+// F(x) of input i's mixture: sum_m w_m Phi((x - mu_m) / sigma_m), Phi the standard normal CDF.
+double MixtureCdf(const GaussianMixture& mixture, int64_t i, double x);
+
+// How many of n inputs a coverage c in (0, 1] asks for: ceil(c n) clamped to [1, n], n > 0. The
+// ceiling is taken 1e-9 below c n, so that c n = 7.000000000000001 (0.07 * 100) asks for 7.
+size_t CoveredCount(double c, size_t n);
+
+// The class of row i with the highest probability; ties go to the lowest index.
+int64_t TopClass(const MatrixD& probs, int64_t i);
 
 // The q-quantile (0 < q < 1) of input i's mixture, by bisection on the mixture CDF to 1e-10 of
 // the interval width.

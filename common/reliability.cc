@@ -9,44 +9,13 @@
 namespace chorus {
 namespace {
 
-constexpr double kInvSqrtTwo = 0.70710678118654752440;  // 1 / sqrt(2)
-// ceil(c n) is taken after subtracting this, so that c n = 7.000000000000001 asks for 7 inputs.
-constexpr double kCoverageSlack = 1e-9;
 constexpr double kUpperQuantile = 0.99;
-
-// Arg-max of row i; ties go to the lowest index (as in common/metrics.cc).
-int64_t ArgMax(const MatrixD& probs, int64_t i) {
-  int64_t best = 0;
-  for (int64_t k = 1; k < probs.cols(); ++k) {
-    if (probs(i, k) > probs(i, best)) best = k;
-  }
-  return best;
-}
-
-// F(x) = sum_m w_m Phi((x - mu_m) / sigma_m), Phi(z) = erfc(-z / sqrt 2) / 2.
-double MixtureCdf(const GaussianMixture& mixture, int64_t i, double x) {
-  double cdf = 0;
-  for (size_t m = 0; m < mixture.weights.size(); ++m) {
-    const double z = (x - mixture.mean(i, m)) / mixture.stddev(i, m);
-    cdf += mixture.weights[m] * 0.5 * std::erfc(-z * kInvSqrtTwo);
-  }
-  return cdf;
-}
-
-// k = ceil(c n) clamped to [1, n], for n > 0.
-size_t CoveredCount(double c, size_t n) {
-  assert(c > 0 && c <= 1 && "coverage must lie in (0, 1]");
-  const double wanted = std::ceil(c * static_cast<double>(n) - kCoverageSlack);
-  return static_cast<size_t>(std::clamp(wanted, 1.0, static_cast<double>(n)));
-}
 
 // The histogram's upper edge: see HistogramByOutcome.
 double HistogramUpper(std::vector<double> scores) {
   if (scores.empty()) return 1.0;
   std::sort(scores.begin(), scores.end());
-  const double rank =
-      std::ceil(kUpperQuantile * static_cast<double>(scores.size()) - kCoverageSlack);
-  const double upper = scores[static_cast<size_t>(std::max(rank, 1.0)) - 1];
+  const double upper = scores[CoveredCount(kUpperQuantile, scores.size()) - 1];
   if (upper > 0) return upper;
   return scores.back() > 0 ? scores.back() : 1.0;
 }
@@ -62,7 +31,7 @@ std::vector<ReliabilityBin> ReliabilityBins(const MatrixD& probs,
     out[b].upper = static_cast<double>(b + 1) / bins;
   }
   for (int64_t i = 0; i < probs.rows(); ++i) {
-    const int64_t top = ArgMax(probs, i);
+    const int64_t top = TopClass(probs, i);
     const double c = probs(i, top);
     ReliabilityBin& bin = out[std::clamp(static_cast<int>(std::ceil(c * bins)) - 1, 0, bins - 1)];
     ++bin.count;

@@ -1,5 +1,8 @@
 #include "common/status.h"
 
+#include <cerrno>
+#include <cstring>
+
 namespace chorus {
 
 std::string Status::ToString() const {
@@ -24,5 +27,7 @@ int Status::ExitCode() const {
     default: return 1;
   }
 }
+
+std::string ErrnoText() { return std::strerror(errno); }
 
 }  // namespace chorus

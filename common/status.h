@@ -68,6 +68,10 @@ class StatusOr {
   std::optional<T> value_;
 };
 
+// The C library's text for the current errno (strerror), for an I/O error's message. Call it
+// right after the failing call, before anything else can change errno.
+std::string ErrnoText();
+
 }  // namespace chorus
 
 // Returns early from the calling function with the status of `expr` if it is not ok.

@@ -10,10 +10,6 @@
 namespace chorus {
 namespace {
 
-// ceil(c n) is taken after subtracting this, so that c n = 7.000000000000001 (0.07 * 100) asks
-// for 7 inputs, not 8.
-constexpr double kCoverageSlack = 1e-9;
-
 // H[p] = -sum_k p_k ln p_k, with 0 ln 0 = 0.
 double Entropy(const Eigen::Ref<const Eigen::RowVectorXd>& p) {
   double h = 0;
@@ -99,8 +95,7 @@ std::vector<double> SelectiveAccuracy(const std::vector<double>& confidence,
       continue;
     }
     // accuracy(c) = (1 / k) sum_{j < k} correct[order_j], k = ceil(c n).
-    const double wanted = std::ceil(c * static_cast<double>(n) - kCoverageSlack);
-    const size_t k = static_cast<size_t>(std::clamp(wanted, 1.0, static_cast<double>(n)));
+    const size_t k = CoveredCount(c, n);
     accuracy.push_back(static_cast<double>(correct_in_top[k]) / static_cast<double>(k));
   }
   return accuracy;

@@ -25,8 +25,6 @@ namespace fs = std::filesystem;
 constexpr char kStagingPrefix[] = ".staging-";
 constexpr char kCurrentTempPrefix[] = "current.tmp-";
 
-std::string Errno() { return std::strerror(errno); }
-
 bool StartsWith(const std::string& s, const std::string& prefix) {
   return s.compare(0, prefix.size(), prefix) == 0;
 }
@@ -39,9 +37,9 @@ bool Exists(const std::string& path) {
 // Makes a rename or creation inside `dir` durable.
 Status SyncDirectory(const std::string& dir) {
   const int fd = ::open(dir.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
-  if (fd < 0) return Status::Io(dir + ": cannot open: " + Errno());
+  if (fd < 0) return Status::Io(dir + ": cannot open: " + ErrnoText());
   const bool ok = ::fsync(fd) == 0;
-  const std::string error = ok ? "" : Errno();
+  const std::string error = ok ? "" : ErrnoText();
   ::close(fd);
   return ok ? Status::Ok() : Status::Io(dir + ": fsync failed: " + error);
 }
@@ -78,7 +76,7 @@ Status RemoveLeftovers(const std::string& dir) {
 
 StatusOr<int> LockFile(const std::string& path, const std::function<void()>& on_wait) {
   const int fd = ::open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
-  if (fd < 0) return Status::Io(path + ": cannot open: " + Errno());
+  if (fd < 0) return Status::Io(path + ": cannot open: " + ErrnoText());
   if (::flock(fd, LOCK_EX | LOCK_NB) == 0) return fd;
   int rc = -1;
   if (errno == EWOULDBLOCK) {
@@ -87,7 +85,7 @@ StatusOr<int> LockFile(const std::string& path, const std::function<void()>& on_
     }
   }
   if (rc == 0) return fd;
-  const std::string error = Errno();
+  const std::string error = ErrnoText();
   ::close(fd);
   return Status::Io(path + ": cannot lock: " + error);
 }
@@ -115,7 +113,7 @@ StatusOr<std::optional<std::string>> Registry::Current() const {
   struct stat st;
   if (::lstat(link.c_str(), &st) != 0) {
     if (errno == ENOENT) return std::optional<std::string>();
-    return Status::Io(link + ": " + Errno());
+    return Status::Io(link + ": " + ErrnoText());
   }
   std::error_code ec;
   const std::string target = S_ISLNK(st.st_mode) ? fs::read_symlink(link, ec).string() : "";
@@ -168,7 +166,7 @@ Status Registry::AddVersion(const std::string& id, const std::string& bundle_byt
   }
   if (st.ok()) st = SyncDirectory(staging);
   if (st.ok() && std::rename(staging.c_str(), VersionDir(id).c_str()) != 0) {
-    st = Status::Io(VersionDir(id) + ": rename failed: " + Errno());
+    st = Status::Io(VersionDir(id) + ": rename failed: " + ErrnoText());
   }
   if (!st.ok()) {
     Remove(staging);  // best effort; the next Open removes it otherwise
@@ -181,11 +179,11 @@ Status Registry::SwitchCurrent(const std::string& id) {
   const std::string temp = dir_ + "/" + kCurrentTempPrefix + std::to_string(::getpid());
   ::unlink(temp.c_str());
   if (::symlink(("versions/" + id).c_str(), temp.c_str()) != 0) {
-    return Status::Io(temp + ": cannot create symlink: " + Errno());
+    return Status::Io(temp + ": cannot create symlink: " + ErrnoText());
   }
   CrashPointForTest("before_switch_rename");
   if (std::rename(temp.c_str(), (dir_ + "/current").c_str()) != 0) {
-    const std::string error = Errno();
+    const std::string error = ErrnoText();
     ::unlink(temp.c_str());
     return Status::Io(dir_ + "/current: rename failed: " + error);
   }

@@ -5,6 +5,7 @@
 #include <vector>
 
 #include "report/html_text.h"
+#include "report/report_model.h"
 #include "report/svg_chart.h"
 
 namespace chorus {
@@ -36,7 +37,6 @@ std::string Figure(const std::string& svg, const std::string& caption) {
 
 std::string Note(const std::string& text) { return "<p class=\"note\">" + text + "</p>"; }
 
-bool IsClassification(const json& report) { return report["task"] == "classification"; }
 
 // One series of a size-curve chart: the points with `fixed_key` == fixed_value, against `x_key`;
 // with `band`, shaded from min to max over the member subsets.
@@ -241,10 +241,10 @@ std::string IntervalCoverageFigure(const json& report) {
 }  // namespace
 
 std::string CalibrationFigures(const json& report) {
-  if (IsClassification(report) && report.contains("reliability")) {
+  if (IsClassificationReport(report) && report.contains("reliability")) {
     return "<div class=\"charts\">" + ReliabilityFigures(report) + "</div>";
   }
-  if (!IsClassification(report) && report.contains("interval_coverage")) {
+  if (!IsClassificationReport(report) && report.contains("interval_coverage")) {
     return "<div class=\"charts\">" + IntervalCoverageFigure(report) + "</div>";
   }
   return Note(
@@ -319,7 +319,7 @@ std::string SelectiveFigure(const json& points, bool classification) {
 
 std::string UncertaintyFigures(const json& report) {
   const json& u = report["uncertainty"];
-  const bool classification = IsClassification(report);
+  const bool classification = IsClassificationReport(report);
   const char* selective = classification ? "selective_accuracy" : "selective_rmse";
   if (!u.contains("epistemic_histogram") || !u.contains(selective)) {
     return Note(

@@ -48,10 +48,8 @@ constexpr const char* kStyle =
     ".verdict.warn{border-left-color:#a64d00;background:#fff7ef;font-weight:600}"
     "h3{font-size:16px;margin:14px 0 6px}";
 
-bool IsClassification(const json& r) { return r["task"] == "classification"; }
-
 std::vector<std::pair<const char*, const char*>> MetricColumns(const json& r) {
-  if (IsClassification(r)) {
+  if (IsClassificationReport(r)) {
     return {{"accuracy", "accuracy"}, {"nll", "NLL"}, {"brier", "Brier"}, {"ece", "ECE"}};
   }
   return {{"rmse", "RMSE"}, {"nll", "NLL"}, {"coverage_90", "90% coverage"}};
@@ -63,10 +61,10 @@ std::string Num(const json& v, int decimals = 4) {
 
 // The calibration setting at 1 and as tuned: the temperature T (classification) or the scale on
 // every standard deviation (regression).
-std::string AtOne(const json& r) { return IsClassification(r) ? "T = 1" : "scale 1"; }
+std::string AtOne(const json& r) { return IsClassificationReport(r) ? "T = 1" : "scale 1"; }
 
 std::string Tuned(const json& r) {
-  return (IsClassification(r) ? "tuned T = " : "tuned scale = ") + Num(r["temperature"], 3);
+  return (IsClassificationReport(r) ? "tuned T = " : "tuned scale = ") + Num(r["temperature"], 3);
 }
 
 std::string Head(const json& r) {
@@ -108,7 +106,7 @@ std::string KeyFigures(const json& r) {
                     Num(r["ensemble"]["test_uncalibrated"][key]));
   }
   const int finished = static_cast<int>(r["members"].size());
-  html += Kpi(IsClassification(r) ? "temperature" : "standard-deviation scale",
+  html += Kpi(IsClassificationReport(r) ? "temperature" : "standard-deviation scale",
               Num(r["temperature"], 3), "tuned on validation only");
   html += Kpi("members finished", std::to_string(finished) + " of " + Num(r["members_planned"], 0),
               std::to_string(r["failed_members"].size()) + " failed");
@@ -147,7 +145,7 @@ std::string TestSection(const json& r) {
   rows.push_back({"ensemble, " + Tuned(r), &ens["test"]});
   const size_t ensemble_row = rows.size() - 1;
   if (r.contains("baseline") && r["baseline"].contains("test")) {
-    rows.push_back({"linear baseline, " + std::string(IsClassification(r) ? "T = " : "scale ") +
+    rows.push_back({"linear baseline, " + std::string(IsClassificationReport(r) ? "T = " : "scale ") +
                         FormatFixed(r["baseline"]["temperature"], 3), &r["baseline"]["test"]});
   }
   std::string html = "<section><h2>Test set</h2>" + MetricsTable(r, rows, ensemble_row) +
@@ -160,7 +158,7 @@ std::string TestSection(const json& r) {
             Num(r["bayes_optimal_test_nll"]) + "</p>";
   }
   return html + "<p class=\"note\">NLL in nats per input; rates are fractions. The " +
-         std::string(IsClassification(r) ? "temperature" : "scale") +
+         std::string(IsClassificationReport(r) ? "temperature" : "scale") +
          " was tuned on validation data only.</p></section>";
 }
 
@@ -224,7 +222,7 @@ std::string UncertaintyTable(const json& r) {
 std::string DiversityTable(const json& r) {
   if (!r.contains("diversity")) return "";
   const json& d = r["diversity"];
-  const bool classification = IsClassification(r);
+  const bool classification = IsClassificationReport(r);
   std::string html = "<table><thead><tr><th>test predictions</th><th>compared</th>";
   if (classification) html += "<th>top-1 disagreement</th>";
   html += "<th>mean KL (nats)</th></tr></thead><tbody>";
@@ -246,7 +244,7 @@ std::string DiversityTable(const json& r) {
 std::string UncertaintySection(const json& r) {
   return "<section><h2>Uncertainty</h2><p>" +
          std::string(
-             IsClassification(r)
+             IsClassificationReport(r)
                  ? "Total predictive entropy splits into the expected entropy of the samples "
                    "(aleatoric: the data leaves it open) and the mutual information (epistemic: "
                    "the "
@@ -260,7 +258,7 @@ std::string UncertaintySection(const json& r) {
 std::string ShiftSection(const json& r) {
   if (!r.contains("shift")) return "";
   const json& s = r["shift"];
-  const bool classification = IsClassification(r);
+  const bool classification = IsClassificationReport(r);
   const std::vector<std::pair<const char*, const char*>> scores =
       classification ? std::vector<std::pair<const char*, const char*>>{{"entropy", "entropy"},
                                                                          {"mutual_information", "mutual information"},
@@ -293,7 +291,7 @@ std::string ShiftSection(const json& r) {
 
 std::string CalibrationSection(const json& r) {
   return "<section><h2>Calibration</h2><p>" +
-         std::string(IsClassification(r)
+         std::string(IsClassificationReport(r)
                          ? "Whether the ensemble is right as often as it says, before (T = 1) and "
                            "after the "
                            "temperature tuned on validation data."

@@ -60,6 +60,11 @@ std::string BaselineVerdict(const EnsembleEvaluation& ev, const BaselineEvaluati
 // Returns InvalidInput naming the first missing or mistyped field, prefixed with `source`.
 Status ValidateReport(const nlohmann::json& report, const std::string& source);
 
+// Whether a report.json is of a classification run (else regression).
+inline bool IsClassificationReport(const nlohmann::json& report) {
+  return report["task"] == "classification";
+}
+
 // Reads and validates RUN_DIR/report.json. A missing, unreadable or invalid file is InvalidInput
 // (exit code 2) naming the path: only complete runs have a report.
 StatusOr<nlohmann::json> ReadRunReport(const std::string& run_dir);

@@ -21,7 +21,7 @@ constexpr double kLeft = 62, kRight = 16, kTop = 12, kBottom = 46;  // plot marg
 constexpr double kLegendRow = 18, kCharWidth = 6.6;  // legend row height, average glyph width
 constexpr int kMaxTicks = 6;
 constexpr size_t kMaxXLabels = 10;
-constexpr double kEpsilon = 1e-9;
+constexpr double kTickSlack = 1e-9;  // of the domain width: ticks this near an end stay
 
 std::string Px(double v) { return FormatFixed(v, 1); }
 
@@ -42,7 +42,7 @@ Domain NumericDomain(double lo, double hi, const std::optional<std::pair<double,
   if (!(lo <= hi)) lo = 0, hi = 1;  // no data
   const Axis axis = NiceAxis(lo, hi, kMaxTicks);
   Domain d{fixed ? lo : axis.lo, fixed ? hi : axis.hi, {}};
-  const double slack = kEpsilon * std::max(1.0, std::abs(d.hi - d.lo));
+  const double slack = kTickSlack * std::max(1.0, std::abs(d.hi - d.lo));
   for (double t : axis.ticks) {
     if (t >= d.lo - slack && t <= d.hi + slack) d.ticks.push_back({t, FormatTick(t, axis.step)});
   }

@@ -10,7 +10,7 @@ mode="${1:-demo}"
 case "$mode" in demo|test) ;; *) echo "usage: $0 demo|test" >&2; exit 2 ;; esac
 cd "$(dirname "$0")/.."
 
-build_packages=(cmake make g++ pkg-config libtbb-dev libeigen3-dev libprotobuf-dev protobuf-compiler
+build_packages=(cmake ninja-build g++ pkg-config libtbb-dev libeigen3-dev libprotobuf-dev protobuf-compiler
   libgrpc++-dev protobuf-compiler-grpc libyaml-cpp-dev libcli11-dev nlohmann-json3-dev libssl-dev
   zlib1g-dev libgtest-dev libdnnl-dev)
 # Reference libraries and open data the tests check against (scikit-learn, SciPy, PyTorch,
@@ -40,10 +40,19 @@ if [ ${#missing[@]} -gt 0 ]; then
 fi
 
 jobs="$(nproc)"
+# Ninja, and unity batches (CMakeLists.txt, CHORUS_UNITY_BUILD): measured on 2 cores, the ASan
+# build takes 370 s instead of 580 s with make and one file per translation unit. A build
+# directory made earlier keeps its generator.
+configure() {
+  local dir="$1"; shift
+  local generator=(-G Ninja)
+  [ -f "$dir/CMakeCache.txt" ] && generator=()
+  cmake -S . -B "$dir" "${generator[@]}" -DCHORUS_UNITY_BUILD=ON "$@"
+}
 # In test mode the plain build holds only the tests that need it (below); the rest of the suite
 # is built and run under the sanitizers.
 # (The benchmarks are built in demo mode only: CI's 30 minutes go to the sanitizer builds.)
-cmake -S . -B build -DCMAKE_BUILD_TYPE=Release -DCHORUS_PLAIN_ONLY_TESTS="$([ "$mode" = test ] && echo ON || echo OFF)" \
+configure build -DCMAKE_BUILD_TYPE=Release -DCHORUS_PLAIN_ONLY_TESTS="$([ "$mode" = test ] && echo ON || echo OFF)" \
   -DCHORUS_BUILD_BENCH="$([ "$mode" = test ] && echo OFF || echo ON)"
 cmake --build build -j "$jobs"
 
@@ -58,14 +67,14 @@ if [ "$mode" = test ]; then
   ctest --test-dir build --output-on-failure -j "$jobs" --timeout 900
   # 2. AddressSanitizer + UndefinedBehaviorSanitizer (clang): every other test, then the fuzz
   #    targets, which share this build.
-  CC=clang-14 CXX=clang++-14 cmake -S . -B build-asan -DCMAKE_BUILD_TYPE=Release -DCHORUS_FUZZ=ON \
+  CC=clang-14 CXX=clang++-14 configure build-asan -DCMAKE_BUILD_TYPE=Release -DCHORUS_FUZZ=ON \
     -DCHORUS_BUILD_BENCH=OFF
   cmake --build build-asan -j "$jobs"
   ctest --test-dir build-asan --output-on-failure -j "$jobs" --timeout 900
   CHORUS_FUZZ_BUILD_DIR="$PWD/build-asan" scripts/fuzz.sh --seconds 10 --jobs "$jobs" --seed 1
   # 3. ThreadSanitizer: the concurrency tests (the job table, the coordinator's service, job slots
   #    on the oneTBB arena, training steps over threads, workers over gRPC, multi-threaded runs).
-  CC=clang-14 CXX=clang++-14 cmake -S . -B build-tsan -DCMAKE_BUILD_TYPE=Release -DCHORUS_SANITIZE=thread \
+  CC=clang-14 CXX=clang++-14 configure build-tsan -DCMAKE_BUILD_TYPE=Release -DCHORUS_SANITIZE=thread \
     -DCHORUS_BUILD_BENCH=OFF
   cmake --build build-tsan -j "$jobs" --target chorus_tests
   TSAN_OPTIONS="halt_on_error=1 second_deadlock_stack=1 suppressions=$PWD/tests/sanitizers/tsan.supp" \

@@ -14,7 +14,7 @@
 #include "tests/testing/run_dir.h"
 
 namespace chorus {
-namespace {
+namespace file_size_limit_test {
 
 namespace fs = std::filesystem;
 using testing::RunShell;
@@ -88,5 +88,5 @@ TEST_F(FileSizeLimitTest, PredictStoppedByTheLimitExitsOneAndLeavesNoOutput) {
   EXPECT_TRUE(Temporaries(dir_).empty());
 }
 
-}  // namespace
+}  // namespace file_size_limit_test
 }  // namespace chorus

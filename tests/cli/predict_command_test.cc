@@ -21,7 +21,7 @@
 #include "tests/testing/synthetic_bundle.h"
 
 namespace chorus {
-namespace {
+namespace predict_command_test {
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -425,5 +425,5 @@ TEST_F(PredictCommandTest, BothCommandsHaveHelp) {
   EXPECT_NE(r.output.find("checksum"), std::string::npos) << r.output;
 }
 
-}  // namespace
+}  // namespace predict_command_test
 }  // namespace chorus

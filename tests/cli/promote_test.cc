@@ -20,7 +20,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace promote_test {
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -33,20 +33,17 @@ constexpr char kWeaker[] =
 
 class PromoteTest : public ::testing::Test {
  protected:
-  // Four small runs, shared by every test (promote only reads them).
+  // Four small runs, shared by every test (promote only reads them) and every test process.
   static void SetUpTestSuite() {
-    runs_ = testing::MakeTempDir("chorus-promote");
-    testing::WriteDemoData(runs_);
-    better_ =
-        testing::RunDemo(runs_, "better", testing::DemoClassificationYaml("better", 1, kBetter));
-    weaker_ =
-        testing::RunDemo(runs_, "weaker", testing::DemoClassificationYaml("weaker", 2, kWeaker));
-    better_regression_ = testing::RunDemo(
-        runs_, "better_regression", testing::DemoRegressionYaml("better_regression", 1, kBetter));
-    weaker_regression_ = testing::RunDemo(
-        runs_, "weaker_regression", testing::DemoRegressionYaml("weaker_regression", 2, kWeaker));
+    better_ = testing::SharedDemoRun("promote-better",
+                                     testing::DemoClassificationYaml("better", 1, kBetter));
+    weaker_ = testing::SharedDemoRun("promote-weaker",
+                                     testing::DemoClassificationYaml("weaker", 2, kWeaker));
+    better_regression_ = testing::SharedDemoRun(
+        "promote-better_regression", testing::DemoRegressionYaml("better_regression", 1, kBetter));
+    weaker_regression_ = testing::SharedDemoRun(
+        "promote-weaker_regression", testing::DemoRegressionYaml("weaker_regression", 2, kWeaker));
   }
-  static void TearDownTestSuite() { fs::remove_all(runs_); }
 
   void SetUp() override {
     ASSERT_FALSE(better_.empty() || weaker_.empty());
@@ -85,11 +82,16 @@ class PromoteTest : public ::testing::Test {
     return file.ok() ? file.value().payload_sha256 : "";
   }
 
-  static std::string runs_, better_, weaker_, better_regression_, weaker_regression_;
+  // The demo data the shared runs were trained on (SharedDemoRun's DIR/data).
+  static std::string DemoDataOf(const std::string& run) {
+    return fs::path(run).parent_path().parent_path().string() + "/data";
+  }
+
+  static std::string better_, weaker_, better_regression_, weaker_regression_;
   std::string registry_;
 };
 
-std::string PromoteTest::runs_, PromoteTest::better_, PromoteTest::weaker_,
+std::string PromoteTest::better_, PromoteTest::weaker_,
     PromoteTest::better_regression_, PromoteTest::weaker_regression_;
 
 TEST_F(PromoteTest, FirstBundleThenABetterOneArePromoted) {
@@ -223,9 +225,9 @@ TEST_F(PromoteTest, RegressionGateUsesNllAndRmse) {
 }
 
 TEST_F(PromoteTest, BadInputExitsTwo) {
-  EXPECT_EQ(Promote(runs_).exit_code, 2);  // no bundle.chorus
+  EXPECT_EQ(Promote(DemoDataOf(better_)).exit_code, 2);  // no bundle.chorus
   EXPECT_EQ(Promote(better_, "--guard-labels x").exit_code, 2);
-  EXPECT_EQ(Promote(better_, "--guard " + runs_ + "/missing.csv").exit_code, 2);
+  EXPECT_EQ(Promote(better_, "--guard " + DemoDataOf(better_) + "/missing.csv").exit_code, 2);
   ASSERT_EQ(Promote(better_).exit_code, 0);
   const auto r = Promote(better_regression_);  // the current bundle is a classifier
   EXPECT_EQ(r.exit_code, 2) << r.output;
@@ -234,7 +236,7 @@ TEST_F(PromoteTest, BadInputExitsTwo) {
 
 TEST_F(PromoteTest, GuardFileAndJsonLog) {
   // The first 100 test rows, as a separate guard file.
-  std::istringstream in(ReadTextFile(runs_ + "/data/alarms_test.csv"));
+  std::istringstream in(ReadTextFile(DemoDataOf(better_) + "/alarms_test.csv"));
   std::string guard, line;
   for (int i = 0; i <= 100 && std::getline(in, line); ++i) guard += line + "\n";
   testing::WriteTextFile(registry_ + "-guard.csv", guard);
@@ -272,5 +274,5 @@ TEST_F(PromoteTest, ConcurrentPromoteWaitsForTheLock) {
   EXPECT_TRUE(fs::exists(registry_ + "/current/bundle.chorus"));
 }
 
-}  // namespace
+}  // namespace promote_test
 }  // namespace chorus

@@ -12,7 +12,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace reference_command_test {
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -107,5 +107,5 @@ TEST_F(ReferenceCommandTest, RefusesRegressionLargeNetworksAndMissingRuns) {
   EXPECT_NE(r.output.find("--prior-variance"), std::string::npos) << r.output;
 }
 
-}  // namespace
+}  // namespace reference_command_test
 }  // namespace chorus

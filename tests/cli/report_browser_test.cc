@@ -14,7 +14,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace report_browser_test {
 
 namespace fs = std::filesystem;
 
@@ -156,5 +156,5 @@ TEST_F(ReportBrowserTest, RegressionReportLoadsCleanly) {
   Screenshot(run + "/report.html", 3900, "report_regression");
 }
 
-}  // namespace
+}  // namespace report_browser_test
 }  // namespace chorus

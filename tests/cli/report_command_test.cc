@@ -14,7 +14,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace report_command_test {
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -177,5 +177,5 @@ TEST_F(ReportCommandTest, CompareExitsTwoOnAnUnreadableRun) {
   EXPECT_NE(r.output.find("missing/report.json"), std::string::npos) << r.output;
 }
 
-}  // namespace
+}  // namespace report_command_test
 }  // namespace chorus

@@ -11,7 +11,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace run_command_test {
 
 namespace fs = std::filesystem;
 using testing::JobResults;
@@ -364,11 +364,11 @@ TEST_F(RunCommandTest, ResumeRefusesACompleteRunChangedDataABadManifestAndANonRu
   EXPECT_TRUE(fs::is_empty(empty)) << "nothing is created in a directory that is not a run";
 }
 
-}  // namespace
+}  // namespace run_command_test
 }  // namespace chorus
 
 namespace chorus {
-namespace {
+namespace run_command_test {
 
 // data.shift_test end to end. With the test file itself as the "shifted" set, every score of
 // every predictive is the same on both sets, so each AUROC is exactly 1/2 (the Mann-Whitney
@@ -432,5 +432,5 @@ TEST_F(RunCommandTest, ShiftedTestSetIsScoredByEveryPredictive) {
   }
 }
 
-}  // namespace
+}  // namespace run_command_test
 }  // namespace chorus

@@ -21,7 +21,7 @@
 #include "tests/testing/sanitizer.h"
 
 namespace chorus {
-namespace {
+namespace netns_test {
 
 using testing::CountEvents;
 using testing::ReadEvents;
@@ -205,5 +205,5 @@ TEST_F(NetnsTest, LinkDownMidJobLeaseExpiresAndAnotherWorkerFinishes) {
   EXPECT_EQ(finished, 2);
 }
 
-}  // namespace
+}  // namespace netns_test
 }  // namespace chorus

@@ -17,7 +17,7 @@
 #include "tests/testing/sanitizer.h"
 
 namespace chorus {
-namespace {
+namespace workers_test {
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -204,5 +204,5 @@ TEST_F(WorkersTest, WorkerThatDoesNotTrustTheServerCertificateCannotConnect) {
   EXPECT_EQ(CountEvents(run, "member_finished"), 2);
 }
 
-}  // namespace
+}  // namespace workers_test
 }  // namespace chorus

@@ -14,7 +14,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace assembly_test {
 
 using testing::MakeTempDir;
 using testing::RunReferenceScript;
@@ -333,5 +333,5 @@ TEST(SizeCurveTest, SubsetsAreDeterministicForASeed) {
   EXPECT_TRUE(seed_matters);
 }
 
-}  // namespace
+}  // namespace assembly_test
 }  // namespace chorus

@@ -15,7 +15,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace atomic_file_test {
 
 namespace fs = std::filesystem;
 
@@ -110,5 +110,5 @@ TEST_F(AtomicFileTest, WriteFileAtomicWritesTheWholeContents) {
   EXPECT_EQ(Entries(dir_), (std::vector<std::string>{"blob.bin"}));
 }
 
-}  // namespace
+}  // namespace atomic_file_test
 }  // namespace chorus

@@ -6,7 +6,7 @@
 #include "common/rng.h"
 
 namespace chorus {
-namespace {
+namespace basin_fit_move_test {
 
 SnapshotMoments Moments(int64_t dim, int rank, int snapshots, uint64_t seed) {
   SnapshotMoments m(dim, rank);
@@ -41,5 +41,5 @@ TEST(BasinFitMoveTest, MovedMomentsGiveTheCopiedFitBitForBit) {
   }
 }
 
-}  // namespace
+}  // namespace basin_fit_move_test
 }  // namespace chorus

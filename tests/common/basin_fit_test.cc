@@ -14,7 +14,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace basin_fit_test {
 
 using testing::MakeTempDir;
 using testing::ReadMatrixText;
@@ -289,5 +289,5 @@ TEST(BasinFitTest, MeanApproachesBayesianLinearRegressionPosterior) {
       << "relative error " << (mean - m_n).norm() / m_n.norm();
 }
 
-}  // namespace
+}  // namespace basin_fit_test
 }  // namespace chorus

@@ -19,7 +19,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace conv_front_test {
 
 using testing::GradientCheckOptions;
 using testing::GradientMatchesCentralDifferences;
@@ -304,5 +304,5 @@ TEST(ConvFrontTest, StageChecksNameWhatIsWrong) {
   EXPECT_EQ(ConvParameterCount({1, 28, 28}, {}), -1);
 }
 
-}  // namespace
+}  // namespace conv_front_test
 }  // namespace chorus

@@ -7,7 +7,7 @@
 #include <vector>
 
 namespace chorus {
-namespace {
+namespace cpu_account_test {
 
 // The thread's CPU time by another interface, getrusage(RUSAGE_THREAD) (Linux, getrusage(2)):
 // user + system, microsecond resolution.
@@ -86,5 +86,5 @@ TEST(CpuAccountTest, WorkOfAnotherAccountRunOnThisThreadIsNotCharged) {
   EXPECT_NEAR(outer.Seconds(), 0.04, 3 * kSlack);
 }
 
-}  // namespace
+}  // namespace cpu_account_test
 }  // namespace chorus

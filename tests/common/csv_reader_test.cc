@@ -10,7 +10,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace csv_reader_test {
 
 class CsvReaderTest : public ::testing::Test {
  protected:
@@ -107,5 +107,5 @@ TEST_F(CsvReaderTest, BadHeadersAndOversizedRecordsAreErrors) {
   EXPECT_NE(next.status().message().find("longer than 100 bytes"), std::string::npos);
 }
 
-}  // namespace
+}  // namespace csv_reader_test
 }  // namespace chorus

@@ -8,7 +8,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace csv_test {
 
 // ReadCsv on `text` written to a file named t.csv in a fresh directory; messages are shown with
 // the directory removed ("t.csv:3:3: ...").
@@ -123,5 +123,5 @@ TEST(CsvTest, ReadCsvReadsAFileAndNamesAMissingOne) {
             std::string::npos);
 }
 
-}  // namespace
+}  // namespace csv_test
 }  // namespace chorus

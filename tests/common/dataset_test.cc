@@ -14,7 +14,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace dataset_test {
 
 constexpr char kTrain[] = "a,b,y\n1,10,p\n2,20,q\n3,30,p\n4,40,q\n5,50,p\n6,60,q\n";
 constexpr char kTest[] = "a,b,y\n1,1,p\n2,2,q\n";
@@ -513,5 +513,5 @@ TEST_F(DatasetTest, TrueProbabilitiesAreReorderedToClassNames) {
             std::string::npos);
 }
 
-}  // namespace
+}  // namespace dataset_test
 }  // namespace chorus

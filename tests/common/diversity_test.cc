@@ -11,7 +11,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace diversity_test {
 
 using testing::MakeTempDir;
 using testing::ParseReferenceOutput;
@@ -118,5 +118,5 @@ TEST(DiversityTest, ManyComponentsAreCapped) {
   EXPECT_EQ(d.pairs, int64_t{kMaxDiversityComponents} * (kMaxDiversityComponents - 1) / 2);
 }
 
-}  // namespace
+}  // namespace diversity_test
 }  // namespace chorus

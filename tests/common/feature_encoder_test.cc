@@ -12,7 +12,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace feature_encoder_test {
 
 class FeatureEncoderTest : public ::testing::Test {
  protected:
@@ -94,5 +94,5 @@ TEST_F(FeatureEncoderTest, AValueThatStandardisesBeyondFloatRangeIsRefusedNaming
             std::string::npos) << "past float range before any standardising";
 }
 
-}  // namespace
+}  // namespace feature_encoder_test
 }  // namespace chorus

@@ -11,7 +11,7 @@
 #include "tests/testing/small_data.h"
 
 namespace chorus {
-namespace {
+namespace folds_test {
 
 using testing::SmallClassificationData;
 
@@ -136,5 +136,5 @@ TEST(EarlyStoppingTest, OffTrainsEveryEpochAndStillRecordsTheCurve) {
   EXPECT_EQ(r.value().best_epoch, 6);
 }
 
-}  // namespace
+}  // namespace folds_test
 }  // namespace chorus

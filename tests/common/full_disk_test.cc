@@ -17,7 +17,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace full_disk_test {
 
 namespace fs = std::filesystem;
 
@@ -110,5 +110,5 @@ TEST_F(SmallFileSystemTest, SpaceThatNeverComesBackLeavesNoTornLineAndNoTemporar
   }
 }
 
-}  // namespace
+}  // namespace full_disk_test
 }  // namespace chorus

@@ -22,7 +22,7 @@
 #include "common/sgd.h"
 
 namespace chorus {
-namespace {
+namespace gemm_test {
 
 std::vector<const GemmKernel*> KernelsHere() {
   std::vector<const GemmKernel*> kernels;
@@ -222,5 +222,5 @@ TEST(GemmTest, SameBitsOnRepeatAndOnAnotherThread) {
   EXPECT_EQ(first, elsewhere);
 }
 
-}  // namespace
+}  // namespace gemm_test
 }  // namespace chorus

@@ -14,7 +14,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace hmc_reference_test {
 
 using testing::MakeTempDir;
 using testing::ParseReferenceOutput;
@@ -240,5 +240,5 @@ TEST(HmcReferenceTest, RefusesBadInput) {
   EXPECT_NE(refusal(Task::kClassification, {start}, prior).find("prior_variance"), std::string::npos);
 }
 
-}  // namespace
+}  // namespace hmc_reference_test
 }  // namespace chorus

@@ -15,7 +15,7 @@
 #include "common/rng.h"
 
 namespace chorus {
-namespace {
+namespace hmc_test {
 
 constexpr uint64_t kSeed = 20250301;  // every random draw below derives from it
 
@@ -450,5 +450,5 @@ TEST(HmcTest, RejectsBadInputAndStopsOnRequest) {
   EXPECT_EQ(calls, 3);
 }
 
-}  // namespace
+}  // namespace hmc_test
 }  // namespace chorus

@@ -13,7 +13,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace idx_reader_test {
 
 // IDX bytes: magic 0x0000TTDD, big-endian uint32 sizes, then the elements as given.
 std::string Idx(uint8_t type, const std::vector<uint32_t>& dims, const std::string& elements) {
@@ -103,5 +103,5 @@ TEST_F(IdxReaderTest, TruncatedFilesTrailingBytesAndBadHeadersAreRefused) {
             std::string::npos);
 }
 
-}  // namespace
+}  // namespace idx_reader_test
 }  // namespace chorus

@@ -10,7 +10,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace idx_test {
 
 // An IDX header: magic 0x0000TTDD, then each size as a big-endian uint32.
 std::vector<uint8_t> IdxHeader(uint8_t type, const std::vector<uint32_t>& dims) {
@@ -175,5 +175,5 @@ TEST_F(IdxTest, FashionMnistTestSetHasThePublishedShape) {
   for (int count : per_class) EXPECT_EQ(count, 1000);
 }
 
-}  // namespace
+}  // namespace idx_test
 }  // namespace chorus

@@ -11,7 +11,7 @@
 #include "tests/testing/small_data.h"
 
 namespace chorus {
-namespace {
+namespace laplace_probit_test {
 
 struct LaplaceMember {
   PreparedData data = testing::SmallClassificationData(8);
@@ -76,5 +76,5 @@ TEST(LaplaceProbitTest, MixtureWeighsMembersAndRefusesOtherFits) {
   EXPECT_FALSE(LaplaceProbitMixture(m.net, {&m.result.basin}, {0.5, 0.5}, 1.0, m.data.test.x).ok());
 }
 
-}  // namespace
+}  // namespace laplace_probit_test
 }  // namespace chorus

@@ -12,7 +12,7 @@
 #include "tests/testing/random_network.h"
 
 namespace chorus {
-namespace {
+namespace last_layer_curvature_test {
 
 constexpr uint64_t kSeed = 20240917;  // every random draw below derives from it
 
@@ -205,5 +205,5 @@ TEST(LastLayerCurvatureTest, RejectsBadInputsWithContext) {
       << nan_input.message();
 }
 
-}  // namespace
+}  // namespace last_layer_curvature_test
 }  // namespace chorus

@@ -15,10 +15,9 @@
 #include "tests/testing/random_network.h"
 
 namespace chorus {
-namespace {
+namespace last_layer_laplace_test {
 
 constexpr uint64_t kSeed = 20240917;  // every random draw below derives from it
-constexpr double kPi = 3.14159265358979323846;
 
 using testing::Features;
 using testing::RandomNormal;
@@ -107,7 +106,7 @@ TEST(LastLayerLaplaceTest, NoHiddenLayerRegressionIsBayesianLinearRegression) {
   // - (1/2) ln |alpha I + Phi^T Phi / 2|.
   const double e_mn = 0.5 * beta * (t - phi * m_n).squaredNorm() + 0.5 * alpha * m_n.squaredNorm();
   const double bishop = 0.5 * m * std::log(alpha) + 0.5 * n * std::log(beta) - e_mn -
-                        0.5 * std::log(a.determinant()) - 0.5 * n * std::log(2 * kPi);
+                        0.5 * std::log(a.determinant()) - 0.5 * n * std::log(2 * M_PI);
   const Eigen::MatrixXd a_s = alpha * Eigen::MatrixXd::Identity(m, m) + 0.5 * phi.transpose() * phi;
   const double log_variance_part = 0.5 * m * std::log(alpha) - 0.5 * alpha * log_variance * log_variance -
                                    0.5 * std::log(a_s.determinant());
@@ -217,7 +216,7 @@ TEST(LastLayerLaplaceTest, SamplesArePureAndTouchOnlyTheLastLayer) {
 
 // sigmoid(x) - Phi(sqrt(pi/8) x), the substitution behind MacKay's approximation.
 double SigmoidMinusProbit(double x) {
-  return 1.0 / (1.0 + std::exp(-x)) - 0.5 * std::erfc(-std::sqrt(kPi / 8.0) * x / std::sqrt(2.0));
+  return 1.0 / (1.0 + std::exp(-x)) - 0.5 * std::erfc(-std::sqrt(M_PI / 8.0) * x / std::sqrt(2.0));
 }
 
 // E[sigmoid(f)], f ~ N(mu, v), by composite Simpson over t in [-12, 12] (f = mu + sqrt(v) t)
@@ -232,7 +231,7 @@ double SigmoidGaussianQuadrature(double mu, double v) {
     const double w = (i == 0 || i == intervals) ? 1.0 : (i % 2 == 1 ? 4.0 : 2.0);
     sum += w * std::exp(-0.5 * t * t) / (1.0 + std::exp(-(mu + std::sqrt(v) * t)));
   }
-  return sum * step / 3.0 / std::sqrt(2.0 * kPi);
+  return sum * step / 3.0 / std::sqrt(2.0 * M_PI);
 }
 
 TEST(LastLayerLaplaceTest, BinaryProbitMatchesQuadrature) {
@@ -408,5 +407,5 @@ TEST(LastLayerLaplaceTest, RejectsBadInputsWithContext) {
   EXPECT_NE(nan_target.message().find("row 1"), std::string::npos) << nan_target.message();
 }
 
-}  // namespace
+}  // namespace last_layer_laplace_test
 }  // namespace chorus

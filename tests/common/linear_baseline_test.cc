@@ -13,14 +13,13 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace linear_baseline_test {
 
 using testing::MakeTempDir;
 using testing::ParseReferenceOutput;
 using testing::ReadMatrixText;
 using testing::RunReferenceScript;
 
-const double kPi = std::acos(-1.0);
 
 // The matrices a reference script wrote (by file name, without ".txt") and the values it printed.
 struct Reference {
@@ -270,7 +269,7 @@ double ProbitIntegral(double mu, double s) {
   double sum = 0;
   for (int i = 0; i <= steps; ++i) {
     const double a = lo + i * h, z = (a - mu) / s;
-    const double term = std::exp(-0.5 * z * z) / (s * std::sqrt(2 * kPi)) / (1 + std::exp(-a));
+    const double term = std::exp(-0.5 * z * z) / (s * std::sqrt(2 * M_PI)) / (1 + std::exp(-a));
     sum += (i == 0 || i == steps) ? 0.5 * term : term;
   }
   return sum * h;
@@ -283,7 +282,7 @@ TEST(LinearBaselineTest, BinaryProbitPredictiveMatchesNumericalIntegral) {
   // (worst over mu in [-30, 30]: 7e-5 at s = 0.1, 0.0046 at s = 1, 0.017 at s = 10) and only a
   // few 1e-3 for s <= 1; the bound still catches the plug-in sigma(mu) (off by 0.36 at mu = 4,
   // s = 10) or a kappa without its square root.
-  const double lambda = std::sqrt(kPi / 8);
+  const double lambda = std::sqrt(M_PI / 8);
   double eps = 0;
   for (double a = -10; a <= 10; a += 1e-4) {
     const double probit = 0.5 * std::erfc(-lambda * a / std::sqrt(2.0));  // Phi(lambda a)
@@ -338,7 +337,7 @@ TEST(LinearBaselineTest, LaplaceEvidenceMatchesNumericalIntegral) {
         ll -= std::log1p(std::exp(labels[r] ? -a(r) : a(r)));  // ln sigma(+-a)
       }
       log_joint(i, j) = ll - 0.5 * m.alpha * w * w - 0.5 * 1e-4 * b * b +
-                        0.5 * std::log(m.alpha * 1e-4) - std::log(2 * kPi);
+                        0.5 * std::log(m.alpha * 1e-4) - std::log(2 * M_PI);
     }
   }
   const double peak = log_joint.maxCoeff();
@@ -479,5 +478,5 @@ TEST(LinearBaselineTest, LogisticRejectsBadInput) {
             Status::Code::kInvalidInput);
 }
 
-}  // namespace
+}  // namespace linear_baseline_test
 }  // namespace chorus

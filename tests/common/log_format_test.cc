@@ -9,7 +9,7 @@
 #include <nlohmann/json.hpp>
 
 namespace chorus {
-namespace {
+namespace log_format_test {
 
 using nlohmann::json;
 
@@ -89,5 +89,5 @@ TEST(LogFormatTest, JsonModePrintsOneObjectPerLine) {
             std::string("2026-12-02T00:38:27.512Z").size());
 }
 
-}  // namespace
+}  // namespace log_format_test
 }  // namespace chorus

@@ -11,7 +11,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace mcmc_diagnostics_test {
 
 using testing::MakeTempDir;
 using testing::ParseReferenceOutput;
@@ -142,5 +142,5 @@ TEST(McmcDiagnosticsTest, SummaryFindsWorstDimension) {
   EXPECT_EQ(SummarizeDraws(chains).max_rhat_dim, 0);
 }
 
-}  // namespace
+}  // namespace mcmc_diagnostics_test
 }  // namespace chorus

@@ -14,7 +14,7 @@
 #include "tests/testing/small_data.h"
 
 namespace chorus {
-namespace {
+namespace member_training_test {
 
 MemberSpec SpecWithBatch(int batch_size) { return testing::SmallMemberSpec(0, 13, 3, batch_size); }
 
@@ -123,7 +123,9 @@ TEST(MemberTrainingTest, CyclicalSgmcmcCollectsSamplesAtTheSampleSteps) {
   for (int s = 0; s < 8; ++s) {
     DrawBasinSample(r.basin, static_cast<uint64_t>(s), 1.0, w.data());
     EXPECT_TRUE(PredictOutputs(net, w.data(), d.test.x) == r.sample_test_outputs[s]) << "sample " << s;
-    if (s > 0) EXPECT_FALSE(r.basin.samples.row(s) == r.basin.samples.row(s - 1)) << "sample " << s;
+    if (s > 0) {
+      EXPECT_FALSE(r.basin.samples.row(s) == r.basin.samples.row(s - 1)) << "sample " << s;
+    }
   }
   // The last sample is the last step's weights.
   EXPECT_TRUE(std::equal(r.parameters.begin(), r.parameters.end(), r.basin.samples.row(7).data()));
@@ -174,5 +176,5 @@ TEST(MemberTrainingTest, RecordsCpuSecondsOfEachPhase) {
   EXPECT_LE(cpu.training + cpu.basin_fit + cpu.samples, spent + 0.001);
 }
 
-}  // namespace
+}  // namespace member_training_test
 }  // namespace chorus

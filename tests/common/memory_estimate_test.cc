@@ -8,7 +8,7 @@
 #include "tests/testing/small_data.h"
 
 namespace chorus {
-namespace {
+namespace memory_estimate_test {
 
 TEST(MemoryEstimateTest, TermsOfASmallNetworkAsWorkedOutByHand) {
   const PreparedData data = testing::SmallClassificationData(1);  // 4 features, 3 classes
@@ -55,5 +55,5 @@ TEST(MemoryEstimateTest, ByteTextUsesBinaryUnits) {
   EXPECT_EQ(ByteText(int64_t{3} << 30), "3.0 GiB");
 }
 
-}  // namespace
+}  // namespace memory_estimate_test
 }  // namespace chorus

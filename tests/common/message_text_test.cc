@@ -5,7 +5,7 @@
 #include <gtest/gtest.h>
 
 namespace chorus {
-namespace {
+namespace message_text_test {
 
 TEST(MessageTextTest, ShortValuesAreQuotedWhole) {
   EXPECT_EQ(Quoted("site"), "\"site\"");
@@ -22,5 +22,5 @@ TEST(MessageTextTest, NumbersReadBackExactly) {
   EXPECT_EQ(std::stod(NumberText(1.0 / 3.0)), 1.0 / 3.0);
 }
 
-}  // namespace
+}  // namespace message_text_test
 }  // namespace chorus

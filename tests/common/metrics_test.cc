@@ -13,7 +13,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace metrics_test {
 
 using testing::MakeTempDir;
 using testing::RandomLabels;
@@ -157,5 +157,5 @@ TEST(MetricsTest, RegressionHandCase) {
   EXPECT_NEAR(m.nll, 0.9189385332046727 + 12.51121 / 2, 1e-12);
 }
 
-}  // namespace
+}  // namespace metrics_test
 }  // namespace chorus

@@ -12,7 +12,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace mlp_posterior_test {
 
 using testing::GradientCheckOptions;
 using testing::GradientMatchesCentralDifferences;
@@ -165,5 +165,5 @@ TEST(MlpPosteriorTest, CreateRejectsDataThatDoesNotFit) {
   EXPECT_EQ(code(Task::kClassification, bad, 1.0), Status::Code::kInvalidInput);
 }
 
-}  // namespace
+}  // namespace mlp_posterior_test
 }  // namespace chorus

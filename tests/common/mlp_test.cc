@@ -17,7 +17,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace mlp_test {
 
 using testing::GradientCheckOptions;
 using testing::GradientMatchesCentralDifferences;
@@ -514,5 +514,5 @@ TEST(SgdTest, ClipGradientNormLeavesSmallGradientsAndDisabledClippingAlone) {
   EXPECT_EQ(g[1], 4.0f);
 }
 
-}  // namespace
+}  // namespace mlp_test
 }  // namespace chorus

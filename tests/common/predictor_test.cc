@@ -10,7 +10,7 @@
 #include "tests/testing/synthetic_bundle.h"
 
 namespace chorus {
-namespace {
+namespace predictor_test {
 
 using testing::RandomInputs;
 using testing::SyntheticBundle;
@@ -82,5 +82,5 @@ TEST(PredictorTest, ARowsPredictionDoesNotDependOnLaterRows) {
   EXPECT_EQ(first, all.topRows(Predictor::kBatchRows));
 }
 
-}  // namespace
+}  // namespace predictor_test
 }  // namespace chorus

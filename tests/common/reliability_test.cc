@@ -13,7 +13,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace reliability_test {
 
 using testing::ParseReferenceOutput;
 
@@ -137,5 +137,5 @@ TEST(ReliabilityTest, SelectiveRmseKeepsTheLeastUncertainInputs) {
   EXPECT_TRUE(std::isnan(SelectiveRmse({}, {}, {1.0})[0]));
 }
 
-}  // namespace
+}  // namespace reliability_test
 }  // namespace chorus

@@ -5,7 +5,7 @@
 #include <cmath>
 
 namespace chorus {
-namespace {
+namespace rng_test {
 
 // Known-answer vectors for Philox4x32-10 from Random123's kat_vectors file (Salmon et al., SC
 // 2011), as remembered: counter = key = 0, and the "pi digits" vector.
@@ -48,5 +48,5 @@ TEST(RngTest, NextBelowStaysInRange) {
   for (int i = 0; i < 10000; ++i) EXPECT_LT(r.NextBelow(7), 7u);
 }
 
-}  // namespace
+}  // namespace rng_test
 }  // namespace chorus

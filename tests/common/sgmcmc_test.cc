@@ -16,7 +16,7 @@
 #include "common/sgmcmc_step.h"
 
 namespace chorus {
-namespace {
+namespace sgmcmc_test {
 
 using Eigen::MatrixXd;
 using Eigen::VectorXd;
@@ -469,5 +469,5 @@ TEST(SgmcmcStepTest, ZeroTemperatureIsDeterministicDescent) {
   }
 }
 
-}  // namespace
+}  // namespace sgmcmc_test
 }  // namespace chorus

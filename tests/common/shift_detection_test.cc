@@ -5,7 +5,7 @@
 #include <cmath>
 
 namespace chorus {
-namespace {
+namespace shift_detection_test {
 
 // Hand-worked: confident test rows, unsure shifted rows. Every shifted row is more uncertain than
 // every test row, so each AUROC is 1 (Mann-Whitney U = n_pos n_neg); swapping the sets gives 0.
@@ -44,5 +44,5 @@ TEST(ShiftDetectionTest, RegressionRanksByStandardDeviation) {
   EXPECT_NEAR(a.mean_score_shifted, (std::sqrt(26.0) + std::sqrt(29.0)) / 2.0, 1e-12);
 }
 
-}  // namespace
+}  // namespace shift_detection_test
 }  // namespace chorus

@@ -15,7 +15,7 @@
 #include "execution/tbb_parallel_for.h"
 
 namespace chorus {
-namespace {
+namespace training_step_test {
 
 constexpr int64_t kRows = 50;
 
@@ -106,5 +106,5 @@ TEST(TrainingStepTest, NonFiniteLossLeavesParametersAlone) {
   EXPECT_EQ(params, before);
 }
 
-}  // namespace
+}  // namespace training_step_test
 }  // namespace chorus

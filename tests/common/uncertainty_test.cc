@@ -13,7 +13,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace uncertainty_test {
 
 using testing::MakeTempDir;
 using testing::RandomProbabilities;
@@ -167,5 +167,5 @@ TEST(UncertaintyTest, SelectiveAccuracyFallsWithCoverageWhenConfidenceIsInformat
   }
 }
 
-}  // namespace
+}  // namespace uncertainty_test
 }  // namespace chorus

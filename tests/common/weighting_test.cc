@@ -15,7 +15,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace weighting_test {
 
 using testing::MakeTempDir;
 using testing::ParseReferenceOutput;
@@ -154,5 +154,5 @@ TEST(WeightingTest, GreedyHandCases) {
   EXPECT_EQ(GreedyWeights(dominated, 4), (std::vector<double>{0.0, 1.0}));
 }
 
-}  // namespace
+}  // namespace weighting_test
 }  // namespace chorus

@@ -16,7 +16,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace bundle_writer_test {
 
 struct Scenario {
   const char* name;
@@ -56,7 +56,13 @@ class BundleWriterTest : public ::testing::TestWithParam<Scenario> {
     c.train.batch_size = 64;
     c.ensemble.members = 3;
     c.ensemble.weighting = s.weighting;
-    c.ensemble.basin = {s.basin, 1, 0.01, 4, 3, 3, 1.5};
+    c.ensemble.basin.method = s.basin;
+    c.ensemble.basin.epochs = 1;
+    c.ensemble.basin.lr = 0.01;
+    c.ensemble.basin.snapshots = 4;
+    c.ensemble.basin.rank = 3;
+    c.ensemble.basin.samples = 3;
+    c.ensemble.basin.scale = 1.5;
     c.ensemble.basin.hessian = s.hessian;
     // Cyclical SG-MCMC: 2 epochs of 13 steps in 2 cycles, sampling in each cycle's second half.
     c.ensemble.basin.sgmcmc = {SgmcmcSampler::kSghmc, 2, 0.5, 2, 1.0, 0.1};
@@ -134,5 +140,5 @@ INSTANTIATE_TEST_SUITE_P(
                                BasinMethod::kCyclicalSgmcmc, Weighting::kUniform}),
     [](const ::testing::TestParamInfo<Scenario>& info) { return info.param.name; });
 
-}  // namespace
+}  // namespace bundle_writer_test
 }  // namespace chorus

@@ -8,7 +8,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace config_loader_test {
 
 constexpr const char* kMinimal = R"(data:
   train: d/train.csv
@@ -255,11 +255,11 @@ TEST(ConfigLoaderTest, MissingAndOversizedConfigFilesAreRefusedNamingThePath) {
   std::filesystem::remove_all(dir);
 }
 
-}  // namespace
+}  // namespace config_loader_test
 }  // namespace chorus
 
 namespace chorus {
-namespace {
+namespace config_loader_test {
 
 TEST(ConfigLoaderTest, LaplaceBasinAndShiftTestKeysAndTheirRoundTrip) {
   const std::string text = std::string(kMinimal) +
@@ -346,5 +346,5 @@ TEST(ConfigLoaderTest, CyclicalSgmcmcKeysAndTheirRoundTrip) {
   }
 }
 
-}  // namespace
+}  // namespace config_loader_test
 }  // namespace chorus

@@ -15,7 +15,7 @@
 #include "tests/testing/small_data.h"
 
 namespace chorus {
-namespace {
+namespace coordinator_restart_test {
 
 namespace fs = std::filesystem;
 
@@ -96,5 +96,5 @@ TEST(CoordinatorRestartTest, AWorkerWhoseIdTheNewCoordinatorDoesNotKnowRegisters
   if (!::testing::Test::HasFailure()) fs::remove_all(root);
 }
 
-}  // namespace
+}  // namespace coordinator_restart_test
 }  // namespace chorus

@@ -30,7 +30,7 @@
 #include "tests/testing/small_data.h"
 
 namespace chorus {
-namespace {
+namespace coordinator_service_test {
 
 namespace fs = std::filesystem;
 
@@ -448,5 +448,5 @@ TEST_F(CoordinatorServiceTest, TenThousandWrongTokensWriteOneEventAndTheHonestWo
   EXPECT_EQ(refused[1]["unlogged"], kThreads * kCallsEach - 1) << "the summary adds up";
 }
 
-}  // namespace
+}  // namespace coordinator_service_test
 }  // namespace chorus

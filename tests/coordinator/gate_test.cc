@@ -10,7 +10,7 @@
 #include <vector>
 
 namespace chorus {
-namespace {
+namespace gate_test {
 
 GateMetrics Classification(double nll, double accuracy, double ece) {
   GateMetrics m;
@@ -152,5 +152,5 @@ TEST(GateTest, JsonHoldsTheTaskMetricsAndLimits) {
   EXPECT_EQ(GateLimitsJson(Task::kClassification, limits).size(), 4u);
 }
 
-}  // namespace
+}  // namespace gate_test
 }  // namespace chorus

@@ -3,7 +3,7 @@
 #include <gtest/gtest.h>
 
 namespace chorus {
-namespace {
+namespace job_table_test {
 
 const Clock::time_point kT0{};
 
@@ -81,5 +81,5 @@ TEST(JobTableTest, ResumedJobsAreNotLeasedAgain) {
   EXPECT_FALSE(t.Lease("w", kT0).has_value());
 }
 
-}  // namespace
+}  // namespace job_table_test
 }  // namespace chorus

@@ -5,7 +5,7 @@
 #include <gtest/gtest.h>
 
 namespace chorus {
-namespace {
+namespace refusal_throttle_test {
 
 using std::chrono::seconds;
 const RefusalThrottle::TimePoint kT0 = std::chrono::steady_clock::time_point() + std::chrono::hours(1);
@@ -57,5 +57,5 @@ TEST(RefusalThrottleTest, PeerAddressDropsTheSchemeAndThePort) {
   EXPECT_EQ(PeerAddress(""), "");
 }
 
-}  // namespace
+}  // namespace refusal_throttle_test
 }  // namespace chorus

@@ -15,7 +15,7 @@
 #include "tests/testing/synthetic_bundle.h"
 
 namespace chorus {
-namespace {
+namespace registry_test {
 
 namespace fs = std::filesystem;
 
@@ -182,5 +182,5 @@ TEST_F(RegistryTest, SecondOpenWaitsForTheLock) {
   second.join();
 }
 
-}  // namespace
+}  // namespace registry_test
 }  // namespace chorus

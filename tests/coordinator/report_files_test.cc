@@ -12,7 +12,7 @@
 #include "tests/testing/sample_report.h"
 
 namespace chorus {
-namespace {
+namespace report_files_test {
 
 using nlohmann::json;
 
@@ -28,5 +28,5 @@ TEST(ReportFilesTest, WriteReportFilesStoresTheManifestAndRendersTheResult) {
   if (!HasFailure()) std::filesystem::remove_all(dir);
 }
 
-}  // namespace
+}  // namespace report_files_test
 }  // namespace chorus

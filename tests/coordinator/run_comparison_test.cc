@@ -7,7 +7,7 @@
 #include "tests/testing/sample_report.h"
 
 namespace chorus {
-namespace {
+namespace run_comparison_test {
 
 using nlohmann::json;
 
@@ -123,5 +123,5 @@ TEST(RunComparisonTest, MethodsAreComparedByCostDiversityAndShift) {
   EXPECT_NE(ComparisonTable(c).find("basin method"), std::string::npos);
 }
 
-}  // namespace
+}  // namespace run_comparison_test
 }  // namespace chorus

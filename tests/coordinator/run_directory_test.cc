@@ -10,7 +10,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace run_directory_test {
 
 namespace fs = std::filesystem;
 
@@ -60,5 +60,5 @@ TEST_F(RunDirectoryTest, TheEventLogDoesNotFollowALink) {
   EXPECT_EQ(testing::ReadTextFile(target), "keep me\n");
 }
 
-}  // namespace
+}  // namespace run_directory_test
 }  // namespace chorus

@@ -5,7 +5,7 @@
 #include <cmath>
 
 namespace chorus {
-namespace {
+namespace run_plan_test {
 
 PreparedData Rows(int64_t train, int64_t validation, int folds) {
   PreparedData d;
@@ -125,5 +125,5 @@ TEST(RunPlanTest, AutoEarlyStoppingIsOnForSmallDataCountedBeforeTheHoldout) {
   EXPECT_EQ(BaseSpec(c, Rows(10, 0, 5), 0).train.early_stopping.mode, Switch::kOff);
 }
 
-}  // namespace
+}  // namespace run_plan_test
 }  // namespace chorus

@@ -16,7 +16,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace deploy_files_test {
 
 using nlohmann::json;
 
@@ -134,5 +134,5 @@ TEST(DeployFilesTest, EveryFlagPassedToChorusAndChorusWorkerExists) {
   }
 }
 
-}  // namespace
+}  // namespace deploy_files_test
 }  // namespace chorus

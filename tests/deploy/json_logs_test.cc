@@ -13,7 +13,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace json_logs_test {
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -136,5 +136,5 @@ TEST_F(JsonLogsTest, WorkerLogsRetriesAndErrorsAsJson) {
   EXPECT_EQ(error[0]["level"], "error");
 }
 
-}  // namespace
+}  // namespace json_logs_test
 }  // namespace chorus

@@ -15,7 +15,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace nightly_test {
 
 namespace fs = std::filesystem;
 using testing::RunShell;
@@ -98,5 +98,5 @@ TEST_F(NightlyTest, PromotesKeepsRefusesAndPrunes) {
   EXPECT_NE(testing::ReadTextFile(dir_ + "/log").find("the gate refused"), std::string::npos);
 }
 
-}  // namespace
+}  // namespace nightly_test
 }  // namespace chorus

@@ -24,7 +24,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace slurm_test {
 
 using testing::JobResults;
 
@@ -253,5 +253,5 @@ TEST_F(SlurmTest, BatchScriptRunMatchesTheEmbeddedDefault) {
             std::string::npos);
 }
 
-}  // namespace
+}  // namespace slurm_test
 }  // namespace chorus

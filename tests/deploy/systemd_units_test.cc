@@ -11,7 +11,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace systemd_units_test {
 
 namespace fs = std::filesystem;
 
@@ -59,5 +59,5 @@ TEST(SystemdUnitsTest, PassSystemdAnalyzeVerify) {
   if (!HasFailure()) fs::remove_all(dir);
 }
 
-}  // namespace
+}  // namespace systemd_units_test
 }  // namespace chorus

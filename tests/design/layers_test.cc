@@ -11,7 +11,7 @@
 #include <vector>
 
 namespace chorus {
-namespace {
+namespace layers_test {
 
 namespace fs = std::filesystem;
 
@@ -119,5 +119,5 @@ TEST(LayersTest, TheReportModelIncludesNoOtherReportFile) {
   }
 }
 
-}  // namespace
+}  // namespace layers_test
 }  // namespace chorus

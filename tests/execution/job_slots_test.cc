@@ -12,7 +12,7 @@
 #include "tests/testing/small_data.h"
 
 namespace chorus {
-namespace {
+namespace job_slots_test {
 
 std::vector<MemberSpec> Specs(int count) {
   std::vector<MemberSpec> specs;
@@ -142,5 +142,5 @@ TEST(JobSlotsTest, ASlotsErrorIsReturnedAfterEverySlotHasEnded) {
   EXPECT_NE(st.message().find("token refused"), std::string::npos);
 }
 
-}  // namespace
+}  // namespace job_slots_test
 }  // namespace chorus

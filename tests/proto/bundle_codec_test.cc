@@ -14,7 +14,7 @@
 #include "tests/testing/synthetic_bundle.h"
 
 namespace chorus {
-namespace {
+namespace bundle_codec_test {
 
 using testing::SyntheticBundle;
 using testing::SyntheticBundleSpec;
@@ -176,11 +176,11 @@ TEST(BundleCodecTest, PredictorRefusesSamplesBeyondItsMemoryBound) {
   EXPECT_NE(p.status().message().find("bytes allowed"), std::string::npos);
 }
 
-}  // namespace
+}  // namespace bundle_codec_test
 }  // namespace chorus
 
 namespace chorus {
-namespace {
+namespace bundle_codec_test {
 
 // A bundle with a last-layer Laplace member: the factors survive the round trip and give the same
 // predictions; factors that do not describe exactly the last layer are refused with the place.
@@ -210,5 +210,5 @@ TEST(BundleCodecTest, LaplaceMembersRoundTripAndMismatchedFactorsAreRefused) {
       << refused.status().ToString();
 }
 
-}  // namespace
+}  // namespace bundle_codec_test
 }  // namespace chorus

@@ -10,7 +10,7 @@
 #include "data.pb.h"
 
 namespace chorus {
-namespace {
+namespace data_codec_test {
 
 Split RandomSplit(Philox& rng, int64_t rows, int64_t cols, bool classify) {
   Split s;
@@ -142,5 +142,5 @@ TEST(DataCodecTest, DataBytesCountFeaturesLabelsAndTargets) {
   EXPECT_EQ(PreparedDataBytes(r), (300 + 31 + 47) * (5 * 4 + 4));
 }
 
-}  // namespace
+}  // namespace data_codec_test
 }  // namespace chorus

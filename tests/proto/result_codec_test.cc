@@ -15,7 +15,7 @@
 #include "job.pb.h"
 
 namespace chorus {
-namespace {
+namespace result_codec_test {
 
 void MatrixToWire(const Matrix& m, wire::FloatMatrix* out) {
   out->set_rows(m.rows());
@@ -207,11 +207,11 @@ TEST(ResultCodecTest, DecodingTheEncodingGivesTheResultBack) {
   EXPECT_TRUE(b.test_outputs == r.test_outputs);
 }
 
-}  // namespace
+}  // namespace result_codec_test
 }  // namespace chorus
 
 namespace chorus {
-namespace {
+namespace result_codec_test {
 
 TEST(ResultCodecTest, LaplaceFitsRoundTripAndBadFactorsAreRefused) {
   for (uint64_t seed : {7, 8}) {  // a Kronecker fit, then an exact one
@@ -260,5 +260,5 @@ TEST(ResultCodecTest, LaplaceFitsRoundTripAndBadFactorsAreRefused) {
   }
 }
 
-}  // namespace
+}  // namespace result_codec_test
 }  // namespace chorus

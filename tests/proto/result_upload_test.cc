@@ -10,7 +10,7 @@
 #include "common/sha256.h"
 
 namespace chorus {
-namespace {
+namespace result_upload_test {
 
 wire::ResultChunk Chunk(const std::string& payload, int64_t total = -1, const std::string& sha = "") {
   wire::ResultChunk c;
@@ -89,5 +89,5 @@ TEST(ResultUploadTest, CpuSecondsOfTheFirstChunkAreKeptOnlyWhenValid) {
   EXPECT_FALSE(upload_with(MemberResult::CpuSeconds{1, 0, INFINITY}).has_value());
 }
 
-}  // namespace
+}  // namespace result_upload_test
 }  // namespace chorus

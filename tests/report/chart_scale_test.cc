@@ -5,7 +5,7 @@
 #include <string>
 
 namespace chorus {
-namespace {
+namespace chart_scale_test {
 
 TEST(ChartScaleTest, LinearScaleMapsEndsMidpointsAndDescendingRanges) {
   const LinearScale x{0, 10, 100, 200};
@@ -53,5 +53,5 @@ TEST(ChartScaleTest, FormatTickShowsTheDecimalsTheStepNeeds) {
   EXPECT_EQ(FormatTick(20, 10), "20");
 }
 
-}  // namespace
+}  // namespace chart_scale_test
 }  // namespace chorus

@@ -5,7 +5,7 @@
 #include <gtest/gtest.h>
 
 namespace chorus {
-namespace {
+namespace compute_advice_test {
 
 using json = nlohmann::json;
 
@@ -72,5 +72,5 @@ TEST(ComputeAdviceTest, WithoutAnyCostSaysSoAndPricesNothing) {
   for (const json& p : r["size_curve"]) EXPECT_FALSE(p.contains("cpu_seconds"));
 }
 
-}  // namespace
+}  // namespace compute_advice_test
 }  // namespace chorus

@@ -10,7 +10,7 @@
 #include "tests/testing/sample_report.h"
 
 namespace chorus {
-namespace {
+namespace report_html_test {
 
 using nlohmann::json;
 
@@ -135,5 +135,5 @@ TEST(ReportHtmlTest, EscapesTextFromTheReport) {
   EXPECT_EQ(html.find("<b>alarms"), std::string::npos);
 }
 
-}  // namespace
+}  // namespace report_html_test
 }  // namespace chorus

@@ -10,7 +10,7 @@
 #include "tests/testing/sample_report.h"
 
 namespace chorus {
-namespace {
+namespace report_model_test {
 
 using nlohmann::json;
 
@@ -61,5 +61,5 @@ TEST(ReportModelTest, ReadRunReportRefusesMissingAndMalformedFilesWithExitTwo) {
   if (!HasFailure()) std::filesystem::remove_all(dir);
 }
 
-}  // namespace
+}  // namespace report_model_test
 }  // namespace chorus

@@ -6,7 +6,7 @@
 #include <vector>
 
 namespace chorus {
-namespace {
+namespace svg_chart_test {
 
 size_t Count(const std::string& text, const std::string& needle) {
   size_t n = 0;
@@ -85,5 +85,5 @@ TEST(SvgChartTest, BarChartDrawsOneBarPerGroupAndBinFromZero) {
   EXPECT_NE(svg.find("height=\"0.0\""), std::string::npos);
 }
 
-}  // namespace
+}  // namespace svg_chart_test
 }  // namespace chorus

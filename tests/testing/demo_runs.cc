@@ -1,9 +1,14 @@
 #include "tests/testing/demo_runs.h"
 
+#include <fcntl.h>
+#include <sys/file.h>
+#include <unistd.h>
+
 #include <gtest/gtest.h>
 
 #include <filesystem>
 
+#include "common/sha256.h"
 #include "tests/testing/process.h"
 
 namespace chorus::testing {
@@ -44,6 +49,46 @@ std::string RunDemo(const std::string& dir, const std::string& name, const std::
   }
   ADD_FAILURE() << "no run directory under " << out;
   return "";
+}
+
+namespace {
+
+// Size and modification time of an executable: a rebuilt one changes the shared runs' key.
+std::string ExecutableIdentity(const std::string& name) {
+  namespace fs = std::filesystem;
+  const fs::path path = BinaryPath(name);
+  std::error_code ec;
+  const auto size = fs::file_size(path, ec);
+  const auto time = fs::last_write_time(path, ec).time_since_epoch().count();
+  return name + " " + std::to_string(size) + " " + std::to_string(time);
+}
+
+}  // namespace
+
+std::string SharedDemoRun(const std::string& name, const std::string& yaml) {
+  namespace fs = std::filesystem;
+  const std::string key = yaml + "\n" + ExecutableIdentity("chorus") + "\n" +
+                          ExecutableIdentity("chorus-demo-data");
+  const std::string dir = std::string(CHORUS_BINARY_DIR) + "/test-runs/" + name + "-" +
+                          Sha256Hex(key.data(), key.size()).substr(0, 16);
+  fs::create_directories(dir);
+  const int lock = ::open((dir + ".lock").c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+  if (lock < 0 || ::flock(lock, LOCK_EX) != 0) {
+    ADD_FAILURE() << "cannot lock " << dir << ".lock";
+    if (lock >= 0) ::close(lock);
+    return "";
+  }
+  // The marker holds the run directory. A run interrupted half-way (a killed test) has none and
+  // is made again from scratch.
+  const std::string marker = dir + "/complete";
+  if (!fs::exists(marker)) {
+    for (const auto& entry : fs::directory_iterator(dir)) fs::remove_all(entry.path());
+    WriteDemoData(dir);
+    const std::string run = RunDemo(dir, name, yaml);
+    if (!run.empty()) WriteTextFile(marker, run);
+  }
+  ::close(lock);  // releases the lock
+  return fs::exists(marker) ? ReadTextFile(marker) : "";
 }
 
 }  // namespace chorus::testing

@@ -21,4 +21,11 @@ std::string DemoRegressionYaml(const std::string& name, int seed, const std::str
 // and returns "".
 std::string RunDemo(const std::string& dir, const std::string& name, const std::string& yaml);
 
+// RunDemo made once per build for suites whose tests only read the run: CTest starts every test
+// in its own process, so a suite's SetUpTestSuite would otherwise train the same members again
+// for each test. The run lives under CHORUS_BINARY_DIR/test-runs/, keyed by a SHA-256 of `yaml`
+// and of the `chorus` and `chorus-demo-data` executables' sizes and times; processes asking for
+// it at once take turns on a lock file. Returns the run directory, or "" after a test failure.
+std::string SharedDemoRun(const std::string& name, const std::string& yaml);
+
 }  // namespace chorus::testing

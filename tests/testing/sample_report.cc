@@ -23,14 +23,16 @@ std::vector<SizeCurvePoint> SampleGrid() {
   for (int s : {1, 2}) {
     for (int k = 1; k <= 3; ++k) {
       const double q = 0.01 * k + 0.005 * s;
-      const Spread sp{0.9 - q, 0.88 - q, 0.92 - q};
-      grid.push_back({k,
-                      s,
-                      sp,
-                      {0.6 + q, 0.59 + q, 0.62 + q},
-                      {0.07 - q, 0.06 - q, 0.08 - q},
-                      {17 - q, 16.5 - q, 17.5 - q},
-                      {0.89 + q, 0.88 + q, 0.9 + q}});
+      SizeCurvePoint point;
+      point.members = k;
+      point.samples = s;
+      point.nll = {0.9 - q, 0.88 - q, 0.92 - q};
+      point.validation_nll = {0.91 - q, 0.89 - q, 0.93 - q};
+      point.accuracy = {0.6 + q, 0.59 + q, 0.62 + q};
+      point.ece = {0.07 - q, 0.06 - q, 0.08 - q};
+      point.rmse = {17 - q, 16.5 - q, 17.5 - q};
+      point.coverage_90 = {0.89 + q, 0.88 + q, 0.9 + q};
+      grid.push_back(point);
     }
   }
   return grid;

@@ -13,7 +13,7 @@
 #include "tests/testing/reference.h"
 
 namespace chorus {
-namespace {
+namespace worker_exit_log_test {
 
 using nlohmann::json;
 
@@ -63,5 +63,5 @@ TEST(WorkerExitLogTest, LastLineCarriesExitCodeAndTheWorkersOwnPeak) {
   std::filesystem::remove_all(dir);
 }
 
-}  // namespace
+}  // namespace worker_exit_log_test
 }  // namespace chorus
