@@ -176,11 +176,8 @@ class BenchCoordinator {
         service_(Inputs(), &table_, &dir_) {
     service_.AddJobs(bench::TinySpecs(jobs));
     service_.Close();
-    grpc::ServerBuilder builder;
-    builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), &port_);
-    builder.RegisterService(&service_);
-    server_ = builder.BuildAndStart();
-    if (!server_ || port_ == 0) Die("cannot listen on 127.0.0.1");
+    server_ = bench::ServeOnLoopback(&service_, &port_);
+    if (!server_) Die("cannot listen on 127.0.0.1");
   }
   ~BenchCoordinator() { server_->Shutdown(std::chrono::system_clock::now()); }
 

@@ -330,12 +330,8 @@ int Main(double seconds, double token_rate, int idle_streams, int attack_nice) {
     service.AddJobs(bench::TinySpecs(kJobs));
     service.Close();
     int port = 0;
-    grpc::ServerBuilder builder;
-    builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), &port);
-    builder.RegisterService(&service);
-    builder.SetMaxReceiveMessageSize(kMaxReceiveMessageBytes);
-    std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
-    if (!server || port == 0) Die("cannot listen on 127.0.0.1");
+    const std::unique_ptr<grpc::Server> server = bench::ServeOnLoopback(&service, &port);
+    if (!server) Die("cannot listen on 127.0.0.1");
     const std::string target = "127.0.0.1:" + std::to_string(port);
     const auto honest = NewStub(target);
     const std::string worker = Register(honest.get());

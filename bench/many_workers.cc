@@ -20,7 +20,7 @@
 // W simulated workers each have their own channel and TCP connection (as on W machines), register
 // once, then in turn: Lease (timed); on a job, the data from their own cache, fetched by hash
 // (FetchData) the first time only; H heartbeats; then the job's result uploaded as a worker does
-// (WriteJobResult twice: SHA-256 and size, then 1 MiB chunks into the stream). The result is one
+// (CoordinatorClient::UploadJobResult: SHA-256 and size, then 1 MiB chunks into the stream). The result is one
 // member of the bench data trained once at start-up (TrainMember), relabelled with each job's
 // index and seed: valid bytes the coordinator decodes, checks and stores as the job's result.
 // A worker told WAIT asks again after the retry delay; told DONE, it stops. The coordinator's
@@ -73,19 +73,19 @@
 #include <initializer_list>
 #include <map>
 #include <memory>
+#include <optional>
+#include <string_view>
 #include <thread>
 #include <vector>
 
 #include "bench/service_bench.h"
 #include "common/data_hash.h"
 #include "common/rng.h"
-#include "common/sha256.h"
 #include "coordinator/coordinator_service.h"
 #include "coordinator/progress_view.h"
 #include "proto/data_codec.h"
-#include "proto/result_codec.h"
-#include "proto/result_upload.h"
 #include "proto/spec_codec.h"
+#include "worker/coordinator_client.h"
 
 namespace chorus {
 namespace {
@@ -97,8 +97,8 @@ constexpr char kConfigHash[] = "many-workers-bench-config";
 constexpr double kLeaseSeconds = 30;  // chorus run's default lease
 constexpr int kMaxAttempts = 3;       // chorus run's default
 constexpr double kJobSeconds = 60;    // the job length the overhead is stated for
-constexpr double kCallSeconds = 30;   // deadlines as worker/coordinator_client.cc sets them
-constexpr double kStreamSeconds = 3600;
+
+constexpr int64_t kMaxFetchBytes = int64_t{1} << 30;  // the bench data set is 46 KB
 
 [[noreturn]] void Die(const std::string& why) {
   std::fprintf(stderr, "chorus-bench-many-workers: %s\n", why.c_str());
@@ -202,12 +202,8 @@ bool ServeIn(const std::string& scratch, int jobs) {
   service.AddJobs(BenchSpecs(jobs));
   service.Close();
   int port = 0;
-  grpc::ServerBuilder builder;
-  builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), &port);
-  builder.RegisterService(&service);
-  builder.SetMaxReceiveMessageSize(kMaxReceiveMessageBytes);
-  std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
-  if (!server || port == 0) Die("cannot listen on 127.0.0.1");
+  const std::unique_ptr<grpc::Server> server = bench::ServeOnLoopback(&service, &port);
+  if (!server) Die("cannot listen on 127.0.0.1");
   std::printf("ready port=%d cpu_s=%.6f rss_kib=%ld data_bytes=%zu\n", port, ProcessCpuSeconds(),
               StatusKib("VmRSS:"), data_bytes.size());
   std::fflush(stdout);
@@ -320,26 +316,19 @@ struct Tally {
   }
 };
 
-std::unique_ptr<grpc::ClientContext> Context(double seconds) {
-  auto ctx = std::make_unique<grpc::ClientContext>();
-  ctx->AddMetadata("x-chorus-token", kToken);
-  ctx->set_deadline(std::chrono::system_clock::now() +
-                    std::chrono::milliseconds(static_cast<int64_t>(seconds * 1000)));
-  return ctx;
-}
-
-// One simulated worker: its own channel with the worker's channel settings
-// (worker/coordinator_client.cc) and a local subchannel pool, so its own TCP connection (gRPC
-// would otherwise share one connection among all channels of a process); its id; its data cache.
+// One simulated worker: the worker's own client (worker/coordinator_client.h) with a connection
+// of its own (gRPC would otherwise share one connection among all the clients of a process); its
+// id; its data cache.
 class SimulatedWorker {
  public:
   SimulatedWorker(const std::string& target, const MemberResult* result) : result_(result) {
-    grpc::ChannelArguments args;
-    args.SetInt(GRPC_ARG_USE_LOCAL_SUBCHANNEL_POOL, 1);
-    args.SetMaxReceiveMessageSize(4 << 20);
-    args.SetInt(GRPC_ARG_HTTP2_BDP_PROBE, 0);
-    args.SetInt(GRPC_ARG_HTTP2_STREAM_LOOKAHEAD_BYTES, 4 << 20);
-    stub_ = wire::Coordinator::NewStub(grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args));
+    ConnectionOptions options;
+    options.target = target;
+    options.token = kToken;
+    options.own_connection = true;
+    StatusOr<std::unique_ptr<CoordinatorClient>> client = CoordinatorClient::Create(options);
+    if (!client.ok()) Die("a worker cannot connect: " + client.status().ToString());
+    client_ = std::move(client).value();
   }
 
   void Register() {
@@ -348,7 +337,7 @@ class SimulatedWorker {
     req.set_slots(1);
     req.set_pid(static_cast<int>(getpid()));
     wire::RegisterReply reply;
-    if (!stub_->Register(Context(kCallSeconds).get(), req, &reply).ok()) Die("a worker cannot register");
+    if (!client_->Register(req, &reply).ok()) Die("a worker cannot register");
     id_ = reply.worker_id();
   }
 
@@ -361,11 +350,11 @@ class SimulatedWorker {
     req.set_worker_id(id_);
     wire::LeaseReply lease;
     const auto start = BenchClock::now();
-    const grpc::Status st = stub_->Lease(Context(kCallSeconds).get(), req, &lease);
+    const Status st = client_->Lease(req, &lease);
     tally.lease_ms.push_back(Seconds(BenchClock::now() - start) * 1e3);
     next_turn_ = BenchClock::now();
     if (!st.ok()) {
-      tally.Error("Lease: " + st.error_message());
+      tally.Error(st.ToString());
       next_turn_ += std::chrono::milliseconds(250);
     } else if (lease.kind() == wire::LeaseReply::DONE) {
       done_ = true;
@@ -395,18 +384,21 @@ class SimulatedWorker {
       req.set_epochs(heartbeats);
       req.set_loss(0.5);
       wire::HeartbeatReply reply;
-      const grpc::Status st = stub_->Heartbeat(Context(kCallSeconds).get(), req, &reply);
-      if (!st.ok() || !reply.keep_going()) tally.Error("Heartbeat: " + (st.ok() ? "lease gone" : st.error_message()));
+      const Status st = client_->Heartbeat(req, &reply);
+      if (!st.ok() || !reply.keep_going()) tally.Error(st.ok() ? "Heartbeat: lease gone" : st.ToString());
     }
     MemberResult result = *result_;
     result.index = spec.value().index;
     result.seed = spec.value().seed;
     const std::vector<int> widths = NetworkFor(spec.value().model, *data.value()).widths();
-    const Status uploaded = Upload(lease, result, widths);
-    if (uploaded.ok()) {
-      ++tally.uploads;
-    } else {
+    wire::UploadReply reply;
+    const Status uploaded = client_->UploadJobResult(id_, lease, widths, result, &reply);
+    if (!uploaded.ok()) {
       tally.Error(uploaded.ToString());
+    } else if (reply.outcome() != wire::UploadReply::ACCEPTED) {
+      tally.Error("UploadResult: not accepted");
+    } else {
+      ++tally.uploads;
     }
   }
 
@@ -414,64 +406,26 @@ class SimulatedWorker {
   StatusOr<const PreparedData*> Data(const std::string& hash, Tally& tally) {
     const auto cached = cache_.find(hash);
     if (cached != cache_.end()) return cached->second.get();
-    auto ctx = Context(kStreamSeconds);
-    wire::FetchDataRequest req;
-    req.set_data_hash(hash);
-    auto reader = stub_->FetchData(ctx.get(), req);
-    std::string bytes, sha256;
-    for (wire::DataChunk chunk; reader->Read(&chunk);) {
-      if (bytes.empty()) sha256 = chunk.sha256();
-      bytes += chunk.payload();
-    }
+    int64_t bytes = 0;
+    std::optional<PreparedData> data;
+    CHORUS_RETURN_IF_ERROR(client_->FetchData(
+        hash, kMaxFetchBytes,
+        [&](google::protobuf::io::ZeroCopyInputStream* in) {
+          StatusOr<PreparedData> decoded = DecodePreparedData(in, "fetched data", hash);
+          CHORUS_RETURN_IF_ERROR(decoded.status());
+          data = std::move(decoded).value();
+          return Status::Ok();
+        },
+        [&](std::string_view piece) {
+          bytes += static_cast<int64_t>(piece.size());
+          return Status::Ok();
+        }));
     ++tally.fetches;
-    tally.fetch_bytes += static_cast<int64_t>(bytes.size());
-    const grpc::Status st = reader->Finish();
-    if (!st.ok()) return Status::Unavailable("FetchData: " + st.error_message());
-    if (Sha256Hex(bytes.data(), bytes.size()) != sha256) return Status::Unavailable("FetchData: corrupted");
-    CHORUS_ASSIGN_OR_RETURN(PreparedData data, DecodePreparedData(bytes, "fetched data", hash));
-    return (cache_[hash] = std::make_unique<PreparedData>(std::move(data))).get();
+    tally.fetch_bytes += bytes;
+    return (cache_[hash] = std::make_unique<PreparedData>(std::move(*data))).get();
   }
 
-  // As worker/worker_loop.cc Upload and CoordinatorClient::UploadResult: one encoding pass for
-  // the size and SHA-256 the first chunk announces, a second into the stream. OK if accepted.
-  Status Upload(const wire::LeaseReply& lease, const MemberResult& result, const std::vector<int>& widths) {
-    const auto write = [&](const ByteSink& sink) {
-      return WriteJobResult(result, widths, lease.data_hash(), lease.config_hash(), sink);
-    };
-    Sha256 sha;
-    int64_t total = 0;
-    write([&](const char* bytes, size_t n) {
-      sha.Update(bytes, n);
-      total += static_cast<int64_t>(n);
-      return true;
-    });
-    auto ctx = Context(kStreamSeconds);
-    wire::UploadReply reply;
-    auto writer = stub_->UploadResult(ctx.get(), &reply);
-    wire::ResultChunk chunk;
-    chunk.set_worker_id(id_);
-    chunk.set_job_id(lease.job_id());
-    chunk.set_lease_id(lease.lease_id());
-    chunk.set_total_bytes(total);
-    chunk.set_sha256(sha.FinishHex());
-    *chunk.mutable_cpu_seconds() = CpuSecondsToWire(result.cpu_seconds);
-    bool first = true;
-    const bool written = write([&](const char* bytes, size_t n) {
-      chunk.set_payload(bytes, n);
-      if (!writer->Write(chunk)) return false;
-      if (first) chunk.Clear();
-      first = false;
-      return true;
-    });
-    writer->WritesDone();
-    const grpc::Status st = writer->Finish();
-    if (!st.ok()) return Status::Unavailable("UploadResult: " + st.error_message());
-    if (!written) return Status::Unavailable("UploadResult: the stream closed early");
-    if (reply.outcome() != wire::UploadReply::ACCEPTED) return Status::Internal("UploadResult: not accepted");
-    return Status::Ok();
-  }
-
-  std::unique_ptr<wire::Coordinator::Stub> stub_;
+  std::unique_ptr<CoordinatorClient> client_;
   const MemberResult* result_;
   std::string id_;
   std::map<std::string, std::unique_ptr<PreparedData>> cache_;
@@ -479,8 +433,6 @@ class SimulatedWorker {
   BenchClock::time_point next_turn_;
 };
 
-// Runs `workers` (this thread's share) until every one is told DONE: each ready worker takes a
-// turn in order; when none is ready, sleeps until the first is.
 void DriveWorkers(const std::vector<SimulatedWorker*>& workers, int heartbeats, Tally& tally) {
   for (SimulatedWorker* w : workers) w->Register();
   while (true) {

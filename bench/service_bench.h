@@ -1,7 +1,7 @@
 // What the benchmarks of the coordinator's service (bench/coordinator_capacity.cc,
-// bench/hostile_peers.cc) share: the smallest data set and member specs a coordinator can serve
-// (the data only has to exist and encode, and no job is trained), a nearest-rank percentile and
-// the machine line.
+// bench/hostile_peers.cc, bench/many_workers.cc) share: the smallest data set and member specs a
+// coordinator can serve (the data only has to exist and encode, and no job is trained), a server
+// on loopback, a nearest-rank percentile and the machine line.
 #pragma once
 
 #include <algorithm>
@@ -12,8 +12,11 @@
 #include <thread>
 #include <vector>
 
+#include <grpcpp/grpcpp.h>
+
 #include "common/member_training.h"
 #include "common/prepared_data.h"
+#include "coordinator/service_limits.h"
 
 namespace chorus::bench {
 
@@ -40,6 +43,17 @@ inline std::vector<MemberSpec> TinySpecs(int jobs) {
     specs[i].train.epochs = 1;
   }
   return specs;
+}
+
+// A gRPC server for `service` on 127.0.0.1 at an ephemeral port (written to *port), bounding
+// received messages as `chorus run` does (coordinator/service_limits.h); null if it cannot listen.
+inline std::unique_ptr<grpc::Server> ServeOnLoopback(grpc::Service* service, int* port) {
+  grpc::ServerBuilder builder;
+  builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), port);
+  builder.RegisterService(service);
+  builder.SetMaxReceiveMessageSize(kMaxReceiveMessageBytes);
+  std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
+  return server && *port != 0 ? std::move(server) : nullptr;
 }
 
 // Nearest-rank percentile (q in [0, 1]) of `v`, which it sorts; 0 for an empty vector.

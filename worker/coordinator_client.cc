@@ -8,6 +8,7 @@
 
 #include "common/file_util.h"
 #include "common/sha256.h"
+#include "proto/result_upload.h"
 
 namespace chorus {
 namespace {
@@ -158,6 +159,7 @@ StatusOr<std::unique_ptr<CoordinatorClient>> CoordinatorClient::Create(const Con
   // heap after): the window bounds what is in flight; 4 MiB keeps a LAN or WAN link busy.
   args.SetInt(GRPC_ARG_HTTP2_BDP_PROBE, 0);
   args.SetInt(GRPC_ARG_HTTP2_STREAM_LOOKAHEAD_BYTES, kReceiveWindowBytes);
+  if (o.own_connection) args.SetInt(GRPC_ARG_USE_LOCAL_SUBCHANNEL_POOL, 1);
   auto channel = grpc::CreateCustomChannel(o.target, creds, args);
   return std::unique_ptr<CoordinatorClient>(
       new CoordinatorClient(wire::Coordinator::NewStub(channel), o.token));
@@ -231,6 +233,23 @@ Status CoordinatorClient::UploadResult(const std::string& worker_id, const std::
   const Status st = FromGrpc(writer->Finish(), "UploadResult");
   if (st.ok() && !written) return Status::Unavailable("UploadResult: the stream closed early");
   return st;
+}
+
+Status CoordinatorClient::UploadJobResult(const std::string& worker_id, const wire::LeaseReply& lease,
+                                          const std::vector<int>& widths, const MemberResult& result,
+                                          wire::UploadReply* reply) {
+  const auto write = [&](const ByteSink& sink) {
+    return WriteJobResult(result, widths, lease.data_hash(), lease.config_hash(), sink);
+  };
+  Sha256 sha;
+  int64_t total = 0;
+  write([&](const char* bytes, size_t n) {
+    sha.Update(bytes, n);
+    total += static_cast<int64_t>(n);
+    return true;
+  });
+  return UploadResult(worker_id, lease.job_id(), lease.lease_id(), total, sha.FinishHex(),
+                      CpuSecondsToWire(result.cpu_seconds), write, reply);
 }
 
 }  // namespace chorus

@@ -7,6 +7,7 @@
 #include <memory>
 #include <string>
 #include <string_view>
+#include <vector>
 
 #include "common/status.h"
 #include "proto/result_codec.h"
@@ -24,6 +25,9 @@ struct ConnectionOptions {
   std::string tls_ca;     // PEM file of the CA to trust; empty = plaintext (loopback only)
   std::string tls_cert;   // optional client certificate and key (PEM files) for mutual TLS
   std::string tls_key;
+  // A TCP connection of this client's own: gRPC otherwise shares one connection among all the
+  // channels of a process to the same target. For simulating many workers in one process.
+  bool own_connection = false;
 };
 
 class CoordinatorClient {
@@ -62,6 +66,13 @@ class CoordinatorClient {
                       int64_t total_bytes, const std::string& sha256,
                       const wire::JobCpuSeconds& cpu_seconds, const WriteResultFn& write,
                       wire::UploadReply* reply);
+
+  // UploadResult of `result` encoded for `lease` (proto/result_codec.h WriteJobResult): one
+  // encoding pass for the size and SHA-256 the first chunk announces, a second into the stream,
+  // so the result is never in memory twice. One attempt; retrying is the caller's choice.
+  Status UploadJobResult(const std::string& worker_id, const wire::LeaseReply& lease,
+                         const std::vector<int>& widths, const MemberResult& result,
+                         wire::UploadReply* reply);
 
  private:
   CoordinatorClient(std::unique_ptr<wire::Coordinator::Stub> stub, std::string token)

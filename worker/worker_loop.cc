@@ -15,10 +15,7 @@
 #include "common/host_name.h"
 #include "common/log_format.h"
 #include "common/member_training.h"
-#include "common/sha256.h"
 #include "execution/job_slots.h"
-#include "proto/result_codec.h"
-#include "proto/result_upload.h"
 #include "proto/spec_codec.h"
 #include "worker/data_cache.h"
 
@@ -161,29 +158,15 @@ struct Shared {
 // its upload slots taken). Seconds.
 constexpr double kUploadRetrySeconds = 300;
 
-// Sends a result without a second copy of it in memory: one encoding pass for its size and
-// SHA-256 (which the protocol's first chunk carries), then a second straight into the upload
-// stream, repeated with backoff while the coordinator answers kUnavailable, up to
-// kUploadRetrySeconds or until stopped.
+// Sends a result (CoordinatorClient::UploadJobResult), repeated with backoff while the
+// coordinator answers kUnavailable, up to kUploadRetrySeconds or until stopped.
 Status Upload(const Shared& s, const std::string& worker_id, const wire::LeaseReply& lease,
               const std::vector<int>& widths, const MemberResult& result) {
-  const auto write = [&](const ByteSink& sink) {
-    return WriteJobResult(result, widths, lease.data_hash(), lease.config_hash(), sink);
-  };
-  Sha256 sha;
-  int64_t total = 0;
-  write([&](const char* bytes, size_t n) {
-    sha.Update(bytes, n);
-    total += static_cast<int64_t>(n);
-    return true;
-  });
-  const std::string sha256 = sha.FinishHex();
   const auto give_up = SteadyClock::now() + duration<double>(kUploadRetrySeconds);
   double backoff = 0.25;
   while (true) {
     wire::UploadReply reply;
-    const Status st = s.client->UploadResult(worker_id, lease.job_id(), lease.lease_id(), total, sha256,
-                                             CpuSecondsToWire(result.cpu_seconds), write, &reply);
+    const Status st = s.client->UploadJobResult(worker_id, lease, widths, result, &reply);
     if (st.code() != Status::Code::kUnavailable || s.stop.load() || SteadyClock::now() >= give_up) return st;
     LogPrintf(stderr, LogLevel::kWarning, "chorus-worker: upload of job %s: %s; retrying in %.1fs",
               lease.job_id().c_str(), st.ToString().c_str(), backoff);
