@@ -15,9 +15,11 @@ constexpr int kScaleGridPoints = 41;
 constexpr double kLogScaleTolerance = 1e-6;
 
 // out_i += w softmax(z_i / T), softmax(x)_k = exp(x_k - max x) / sum_j exp(x_j - max x).
+// One row buffer for all rows (the tuning calls this tens of times per subset).
 void AddWeightedSoftmax(const Matrix& logits, double weight, double temperature, MatrixD* out) {
+  Eigen::RowVectorXd x(logits.cols());
   for (Eigen::Index i = 0; i < logits.rows(); ++i) {
-    Eigen::RowVectorXd x = logits.row(i).cast<double>() / temperature;
+    x = logits.row(i).cast<double>() / temperature;
     x = (x.array() - x.maxCoeff()).exp();
     out->row(i) += (weight / x.sum()) * x;
   }
@@ -27,8 +29,9 @@ void AddWeightedSoftmax(const Matrix& logits, double weight, double temperature,
 Eigen::VectorXd LabelLogSoftmax(const Matrix& logits, const std::vector<int32_t>& labels,
                                 double temperature) {
   Eigen::VectorXd out(logits.rows());
+  Eigen::RowVectorXd x(logits.cols());
   for (Eigen::Index i = 0; i < logits.rows(); ++i) {
-    const Eigen::RowVectorXd x = logits.row(i).cast<double>() / temperature;
+    x = logits.row(i).cast<double>() / temperature;
     const double max = x.maxCoeff();
     out(i) = x(labels[i]) - max - std::log((x.array() - max).exp().sum());
   }

@@ -62,7 +62,7 @@ MemberSamples Points(const std::vector<MemberResult>& members, bool validation) 
 
 void EvaluateClassification(const PreparedData& data, const std::vector<MemberResult>& members,
                             const EnsembleConfig& ens, const ReportConfig& rep, uint64_t seed,
-                            EnsembleEvaluation& ev) {
+                            const ParallelFor* parallel, EnsembleEvaluation& ev) {
   MemberSamples val, test;
   for (const MemberResult& m : members) {
     val.push_back(m.ValidationSamples());
@@ -83,7 +83,7 @@ void EvaluateClassification(const PreparedData& data, const std::vector<MemberRe
   ClassificationReliability(test, y_test, rep.ece_bins, ev);
   const auto curve_start = std::chrono::steady_clock::now();
   ev.size_curve = ClassificationSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets,
-                                         rep.ece_bins, seed);
+                                         rep.ece_bins, seed, parallel);
   ev.size_curve_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - curve_start).count();
 }
 
@@ -127,7 +127,7 @@ GaussianViews ToGaussians(const std::vector<MemberResult>& members, const Prepar
 
 void EvaluateRegression(const PreparedData& data, const std::vector<MemberResult>& members,
                         const EnsembleConfig& ens, const ReportConfig& rep, uint64_t seed,
-                        EnsembleEvaluation& ev) {
+                        const ParallelFor* parallel, EnsembleEvaluation& ev) {
   const GaussianViews val_g = ToGaussians(members, data, true), test_g = ToGaussians(members, data, false);
   const MemberSampleGaussians val = val_g.SamplePointers(), test = test_g.SamplePointers();
   const std::vector<double> y_val = OriginalTargets(data.validation, data);
@@ -141,7 +141,8 @@ void EvaluateRegression(const PreparedData& data, const std::vector<MemberResult
   RegressionCalibration(test, y_test, ev);
   ev.diversity = RegressionDiversitySummary(test);
   const auto curve_start = std::chrono::steady_clock::now();
-  ev.size_curve = RegressionSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets, seed);
+  ev.size_curve = RegressionSizeGrid(val, y_val, test, y_test, rep.size_curve_subsets, seed,
+                                     parallel);
   ev.size_curve_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - curve_start).count();
 }
 
@@ -158,7 +159,8 @@ MemberGaussian ToGaussian(const Matrix& outputs, const PreparedData& data) {
 
 EnsembleEvaluation EvaluateEnsemble(const PreparedData& data, const std::vector<MemberResult>& members,
                                     const EnsembleConfig& ensemble, const ReportConfig& report,
-                                    uint64_t seed, const Matrix* true_probabilities) {
+                                    uint64_t seed, const Matrix* true_probabilities,
+                                    const ParallelFor* parallel) {
   EnsembleEvaluation ev;
   ev.task = data.task;
   ev.weighting = ensemble.weighting;
@@ -166,9 +168,9 @@ EnsembleEvaluation EvaluateEnsemble(const PreparedData& data, const std::vector<
   for (const MemberResult& m : members) ev.members.push_back({m.index, m.seed, 1, {}, {}, 0.0});
   const uint64_t curve_seed = Derive(seed, "size_curve");
   if (data.task == Task::kClassification) {
-    EvaluateClassification(data, members, ensemble, report, curve_seed, ev);
+    EvaluateClassification(data, members, ensemble, report, curve_seed, parallel, ev);
   } else {
-    EvaluateRegression(data, members, ensemble, report, curve_seed, ev);
+    EvaluateRegression(data, members, ensemble, report, curve_seed, parallel, ev);
   }
   ev.mean_member = MeanMemberScores(ev.members);
   ev.best_member = BestMember(ev.members);

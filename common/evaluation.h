@@ -19,6 +19,7 @@
 #include "common/ensemble_evaluation.h"
 #include "common/matrix.h"
 #include "common/member_training.h"
+#include "common/parallel_for.h"
 #include "common/prepared_data.h"
 
 namespace chorus {
@@ -29,10 +30,12 @@ MemberGaussian ToGaussian(const Matrix& outputs, const PreparedData& data);
 
 // Requires at least one member; every member's outputs match the data's validation/test rows and
 // every member has the same number of samples. true_probabilities: optional test rows x classes
-// matrix of the data's true class probabilities.
+// matrix of the data's true class probabilities. The size grid's subsets are scored through
+// `parallel` (null: on this thread); the result does not depend on it.
 EnsembleEvaluation EvaluateEnsemble(const PreparedData& data,
                                     const std::vector<MemberResult>& members,
                                     const EnsembleConfig& ensemble, const ReportConfig& report,
-                                    uint64_t seed, const Matrix* true_probabilities);
+                                    uint64_t seed, const Matrix* true_probabilities,
+                                    const ParallelFor* parallel = nullptr);
 
 }  // namespace chorus

@@ -5,6 +5,7 @@
 #include <functional>
 #include <numeric>
 
+#include "common/parallel_for.h"
 #include "common/rng.h"
 
 namespace chorus {
@@ -12,9 +13,17 @@ namespace {
 
 using Subset = std::vector<int>;  // member indices, ascending
 
-// One subset's scores, one entry per metric that the task fills.
+// Subsets' scores, one entry per subset in each metric that the task fills.
 struct SubsetScores {
   std::vector<double> nll, validation_nll, accuracy, ece, rmse, coverage_90;
+
+  void Append(const SubsetScores& more) {
+    for (auto [to, from] : {std::pair{&nll, &more.nll}, {&validation_nll, &more.validation_nll},
+                            {&accuracy, &more.accuracy}, {&ece, &more.ece}, {&rmse, &more.rmse},
+                            {&coverage_90, &more.coverage_90}}) {
+      to->insert(to->end(), from->begin(), from->end());
+    }
+  }
 };
 
 // C(n, k) by C(n - k + j, j) = C(n - k + j - 1, j - 1) (n - k + j) / j, or cap + 1 once above cap.
@@ -86,28 +95,46 @@ std::vector<std::vector<const T*>> OneSampleEach(const std::vector<const T*>& me
 }
 
 // For s in SampleGrid(samples), k = 1..members: scores every chosen subset with
-// score(subset, s) and summarises each metric. Subsets for each (k, s) come from one stream.
+// score(subset, s) and summarises each metric. Subsets for each (k, s) come from one stream, drawn
+// first; then every subset is scored, through `parallel` (may be null), into a slot of its own.
 std::vector<SizeCurvePoint> SizeGrid(
-    int members, int samples, int subsets, uint64_t seed,
+    int members, int samples, int subsets, uint64_t seed, const ParallelFor* parallel,
     const std::function<void(const Subset&, int, SubsetScores*)>& score) {
   assert(subsets >= 1);
+  struct Scoring {
+    size_t point;  // index into `curve`
+    int samples;
+    Subset subset;
+  };
   Philox rng(seed);
   std::vector<SizeCurvePoint> curve;
+  std::vector<Scoring> scorings;
   for (int s : SampleGrid(samples)) {
     for (int k : MemberGrid(members)) {
-      SubsetScores scores;
-      for (const Subset& subset : ChooseSubsets(members, k, subsets, &rng)) score(subset, s, &scores);
+      for (Subset& subset : ChooseSubsets(members, k, subsets, &rng)) {
+        scorings.push_back({curve.size(), s, std::move(subset)});
+      }
       SizeCurvePoint point;
       point.members = k;
       point.samples = s;
-      point.nll = Summarise(scores.nll);
-      point.validation_nll = Summarise(scores.validation_nll);
-      point.accuracy = Summarise(scores.accuracy);
-      point.ece = Summarise(scores.ece);
-      point.rmse = Summarise(scores.rmse);
-      point.coverage_90 = Summarise(scores.coverage_90);
       curve.push_back(point);
     }
+  }
+  std::vector<SubsetScores> scored(scorings.size());
+  ParallelForEach(parallel, static_cast<int64_t>(scorings.size()), [&](int64_t i) {
+    score(scorings[i].subset, scorings[i].samples, &scored[i]);
+  });
+  std::vector<SubsetScores> by_point(curve.size());
+  for (size_t i = 0; i < scorings.size(); ++i) by_point[scorings[i].point].Append(scored[i]);
+  for (size_t p = 0; p < curve.size(); ++p) {
+    SizeCurvePoint& point = curve[p];
+    const SubsetScores& scores = by_point[p];
+    point.nll = Summarise(scores.nll);
+    point.validation_nll = Summarise(scores.validation_nll);
+    point.accuracy = Summarise(scores.accuracy);
+    point.ece = Summarise(scores.ece);
+    point.rmse = Summarise(scores.rmse);
+    point.coverage_90 = Summarise(scores.coverage_90);
   }
   return curve;
 }
@@ -138,7 +165,7 @@ std::vector<int> MemberGrid(int members) {
 std::vector<SizeCurvePoint> ClassificationSizeGrid(
     const MemberSamples& validation_logits, const std::vector<int32_t>& validation_labels,
     const MemberSamples& test_logits, const std::vector<int32_t>& test_labels, int subsets,
-    int ece_bins, uint64_t seed) {
+    int ece_bins, uint64_t seed, const ParallelFor* parallel) {
   assert(validation_logits.size() == test_logits.size() && !test_logits.empty());
   const auto score = [&](const Subset& subset, int samples, SubsetScores* scores) {
     const std::vector<double> weights(subset.size() * samples, 1.0 / (subset.size() * samples));
@@ -153,13 +180,13 @@ std::vector<SizeCurvePoint> ClassificationSizeGrid(
     scores->ece.push_back(metrics.ece);
   };
   return SizeGrid(static_cast<int>(test_logits.size()), static_cast<int>(test_logits[0].size()),
-                  subsets, seed, score);
+                  subsets, seed, parallel, score);
 }
 
 std::vector<SizeCurvePoint> RegressionSizeGrid(
     const MemberSampleGaussians& validation, const std::vector<double>& validation_targets,
     const MemberSampleGaussians& test, const std::vector<double>& test_targets, int subsets,
-    uint64_t seed) {
+    uint64_t seed, const ParallelFor* parallel) {
   assert(validation.size() == test.size() && !test.empty());
   const auto score = [&](const Subset& subset, int samples, SubsetScores* scores) {
     const std::vector<double> weights(subset.size() * samples, 1.0 / (subset.size() * samples));
@@ -174,7 +201,7 @@ std::vector<SizeCurvePoint> RegressionSizeGrid(
     scores->coverage_90.push_back(metrics.coverage_90);
   };
   return SizeGrid(static_cast<int>(test.size()), static_cast<int>(test[0].size()), subsets, seed,
-                  score);
+                  parallel, score);
 }
 
 std::vector<SizeCurvePoint> ClassificationSizeCurve(

@@ -7,6 +7,7 @@
 
 #include "common/assembly.h"
 #include "common/matrix.h"
+#include "common/parallel_for.h"
 
 namespace chorus {
 
@@ -30,7 +31,8 @@ struct SizeCurvePoint {
 // Members given as their samples' outputs: samples[m][s] is member m's sample s (all members must
 // have the same number S of samples). The grid is k in MemberGrid(M) members times s in SampleGrid(S)
 // samples per member (the first s of each); each point's subsets are drawn as above and each
-// subset is the uniform mixture of its k * s components, temperature tuned on validation.
+// subset is the uniform mixture of its k * s components, temperature tuned on validation. The
+// subsets are scored through `parallel` (null: one after another); the result is the same.
 using MemberSamples = std::vector<std::vector<const Matrix*>>;
 using MemberSampleGaussians = std::vector<std::vector<const MemberGaussian*>>;
 
@@ -45,12 +47,12 @@ std::vector<int> MemberGrid(int members);
 std::vector<SizeCurvePoint> ClassificationSizeGrid(
     const MemberSamples& validation_logits, const std::vector<int32_t>& validation_labels,
     const MemberSamples& test_logits, const std::vector<int32_t>& test_labels, int subsets,
-    int ece_bins, uint64_t seed);
+    int ece_bins, uint64_t seed, const ParallelFor* parallel = nullptr);
 
 std::vector<SizeCurvePoint> RegressionSizeGrid(
     const MemberSampleGaussians& validation, const std::vector<double>& validation_targets,
     const MemberSampleGaussians& test, const std::vector<double>& test_targets, int subsets,
-    uint64_t seed);
+    uint64_t seed, const ParallelFor* parallel = nullptr);
 
 // One sample per member: the grid's s = 1 row.
 std::vector<SizeCurvePoint> ClassificationSizeCurve(

@@ -1,5 +1,7 @@
 #include "coordinator/run_command.h"
 
+#include <tbb/task_arena.h>
+
 #include <cstdio>
 #include <filesystem>
 #include <thread>
@@ -31,6 +33,7 @@
 #include "coordinator/run_phases.h"
 #include "report/report_model.h"
 #include "coordinator/terminal.h"
+#include "execution/tbb_parallel_for.h"
 
 namespace chorus {
 namespace {
@@ -171,9 +174,15 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
   const std::optional<PreparedData> out_of_fold =
       in.data.folds > 0 ? std::optional<PreparedData>(OutOfFoldView(in.data)) : std::nullopt;
   const PreparedData& assembly_data = out_of_fold ? *out_of_fold : in.data;
-  const EnsembleEvaluation ev = EvaluateEnsemble(assembly_data, members, assembled.ensemble, in.config.report,
-                                                 in.config.run.seed,
-                                                 in.true_probabilities ? &*in.true_probabilities : nullptr);
+  // The size grid's subsets are scored on as many threads as members trained at once.
+  tbb::task_arena arena(in.config.compute.threads > 0 ? in.config.compute.threads
+                                                      : tbb::task_arena::automatic);
+  const TbbParallelFor parallel;
+  EnsembleEvaluation ev;
+  arena.execute([&] {
+    ev = EvaluateEnsemble(assembly_data, members, assembled.ensemble, in.config.report, in.config.run.seed,
+                          in.true_probabilities ? &*in.true_probabilities : nullptr, &parallel);
+  });
   phases.Part("size grid", ev.size_curve_seconds);
   phases.End("weights, temperature and test scores");
   const RunFacts facts{in.config.run.name, in.data.hash, in.config_hash, in.config.ensemble.members,

@@ -1,6 +1,7 @@
 #include "common/assembly.h"
 
 #include <gtest/gtest.h>
+#include <tbb/task_arena.h>
 
 #include <algorithm>
 #include <cmath>
@@ -11,6 +12,7 @@
 
 #include "common/rng.h"
 #include "common/size_curve.h"
+#include "execution/tbb_parallel_for.h"
 #include "tests/testing/reference.h"
 
 namespace chorus {
@@ -331,6 +333,35 @@ TEST(SizeCurveTest, SubsetsAreDeterministicForASeed) {
   }
   // k = 2..5 have more than 3 distinct subsets, so another seed draws other subsets.
   EXPECT_TRUE(seed_matters);
+}
+
+// The subsets are scored in any order on any threads, each into its own slot: the grid is the
+// same, bit for bit, as one thread scoring them in order.
+TEST(SizeCurveTest, ScoringSubsetsOnThreadsGivesTheSameGrid) {
+  const Ensemble e = RandomEnsemble(7, 300, 4, 97);
+  MemberSamples validation, test;
+  for (const Matrix* m : e.Validation()) validation.push_back({m, m});
+  for (const Matrix* m : e.Test()) test.push_back({m, m});
+  const auto serial = ClassificationSizeGrid(validation, e.validation_labels, test, e.test_labels, 4, 10, 3);
+  tbb::task_arena arena(2);
+  const TbbParallelFor parallel;
+  std::vector<SizeCurvePoint> threaded;
+  arena.execute([&] {
+    threaded = ClassificationSizeGrid(validation, e.validation_labels, test, e.test_labels, 4, 10, 3, &parallel);
+  });
+  ASSERT_EQ(serial.size(), threaded.size());
+  for (size_t p = 0; p < serial.size(); ++p) {
+    EXPECT_EQ(serial[p].members, threaded[p].members);
+    EXPECT_EQ(serial[p].samples, threaded[p].samples);
+    for (auto field : {&SizeCurvePoint::nll, &SizeCurvePoint::validation_nll, &SizeCurvePoint::accuracy,
+                       &SizeCurvePoint::ece}) {
+      EXPECT_EQ((serial[p].*field).mean, (threaded[p].*field).mean) << "point " << p;
+      EXPECT_EQ((serial[p].*field).min, (threaded[p].*field).min) << "point " << p;
+      EXPECT_EQ((serial[p].*field).max, (threaded[p].*field).max) << "point " << p;
+    }
+  }
+  EXPECT_EQ(serial.back().members, 7);
+  EXPECT_EQ(serial.back().samples, 2);
 }
 
 }  // namespace assembly_test
