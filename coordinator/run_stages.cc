@@ -7,6 +7,7 @@
 #include "common/file_util.h"
 #include "common/folds.h"
 #include "common/log_format.h"
+#include "coordinator/slot_rounds.h"
 #include "proto/result_codec.h"
 
 namespace chorus {
@@ -33,8 +34,10 @@ struct StageResults {
 
 class StageRunner {
  public:
-  StageRunner(const PreparedData& data, const std::string& config_hash, RunDirectory& dir, JobRunner& runner)
-      : data_(data), config_hash_(config_hash), dir_(dir), runner_(runner) {}
+  // `slots`: jobs this machine runs at once, 0 when remote workers may add more.
+  StageRunner(const PreparedData& data, const std::string& config_hash, RunDirectory& dir, JobRunner& runner,
+              int slots)
+      : data_(data), config_hash_(config_hash), dir_(dir), runner_(runner), slots_(slots) {}
 
   // Reads every spec's result already on disk (resume), runs the others, then reads theirs.
   StatusOr<StageResults> Run(const std::string& stage, const std::vector<MemberSpec>& specs) {
@@ -56,6 +59,8 @@ class StageRunner {
     LogPrintf(stderr, LogLevel::kInfo, "%s: %zu jobs (%zu already finished)", stage.c_str(),
               specs.size(), specs.size() - pending.size());
     if (pending.empty()) return out;
+    const std::string advice = IdleSlotAdvice(static_cast<int64_t>(pending.size()), slots_);
+    if (!advice.empty()) LogPrintf(stderr, LogLevel::kInfo, "%s: %s", stage.c_str(), advice.c_str());
     CHORUS_ASSIGN_OR_RETURN(const std::vector<std::string> causes, runner_.Run(pending));
     size_t p = 0;
     for (size_t j = 0; j < specs.size(); ++j) {
@@ -83,6 +88,7 @@ class StageRunner {
   const std::string& config_hash_;
   RunDirectory& dir_;
   JobRunner& runner_;
+  const int slots_;
 };
 
 // Whether every fold job of member i finished (results i-major, `folds` per member); if not,
@@ -184,7 +190,8 @@ StatusOr<TrainedRun> TrainRun(const Config& config, const PreparedData& data,
                               const std::string& config_hash, RunDirectory& dir, JobRunner& runner) {
   TrainedRun run;
   run.chosen = config;
-  StageRunner stages(data, config_hash, dir, runner);
+  StageRunner stages(data, config_hash, dir, runner,
+                     config.cluster.listen.empty() ? JobsAtOnceOnThisMachine(config) : 0);
   CHORUS_RETURN_IF_ERROR(Search(config, data, stages, dir, run));
   std::vector<bool> folds_ok(static_cast<size_t>(run.chosen.ensemble.members), true);
   StageResults folds;
