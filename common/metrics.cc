@@ -12,6 +12,8 @@ namespace {
 
 constexpr int kMaxBracketDoublings = 64;
 constexpr double kQuantileTolerance = 1e-10;  // of the bracket's width
+// ceil(c n) is taken this far below c n, so that c n = 7.000000000000001 asks for 7 inputs.
+constexpr double kCoverageSlack = 1e-9;
 
 // Bin of confidence c among B bins ((b)/B, (b+1)/B]: b = ceil(c B) - 1, with c = 0 in bin 0.
 int ConfidenceBin(double c, int bins) {
@@ -52,7 +54,7 @@ double MixtureMean(const GaussianMixture& mixture, int64_t i) {
 
 size_t CoveredCount(double c, size_t n) {
   assert(c > 0 && c <= 1 && "coverage must lie in (0, 1]");
-  const double wanted = std::ceil(c * static_cast<double>(n) - 1e-9);
+  const double wanted = std::ceil(c * static_cast<double>(n) - kCoverageSlack);
   return static_cast<size_t>(std::clamp(wanted, 1.0, static_cast<double>(n)));
 }
 
