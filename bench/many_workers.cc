@@ -20,9 +20,10 @@
 // W simulated workers each have their own channel and TCP connection (as on W machines), register
 // once, then in turn: Lease (timed); on a job, the data from their own cache, fetched by hash
 // (FetchData) the first time only; H heartbeats; then the job's result uploaded as a worker does
-// (CoordinatorClient::UploadJobResult: SHA-256 and size, then 1 MiB chunks into the stream). The result is one
-// member of the bench data trained once at start-up (TrainMember), relabelled with each job's
-// index and seed: valid bytes the coordinator decodes, checks and stores as the job's result.
+// (CoordinatorClient::UploadJobResult: SHA-256 and size, then 1 MiB chunks into the stream). The
+// result is one member of the bench data trained once at start-up (TrainMember), relabelled
+// with each job's index and seed: valid bytes the coordinator decodes, checks and stores as the
+// job's result.
 // A worker told WAIT asks again after the retry delay; told DONE, it stops. The coordinator's
 // table must then count J finished jobs, or the bench fails.
 // The workers are multiplexed onto T threads (default 16), each running the workers i = t mod T
@@ -433,6 +434,8 @@ class SimulatedWorker {
   BenchClock::time_point next_turn_;
 };
 
+// Runs `workers` (this thread's share) until every one is told DONE: each ready worker takes a
+// turn in order; when none is ready, sleeps until the first is.
 void DriveWorkers(const std::vector<SimulatedWorker*>& workers, int heartbeats, Tally& tally) {
   for (SimulatedWorker* w : workers) w->Register();
   while (true) {
