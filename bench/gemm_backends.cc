@@ -14,7 +14,15 @@
 // Backends, each on the calling thread only:
 //   onednn: dnnl_sgemm called directly (OpenMP team of 1), runtime CPU dispatch;
 //   chorus: chorus::Gemm (common/gemm.h), the backend chorus trains with;
-//   eigen:  Eigen's own product, as built (the project's compile flags, no -march).
+//   eigen:  Eigen's own product, as built (the project's compile flags, no -march);
+// and where the CPU has AVX512_BF16, the bfloat16 products (fp32 operands in, fp32 C out, each
+// call converting its operands as a training step must):
+//   chorus_bf16: chorus::Gemm with ProductPrecision::kBf16;
+//   onednn_bf16: oneDNN's matmul primitive on bf16 source and weights (f32 destination, a sum
+//                post-op for beta 1), after two reorders from the fp32 operands (the weights into
+//                the matmul's chosen blocked layout); primitives made once per shape;
+//   onednn_fpmath_bf16: oneDNN's f32 matmul on the fp32 operands as stored, with the attribute
+//                fpmath_mode bf16 (oneDNN may convert and compute in bf16 as it sees fit).
 // Usage: chorus-bench-gemm [BATCH...]   (default 32 128 512)
 // Output:
 //   gemm-machine gemm=NAME compiler="..." onednn=X.Y.Z
@@ -24,7 +32,12 @@
 #include <oneapi/dnnl/dnnl.h>
 #include <omp.h>
 
+#include <array>
 #include <chrono>
+#include <map>
+#include <memory>
+#include <oneapi/dnnl/dnnl.hpp>
+#include <tuple>
 #include <cstdio>
 #include <cstdlib>
 #include <functional>
@@ -101,6 +114,84 @@ void OneDnn(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matr
 }
 
 
+// oneDNN's bf16 matmul for one product shape: reorders of op(A) into plain bf16 and of op(B) into
+// the layout the matmul picked, then the matmul into C; or (implicit) the f32 matmul with
+// fpmath_mode bf16 on the operands as stored.
+struct OneDnnBf16Plan {
+  bool implicit;
+  dnnl::engine engine{dnnl::engine::kind::cpu, 0};
+  dnnl::stream stream{engine};
+  dnnl::memory a32, b32, c32, a16, b16;
+  dnnl::reorder to_a16, to_b16;
+  dnnl::matmul matmul;
+
+  OneDnnBf16Plan(bool implicit_conversion, bool ta, bool tb, int64_t m, int64_t n, int64_t k,
+                 int64_t lda, int64_t ldb, int64_t ldc, float beta)
+      : implicit(implicit_conversion) {
+    using dt = dnnl::memory::data_type;
+    using tag = dnnl::memory::format_tag;
+    // op(A) is m x k; stored transposed its strides are (1, lda). Likewise op(B), k x n.
+    const dnnl::memory::desc a32_md({m, k}, dt::f32, ta ? dnnl::memory::dims{1, lda} : dnnl::memory::dims{lda, 1});
+    const dnnl::memory::desc b32_md({k, n}, dt::f32, tb ? dnnl::memory::dims{1, ldb} : dnnl::memory::dims{ldb, 1});
+    const dnnl::memory::desc c_md({m, n}, dt::f32, dnnl::memory::dims{ldc, 1});
+    const dnnl::memory::desc a16_md({m, k}, dt::bf16, tag::ab);
+    const dnnl::memory::desc b16_any({k, n}, dt::bf16, tag::any);
+    dnnl::primitive_attr attr;
+    if (beta != 0.0f) {
+      dnnl::post_ops ops;
+      ops.append_sum(beta);
+      attr.set_post_ops(ops);
+    }
+    a32 = dnnl::memory(a32_md, engine, DNNL_MEMORY_NONE);
+    b32 = dnnl::memory(b32_md, engine, DNNL_MEMORY_NONE);
+    c32 = dnnl::memory(c_md, engine, DNNL_MEMORY_NONE);
+    if (implicit) {
+      attr.set_fpmath_mode(dnnl::fpmath_mode::bf16);
+      matmul = dnnl::matmul(dnnl::matmul::primitive_desc(dnnl::matmul::desc(a32_md, b32_md, c_md), attr, engine));
+      return;
+    }
+    const dnnl::matmul::primitive_desc pd(dnnl::matmul::desc(a16_md, b16_any, c_md), attr, engine);
+    a16 = dnnl::memory(a16_md, engine);
+    b16 = dnnl::memory(pd.weights_desc(), engine);
+    to_a16 = dnnl::reorder(a32, a16);
+    to_b16 = dnnl::reorder(b32, b16);
+    matmul = dnnl::matmul(pd);
+  }
+};
+
+template <bool kImplicit>
+void OneDnnBf16(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
+  using Key = std::tuple<bool, bool, int64_t, int64_t, int64_t, float>;
+  static std::map<Key, std::unique_ptr<OneDnnBf16Plan>> plans;
+  const int64_t k = ta ? a.rows() : a.cols();
+  std::unique_ptr<OneDnnBf16Plan>& plan = plans[Key{ta, tb, c.rows(), c.cols(), k, beta}];
+  if (!plan) {
+    plan = std::make_unique<OneDnnBf16Plan>(kImplicit, ta, tb, c.rows(), c.cols(), k,
+                                            a.outerStride(), b.outerStride(), c.outerStride(), beta);
+  }
+  plan->a32.set_data_handle(const_cast<float*>(a.data()));
+  plan->b32.set_data_handle(const_cast<float*>(b.data()));
+  plan->c32.set_data_handle(c.data());
+  if (kImplicit) {
+    plan->matmul.execute(plan->stream, {{DNNL_ARG_SRC, plan->a32},
+                                        {DNNL_ARG_WEIGHTS, plan->b32},
+                                        {DNNL_ARG_DST, plan->c32}});
+    plan->stream.wait();
+    return;
+  }
+  plan->to_a16.execute(plan->stream, plan->a32, plan->a16);
+  plan->to_b16.execute(plan->stream, plan->b32, plan->b16);
+  plan->matmul.execute(plan->stream, {{DNNL_ARG_SRC, plan->a16},
+                                      {DNNL_ARG_WEIGHTS, plan->b16},
+                                      {DNNL_ARG_DST, plan->c32}});
+  plan->stream.wait();
+}
+
+void ChorusBf16(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
+  Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f, a, b,
+       beta, c, ProductPrecision::kBf16);
+}
+
 // beta is 0 or 1 in every product here: C = op(A) op(B), or C += op(A) op(B).
 void EigenProduct(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
   if (beta == 0.0f) c.setZero();
@@ -117,13 +208,17 @@ struct Backend {
   const char* name;
   void (*run)(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c);
 };
-constexpr Backend kBackends[] = {{"onednn", OneDnn}, {"chorus", ChorusProduct}, {"eigen", EigenProduct}};
-constexpr int kBackendCount = sizeof(kBackends) / sizeof(kBackends[0]);
+constexpr Backend kFp32Backends[] = {
+    {"onednn", OneDnn}, {"chorus", ChorusProduct}, {"eigen", EigenProduct}};
+constexpr Backend kBf16Backends[] = {{"onednn_bf16", OneDnnBf16<false>},
+                                     {"onednn_fpmath_bf16", OneDnnBf16<true>},
+                                     {"chorus_bf16", ChorusBf16}};
 
-void MeasureBatch(int64_t batch) {
+void MeasureBatch(int64_t batch, const std::vector<Backend>& kBackends) {
+  const int kBackendCount = static_cast<int>(kBackends.size());
   const std::vector<int> widths = {784, 512, 512, 10};
   const std::vector<Product> products = StepProducts(widths, batch);
-  double step_seconds[kBackendCount] = {};
+  std::vector<double> step_seconds(kBackendCount);
   double step_flops = 0;
   for (const Product& p : products) {
     Operands operands(p);
@@ -182,11 +277,13 @@ int Main(int argc, char** argv) {
     batches.push_back(b);
   }
   if (batches.empty()) batches = {32, 128, 512};
+  std::vector<Backend> backends(std::begin(kFp32Backends), std::end(kFp32Backends));
+  if (Bf16ProductsAvailable()) backends.insert(backends.end(), std::begin(kBf16Backends), std::end(kBf16Backends));
   omp_set_num_threads(1);
   const dnnl_version_t* v = dnnl_version();
   std::printf("gemm-machine gemm=%s compiler=\"%s\" onednn=%d.%d.%d\n", GemmBackendName(),
               Compiler().c_str(), v->major, v->minor, v->patch);
-  for (int64_t batch : batches) MeasureBatch(batch);
+  for (int64_t batch : batches) MeasureBatch(batch, backends);
   return 0;
 }
 

@@ -88,6 +88,12 @@ def spread(values):
     return f" ({min(values):,.0f}-{max(values):,.0f} over {len(values)} rounds)"
 
 
+def is_fp32(f):
+    """Whether a record measures fp32 products: the GEMM limit and the fp32 training rates leave
+    out the bfloat16 backends and runs (backend NAME_bf16, products=bf16)."""
+    return not f.get("backend", "").endswith("_bf16") and f.get("products", "fp32") == "fp32"
+
+
 def round_of(fields):
     return fields.get("round", "1")
 
@@ -126,14 +132,15 @@ class Report:
         """{backend: median over rounds of the back-to-back rate} at this batch."""
         out = {}
         for f in select(self.records, "gemm-sequence", batch=batch):
-            out.setdefault(f["backend"], []).append(float(f["samples_per_s"]))
+            if is_fp32(f):
+                out.setdefault(f["backend"], []).append(float(f["samples_per_s"]))
         return {name: median(rates) for name, rates in out.items()}
 
     def sequence_in(self, batch, rnd):
         """The faster back-to-back rate of one round, or None."""
         return max((float(f["samples_per_s"]) for f in select(self.records, "gemm-sequence",
                                                                 batch=batch)
-                    if round_of(f) == rnd), default=None)
+                    if round_of(f) == rnd and is_fp32(f)), default=None)
 
     def rounds(self, batch):
         return sorted({round_of(f) for kind in ("gemm-limit", "chorus")
@@ -143,7 +150,7 @@ class Report:
         """{backend: [gemm-limit fields, one per round]} at this batch (one round if rnd given)."""
         out = {}
         for f in select(self.records, "gemm-limit", batch=batch):
-            if rnd is None or round_of(f) == rnd:
+            if (rnd is None or round_of(f) == rnd) and is_fp32(f):
                 out.setdefault(f["backend"], []).append(f)
         return out
 
@@ -162,7 +169,7 @@ class Report:
 
     def chorus_lines(self, batch, threads, network="mlp"):
         return [f for f in select(self.records, "chorus", batch=batch, threads=threads)
-                if f.get("network", "mlp") == network]
+                if f.get("network", "mlp") == network and is_fp32(f)]
 
     def chorus_in(self, batch, threads, rnd, network="mlp"):
         found = [f for f in self.chorus_lines(batch, threads, network) if round_of(f) == rnd]

@@ -15,9 +15,11 @@
 //   gather_step: the minibatch's rows copied from a shuffled 8192-row matrix, then
 //                TrainingStep::Run with one part, which takes one of the two above by the
 //                minibatch's rows (what TrainMember does per step, less the schedule).
-// Usage: chorus-bench-step [BATCH...]   (default 32 128 512)
+// Usage: chorus-bench-step [fp32|bf16] [BATCH...]   (default fp32, 32 128 512): the precision of
+// every product (common/gemm.h; bf16 needs AVX512_BF16).
 // Output, per batch and piece:
-//   chorus-step batch=B piece=NAME median_us=T best_us=T samples_per_s=R   (R from the median)
+//   chorus-step batch=B piece=NAME median_us=T best_us=T samples_per_s=R products=P
+//   (R from the median)
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
@@ -48,7 +50,7 @@ double Median(std::vector<double> v) {
   return v[v.size() / 2];
 }
 
-void MeasureBatch(int64_t batch) {
+void MeasureBatch(int64_t batch, ProductPrecision precision) {
   Philox rng(Derive(1, "bench-step"));
   const Mlp net({kFeatures, 512, 512, kClasses}, Activation::kRelu);
   std::vector<float> params(net.ParameterCount()), grad(net.ParameterCount()),
@@ -67,8 +69,8 @@ void MeasureBatch(int64_t batch) {
   optimizer.momentum = 0.9;
   optimizer.weight_decay = 5e-4;
   const float lr = 1e-4f;  // small, so that thousands of steps on one minibatch stay finite
-  TrainingStep step(net, Task::kClassification, optimizer, batch, 1);
-  Mlp::Workspace ws = net.MakeWorkspace(batch);
+  TrainingStep step(net, Task::kClassification, optimizer, batch, 1, 0.0f, precision);
+  Mlp::Workspace ws = net.MakeWorkspace(batch, precision);
   Matrix grad_output(batch, kClasses);
   Matrix xb = data.topRows(batch);
   std::vector<int32_t> labels(all_labels.begin(), all_labels.begin() + batch);
@@ -91,7 +93,14 @@ void MeasureBatch(int64_t batch) {
     std::vector<double> seconds;  // per step, one per block
   };
   std::vector<Piece> pieces = {
-      {"products", [&] { products.Run(ChorusProduct); }, {}},
+      {"products",
+       [&] {
+         products.Run([&](bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
+           Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f,
+                a, b, beta, c, precision);
+         });
+       },
+       {}},
       {"backward", backward, {}},
       {"step_fused",
        [&] {
@@ -131,9 +140,10 @@ void MeasureBatch(int64_t batch) {
   for (const Piece& p : pieces) {
     const double median = Median(p.seconds);
     const double best = *std::min_element(p.seconds.begin(), p.seconds.end());
-    std::printf("chorus-step batch=%lld piece=%s median_us=%.1f best_us=%.1f samples_per_s=%.0f\n",
-                static_cast<long long>(batch), p.name, median * 1e6, best * 1e6,
-                static_cast<double>(batch) / median);
+    std::printf(
+        "chorus-step batch=%lld piece=%s median_us=%.1f best_us=%.1f samples_per_s=%.0f products=%s\n",
+        static_cast<long long>(batch), p.name, median * 1e6, best * 1e6,
+        static_cast<double>(batch) / median, ProductPrecisionName(precision));
   }
   std::fflush(stdout);
 }
@@ -143,15 +153,23 @@ void MeasureBatch(int64_t batch) {
 
 int main(int argc, char** argv) {
   std::vector<int64_t> batches;
-  for (int i = 1; i < argc; ++i) {
+  int first = 1;
+  const auto precision = chorus::ParseProductPrecision(argc > 1 ? argv[1] : "");
+  if (precision) first = 2;
+  for (int i = first; i < argc; ++i) {
     const long long b = std::atoll(argv[i]);
     if (b < 1 || b > 8192) {
-      std::fprintf(stderr, "usage: chorus-bench-step [BATCH...]   (batch sizes 1-8192)\n");
+      std::fprintf(stderr, "usage: chorus-bench-step [fp32|bf16] [BATCH...]   (batch sizes 1-8192)\n");
       return 2;
     }
     batches.push_back(b);
   }
+  const auto products = precision.value_or(chorus::ProductPrecision::kFp32);
+  if (products == chorus::ProductPrecision::kBf16 && !chorus::Bf16ProductsAvailable()) {
+    std::fprintf(stderr, "chorus-bench-step: this CPU has no AVX512_BF16; bf16 would run as fp32\n");
+    return 2;
+  }
   if (batches.empty()) batches = {32, 128, 512};
-  for (int64_t b : batches) chorus::MeasureBatch(b);
+  for (int64_t b : batches) chorus::MeasureBatch(b, products);
   return 0;
 }

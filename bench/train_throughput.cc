@@ -11,9 +11,12 @@
 // The first epoch is a warm-up (page faults, caches, frequency ramp). The epoch-end callbacks
 // give the timed window: from the end of each member's first epoch to the end of its last, and
 // the reported rate is all timed samples divided by the union of the members' windows.
-// Usage: chorus-bench-train [BATCH [TIMED_EPOCHS [NETWORK]]]   (defaults 128, 5, mlp)
+// PRODUCTS fp32 (the default) or bf16 sets train.products (common/gemm.h); bf16 needs a CPU with
+// AVX512_BF16 (the bench refuses elsewhere rather than time fp32 under the bf16 name).
+// Usage: chorus-bench-train [BATCH [TIMED_EPOCHS [NETWORK [PRODUCTS]]]]   (defaults 128, 5, mlp, fp32)
 // Output: one "machine:" line, then per configuration one line
 //   chorus threads=T members=T batch=B samples_per_s=R gflops=G flops_per_sample=F [network=conv]
+//   [products=bf16]
 #include <sched.h>
 #include <tbb/parallel_for.h>
 #include <tbb/task_arena.h>
@@ -89,7 +92,7 @@ double ConvFlopsPerSample() {
   return 2 * stage1 + 3 * stage2 + 6.0 * 1568 * 128 + 6.0 * 128 * kClasses;
 }
 
-MemberSpec BenchSpec(int index, int batch, int timed_epochs, bool conv) {
+MemberSpec BenchSpec(int index, int batch, int timed_epochs, bool conv, ProductPrecision products) {
   MemberSpec spec;
   spec.index = index;
   spec.seed = Derive(7, static_cast<uint64_t>(index));
@@ -98,12 +101,14 @@ MemberSpec BenchSpec(int index, int batch, int timed_epochs, bool conv) {
   spec.model.activation = Activation::kRelu;
   spec.train.epochs = kWarmupEpochs + timed_epochs;
   spec.train.batch_size = batch;
+  spec.train.products = products;
   return spec;
 }
 
 // Trains `threads` members at once, one per arena slot; returns samples per second over the union
 // of their timed windows. Exits with a message if a member fails.
-double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, bool conv, const PreparedData& data) {
+double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, bool conv,
+                               ProductPrecision products, const PreparedData& data) {
   std::vector<Clock::time_point> first(threads), last(threads);
   tbb::task_arena arena(threads);
   arena.execute([&] {
@@ -113,7 +118,7 @@ double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, bool co
         if (p.epoch == p.epochs) last[m] = Clock::now();
       };
       const StatusOr<MemberResult> result =
-          TrainMember(BenchSpec(m, batch, timed_epochs, conv), data, mark);
+          TrainMember(BenchSpec(m, batch, timed_epochs, conv, products), data, mark);
       if (!result.ok()) {
         std::fprintf(stderr, "member %d failed: %s\n", m, result.status().ToString().c_str());
         std::exit(1);
@@ -139,10 +144,10 @@ int AvailableCpus() {
   return sched_getaffinity(0, sizeof(set), &set) == 0 ? CPU_COUNT(&set) : -1;
 }
 
-void PrintMachine() {
+void PrintMachine(ProductPrecision products) {
   const char* coretype = std::getenv("OPENBLAS_CORETYPE");
   std::printf("machine: cpu=\"%s\" nproc=%d OPENBLAS_CORETYPE=%s gemm=%s\n", CpuModel().c_str(),
-              AvailableCpus(), coretype ? coretype : "unset", GemmBackendName());
+              AvailableCpus(), coretype ? coretype : "unset", GemmBackendName(products));
 }
 
 }  // namespace
@@ -153,19 +158,27 @@ int main(int argc, char** argv) {
   const int batch = argc > 1 ? std::atoi(argv[1]) : 128;
   const int timed_epochs = argc > 2 ? std::atoi(argv[2]) : 5;
   const std::string network = argc > 3 ? argv[3] : "mlp";
-  if (argc > 4 || batch < 1 || timed_epochs < 1 || (network != "mlp" && network != "conv")) {
-    std::fprintf(stderr, "usage: chorus-bench-train [BATCH [TIMED_EPOCHS [mlp|conv]]]   (both >= 1)\n");
+  const auto products = ParseProductPrecision(argc > 4 ? argv[4] : "fp32");
+  if (argc > 5 || batch < 1 || timed_epochs < 1 || (network != "mlp" && network != "conv") ||
+      !products) {
+    std::fprintf(stderr,
+                 "usage: chorus-bench-train [BATCH [TIMED_EPOCHS [mlp|conv [fp32|bf16]]]]   (both >= 1)\n");
+    return 2;
+  }
+  if (*products == ProductPrecision::kBf16 && !Bf16ProductsAvailable()) {
+    std::fprintf(stderr, "chorus-bench-train: this CPU has no AVX512_BF16; bf16 would run as fp32\n");
     return 2;
   }
   const bool conv = network == "conv";
-  PrintMachine();
+  PrintMachine(*products);
   const PreparedData data = SyntheticData();
   const double flops = conv ? ConvFlopsPerSample() : FlopsPerSample({kFeatures, 512, 512, kClasses});
   for (int threads : {1, 2}) {
-    const double rate = MeasureSamplesPerSecond(threads, batch, timed_epochs, conv, data);
+    const double rate = MeasureSamplesPerSecond(threads, batch, timed_epochs, conv, *products, data);
     std::printf("chorus threads=%d members=%d batch=%d samples_per_s=%.0f gflops=%.2f", threads,
                 threads, batch, rate, rate * flops * 1e-9);
-    std::printf(" flops_per_sample=%.0f%s\n", flops, conv ? " network=conv" : "");
+    std::printf(" flops_per_sample=%.0f%s%s\n", flops, conv ? " network=conv" : "",
+                *products == ProductPrecision::kBf16 ? " products=bf16" : "");
     std::fflush(stdout);
   }
   return 0;

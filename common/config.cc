@@ -13,6 +13,10 @@ const char* ActivationName(Activation a) {
   return "?";
 }
 
+const char* ProductPrecisionName(ProductPrecision p) {
+  return p == ProductPrecision::kBf16 ? "bf16" : "fp32";
+}
+
 const char* ScheduleName(ScheduleKind s) {
   switch (s) {
     case ScheduleKind::kConstant: return "constant";
@@ -86,6 +90,12 @@ std::optional<Activation> ParseActivation(const std::string& s) {
   if (s == "relu") return Activation::kRelu;
   if (s == "tanh") return Activation::kTanh;
   if (s == "gelu") return Activation::kGelu;
+  return std::nullopt;
+}
+
+std::optional<ProductPrecision> ParseProductPrecision(const std::string& s) {
+  if (s == "fp32") return ProductPrecision::kFp32;
+  if (s == "bf16") return ProductPrecision::kBf16;
   return std::nullopt;
 }
 

@@ -9,6 +9,7 @@
 #include <string>
 #include <vector>
 
+#include "common/product_precision.h"
 #include "common/sgmcmc_step.h"
 
 namespace chorus {
@@ -132,6 +133,10 @@ struct TrainConfig {
   // idle threads and added in a fixed order (common/training_step.h); in [1, batch_size]. The
   // result depends on parts, never on the thread count.
   int parts = 1;
+  // The training products' precision (common/product_precision.h): fp32, or bf16 where the CPU
+  // has AVX512_BF16 (fp32 elsewhere, said at the start of the run). Validation, basin fits'
+  // sampling, assembly and prediction stay fp32.
+  ProductPrecision products = ProductPrecision::kFp32;
   OptimizerConfig optimizer;
   ScheduleConfig schedule;
   EarlyStoppingConfig early_stopping;
@@ -242,6 +247,7 @@ const char* TaskName(Task t);
 const char* ActivationName(Activation a);
 const char* PoolingName(Pooling p);
 const char* ScheduleName(ScheduleKind s);
+const char* ProductPrecisionName(ProductPrecision p);
 const char* WeightingName(Weighting w);
 const char* BasinMethodName(BasinMethod m);
 const char* LaplaceHessianName(LaplaceHessian h);
@@ -250,6 +256,7 @@ std::optional<Task> ParseTask(const std::string& s);
 std::optional<Activation> ParseActivation(const std::string& s);
 std::optional<Pooling> ParsePooling(const std::string& s);
 std::optional<ScheduleKind> ParseSchedule(const std::string& s);
+std::optional<ProductPrecision> ParseProductPrecision(const std::string& s);
 std::optional<Weighting> ParseWeighting(const std::string& s);
 std::optional<BasinMethod> ParseBasinMethod(const std::string& s);
 std::optional<LaplaceHessian> ParseLaplaceHessian(const std::string& s);

@@ -328,14 +328,15 @@ Eigen::Map<const Matrix> ConvFront::Forward(const float* params, const ConstMatr
     if (!ws.kept_columns.empty()) {
       auto columns = ws.kept_columns[s].topRows(rows * g.Pixels());
       Unfold(in, rows, g, st, columns.data());
-      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, columns, kernel, 0.0f, ws.pre[s].topRows(rows * g.Pixels()));
+      Gemm(Transpose::kNo, Transpose::kNo, 1.0f, columns, kernel, 0.0f, ws.pre[s].topRows(rows * g.Pixels()),
+           ws.products);
     }
     for (int64_t i0 = 0; ws.kept_columns.empty() && i0 < rows; i0 += kChunkSamples) {
       const int64_t n = std::min(kChunkSamples, rows - i0);
       Eigen::Map<Matrix> columns(ws.columns.data(), n * g.Pixels(), g.KernelRows());
       Unfold(in + i0 * st.sample, n, g, st, columns.data());
       Gemm(Transpose::kNo, Transpose::kNo, 1.0f, columns, kernel, 0.0f,
-           ws.pre[s].middleRows(i0 * g.Pixels(), n * g.Pixels()));
+           ws.pre[s].middleRows(i0 * g.Pixels(), n * g.Pixels()), ws.products);
     }
     if (g.pool != Pooling::kNone) {
       BiasActivateAndPool(activation_, g, rows, params + BiasOffset(s), ws.pre[s], ws.pooled[s], ws.argmax[s]);
@@ -370,18 +371,20 @@ void ConvFront::Backward(float* params, const ConstMatrixRef& x, Workspace& ws, 
     Eigen::Map<const Matrix> kernel(params + WeightOffset(s), g.KernelRows(), g.out_channels);
     Eigen::Map<Matrix> dkernel(grad + WeightOffset(s), g.KernelRows(), g.out_channels);
     const bool kept = !ws.kept_columns.empty();
-    if (kept) Gemm(Transpose::kYes, Transpose::kNo, 1.0f, ws.kept_columns[s].topRows(rows * g.Pixels()), dz, 0.0f, dkernel);
+    if (kept) Gemm(Transpose::kYes, Transpose::kNo, 1.0f, ws.kept_columns[s].topRows(rows * g.Pixels()), dz, 0.0f, dkernel,
+                     ws.products);
     for (int64_t i0 = 0; i0 < rows && (s > 0 || !kept); i0 += kChunkSamples) {
       const int64_t n = std::min(kChunkSamples, rows - i0);
       const auto dz_chunk = dz.middleRows(i0 * g.Pixels(), n * g.Pixels());
       if (!kept) {
         Eigen::Map<Matrix> columns(ws.columns.data(), n * g.Pixels(), g.KernelRows());
         Unfold(in + i0 * st.sample, n, g, st, columns.data());
-        Gemm(Transpose::kYes, Transpose::kNo, 1.0f, columns, dz_chunk, i0 == 0 ? 0.0f : 1.0f, dkernel);
+        Gemm(Transpose::kYes, Transpose::kNo, 1.0f, columns, dz_chunk, i0 == 0 ? 0.0f : 1.0f, dkernel,
+             ws.products);
       }
       if (s == 0) continue;
       Eigen::Map<Matrix> column_grad(ws.column_grad.data(), n * g.Pixels(), g.KernelRows());
-      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz_chunk, kernel, 0.0f, column_grad);
+      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz_chunk, kernel, 0.0f, column_grad, ws.products);
       const Stage& prev = stages_[s - 1];
       Fold(column_grad.data(), n, g,
            StageOutputGradient(s - 1, ws).row(i0 * prev.OutPixels()).data());

@@ -69,6 +69,7 @@ class ConvFront {
     std::vector<Matrix> kept_columns;  // per stage: the whole batch unfolded, or all empty
     Matrix columns;               // unfolded input of one chunk, when not kept
     Matrix column_grad;           // the gradient of one chunk's unfolded input
+    ProductPrecision products = ProductPrecision::kFp32;  // of the stages' products
   };
   // kept_columns_bytes: the budget for keeping the unfolded inputs (tests pass 0 to force chunks).
   Workspace MakeWorkspace(int64_t max_rows, int64_t kept_columns_bytes = kKeptColumnsBytes) const;

@@ -23,17 +23,22 @@ struct FreeDeleter {
   void operator()(float* p) const { std::free(p); }
 };
 
-// The calling thread's packing buffers, allocated on its first Gemm.
+constexpr int64_t kPairRows = 32;  // rows a bfloat16 packing converts before transposing: >= mr, nr
+
+// The calling thread's packing buffers, allocated on its first Gemm. `pairs` holds up to
+// kPairRows rows of bfloat16 pairs on their way into a packed strip.
 struct PackBuffers {
   std::unique_ptr<float, FreeDeleter> a{static_cast<float*>(
       std::aligned_alloc(64, sizeof(float) * kMc * kKc))};
   std::unique_ptr<float, FreeDeleter> b{static_cast<float*>(
       std::aligned_alloc(64, sizeof(float) * kKc * kNc))};
+  std::unique_ptr<float, FreeDeleter> pairs{static_cast<float*>(
+      std::aligned_alloc(64, sizeof(float) * kPairRows * kKc / 2))};
 };
 
 PackBuffers& ThreadPackBuffers() {
   thread_local PackBuffers buffers;
-  if (!buffers.a || !buffers.b) std::abort();  // out of memory on a few hundred KiB
+  if (!buffers.a || !buffers.b || !buffers.pairs) std::abort();  // out of memory on a few hundred KiB
   return buffers;
 }
 
@@ -116,6 +121,73 @@ void PackB(const GemmKernel& kernel, const ConstMatrixRef& b, bool trans, int64_
   }
 }
 
+// ---- bfloat16 pairs (kernel.bf16_pairs; common/gemm_kernel.h): kc counts k, kcw = ceil(kc / 2)
+// pairs per row of a strip ----
+
+// `count` rows (or columns) of an operand whose pairs lie next to each other in memory, row r at
+// src + r * ld, k [p0, p0 + kc): converted to pairs, then transposed into a strip of width `width`
+// (dst[q * width + r]), entries past `count` zero.
+void PackAdjacentPairs(const GemmKernel& kernel, const float* src, int64_t ld, int count,
+                       int64_t kc, int width, float* pairs, float* dst) {
+  const int64_t kcw = (kc + 1) / 2;
+  for (int r = 0; r < count; ++r) kernel.pair_adjacent(src + r * ld, kc, pairs + r * kcw);
+  kernel.transpose(pairs, kcw, count, kcw, dst, width);
+  for (int64_t q = 0; q < kcw; ++q) {
+    for (int r = count; r < width; ++r) dst[q * width + r] = 0.0f;
+  }
+}
+
+// One pair row of a strip from two consecutive rows of an operand stored k-major (src1 null past
+// the end of k), `count` entries then zeros up to `width`.
+void PackPairRow(const GemmKernel& kernel, const float* src0, const float* src1, int count,
+                 int width, float* dst) {
+  kernel.pair_rows(src0, src1, count, dst);
+  for (int r = count; r < width; ++r) dst[r] = 0.0f;
+}
+
+// PackA for a bfloat16 kernel: strip s holds kcw x mr pairs.
+void PackAPairs(const GemmKernel& kernel, const ConstMatrixRef& a, bool trans, int64_t i0,
+                int64_t mc, int64_t p0, int64_t kc, float* pairs, float* out) {
+  const int mr = kernel.mr;
+  const int64_t lda = a.outerStride(), kcw = (kc + 1) / 2;
+  for (int64_t s = 0; s < mc; s += mr, out += kcw * mr) {
+    const int rows = static_cast<int>(std::min<int64_t>(mr, mc - s));
+    if (!trans) {  // op(A)(i, p) = A(i, p): pairs next to each other along each row
+      PackAdjacentPairs(kernel, a.data() + (i0 + s) * lda + p0, lda, rows, kc, mr, pairs, out);
+      continue;
+    }
+    for (int64_t q = 0; q < kcw; ++q) {  // op(A)(i, p) = A(p, i): a pair spans two rows of A
+      const float* src0 = a.data() + (p0 + 2 * q) * lda + i0 + s;
+      PackPairRow(kernel, src0, 2 * q + 1 < kc ? src0 + lda : nullptr, rows, mr, out + q * mr);
+    }
+  }
+}
+
+// PackB for a bfloat16 kernel (every column packed): strip s holds kcw x nr pairs.
+void PackBPairs(const GemmKernel& kernel, const ConstMatrixRef& b, bool trans, int64_t p0,
+                int64_t kc, int64_t j0, int64_t nc, float* pairs, float* out) {
+  const int nr = kernel.nr;
+  const int64_t ldb = b.outerStride(), kcw = (kc + 1) / 2;
+  if (trans) {  // op(B)(p, j) = B(j, p): pairs next to each other along each row of B
+    for (int64_t s = 0; s < nc; s += nr, out += kcw * nr) {
+      const int cols = static_cast<int>(std::min<int64_t>(nr, nc - s));
+      PackAdjacentPairs(kernel, b.data() + (j0 + s) * ldb + p0, ldb, cols, kc, nr, pairs, out);
+    }
+    return;
+  }
+  // op(B)(p, j) = B(p, j): each pair row from two rows of B, read from start to end and dealt
+  // out to the strips.
+  for (int64_t q = 0; q < kcw; ++q) {
+    const float* src0 = b.data() + (p0 + 2 * q) * ldb + j0;
+    const float* src1 = 2 * q + 1 < kc ? src0 + ldb : nullptr;
+    float* dst = out + q * nr;
+    for (int64_t s = 0; s < nc; s += nr, dst += kcw * nr) {
+      const int cols = static_cast<int>(std::min<int64_t>(nr, nc - s));
+      PackPairRow(kernel, src0 + s, src1 != nullptr ? src1 + s : nullptr, cols, nr, dst);
+    }
+  }
+}
+
 }  // namespace
 
 void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans_b, float alpha,
@@ -141,11 +213,14 @@ void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans
   const int mr = kernel.mr, nr = kernel.nr;
   const int64_t ldc = c.outerStride();
   const int64_t k_blocks = (k + kKc - 1) / kKc;
-  const int64_t kc_full = (k + k_blocks - 1) / k_blocks;  // equal blocks: no short tail block
+  int64_t kc_full = (k + k_blocks - 1) / k_blocks;  // equal blocks: no short tail block
+  const bool pairs = kernel.bf16_pairs;
+  if (pairs) kc_full += kc_full % 2;  // no pair of k across two blocks
   for (int64_t j0 = 0; j0 < n; j0 += kNc) {
     const int64_t nc = std::min(kNc, n - j0);
     for (int64_t p0 = 0; p0 < k; p0 += kc_full) {
       const int64_t kc = std::min(kc_full, k - p0);
+      const int64_t kcw = pairs ? (kc + 1) / 2 : kc;  // packed rows per strip
       const float beta_here = p0 == 0 ? beta : 1.0f;
       const bool last_k = p0 + kc >= k;
       const bool update = sgd != nullptr && last_k;  // this k block's tiles apply the SGD step
@@ -154,17 +229,20 @@ void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans
       // several blocks, it is packed, so that it streams in order once and is then read from L2
       // (the weight-gradient products at every batch, the forward at batch 512: 4-10% less time
       // for the eight products of a step run back to back, chorus-bench-gemm's gemm-sequence).
-      const int64_t packed_from = tb || m > kMc ? 0 : nc - nc % nr;
-      if (packed_from < nc) PackB(kernel, b, tb, p0, kc, j0, nc, packed_from, buffers.b.get());
+      // bfloat16 packing converts, so every column is packed.
+      const int64_t packed_from = tb || m > kMc || pairs ? 0 : nc - nc % nr;
+      if (pairs) PackBPairs(kernel, b, tb, p0, kc, j0, nc, buffers.pairs.get(), buffers.b.get());
+      else if (packed_from < nc) PackB(kernel, b, tb, p0, kc, j0, nc, packed_from, buffers.b.get());
       for (int64_t i0 = 0; i0 < m; i0 += kMc) {
         const int64_t mc = std::min(kMc, m - i0);
-        PackA(kernel, a, ta, i0, mc, p0, kc, buffers.a.get());
+        if (pairs) PackAPairs(kernel, a, ta, i0, mc, p0, kc, buffers.pairs.get(), buffers.a.get());
+        else PackA(kernel, a, ta, i0, mc, p0, kc, buffers.a.get());
         const auto tile = [&](int64_t ir, int64_t jr) {
           const int rows = static_cast<int>(std::min<int64_t>(mr, mc - ir));
           const int cols = static_cast<int>(std::min<int64_t>(nr, nc - jr));
           const bool in_place = jr < packed_from;
           const float* bp = in_place ? b.data() + p0 * b.outerStride() + j0 + jr
-                                     : buffers.b.get() + (jr / nr) * kc * nr;
+                                     : buffers.b.get() + (jr / nr) * kcw * nr;
           const int64_t ldb = in_place ? b.outerStride() : nr;
           SgdUpdate tile_sgd;
           if (update) {
@@ -172,7 +250,7 @@ void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans
             tile_sgd.w += (i0 + ir) * sgd->ld + j0 + jr;
             tile_sgd.v += (i0 + ir) * sgd->ld + j0 + jr;
           }
-          kernel.tile(kc, buffers.a.get() + (ir / mr) * kc * mr, bp, ldb, alpha, beta_here,
+          kernel.tile(kcw, buffers.a.get() + (ir / mr) * kcw * mr, bp, ldb, alpha, beta_here,
                       c.data() + (i0 + ir) * ldc + j0 + jr, ldc, rows, cols,
                       update ? &tile_sgd : nullptr);
         };
@@ -194,16 +272,28 @@ void GemmWithKernel(const GemmKernel& kernel, Transpose trans_a, Transpose trans
   }
 }
 
+namespace {
+
+const GemmKernel& KernelFor(ProductPrecision precision) {
+  static const GemmKernel* const bf16 = Avx512Bf16Kernel();
+  return precision == ProductPrecision::kBf16 && bf16 != nullptr ? *bf16 : BestGemmKernel();
+}
+
+}  // namespace
+
 void Gemm(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
-          const ConstMatrixRef& b, float beta, MatrixRef c) {
-  GemmWithKernel(BestGemmKernel(), trans_a, trans_b, alpha, a, b, beta, c);
+          const ConstMatrixRef& b, float beta, MatrixRef c, ProductPrecision precision) {
+  GemmWithKernel(KernelFor(precision), trans_a, trans_b, alpha, a, b, beta, c);
 }
 
 void GemmSgdUpdate(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
-                   const ConstMatrixRef& b, const SgdUpdate& update, MatrixRef scratch) {
-  GemmWithKernel(BestGemmKernel(), trans_a, trans_b, alpha, a, b, 0.0f, scratch, &update);
+                   const ConstMatrixRef& b, const SgdUpdate& update, MatrixRef scratch,
+                   ProductPrecision precision) {
+  GemmWithKernel(KernelFor(precision), trans_a, trans_b, alpha, a, b, 0.0f, scratch, &update);
 }
 
-const char* GemmBackendName() { return BestGemmKernel().name; }
+const char* GemmBackendName(ProductPrecision precision) { return KernelFor(precision).name; }
+
+bool Bf16ProductsAvailable() { return Avx512Bf16Kernel() != nullptr; }
 
 }  // namespace chorus

@@ -8,6 +8,11 @@
 //   G = alpha * (ap^T bp) + beta * C (with beta == 0 C is not read), then either
 //   C[rows x cols] <- G (sgd null), or the SGD step of common/gemm.h with G as the gradient, w and
 //   v pointing at the tile's first element (sgd non-null; C is not written).
+// A bfloat16 kernel (bf16_pairs) reads the same layout with each float slot holding a pair of
+// bfloat16 values of consecutive k, low half first: kc counts pairs, ap[p * mr + r] packs
+// op(A)(r, 2p) and op(A)(r, 2p + 1), bp[p * ldb + j] packs op(B)(2p, j) and op(B)(2p + 1, j), and
+// a pair past the end of k holds zero. It multiplies pairs with fp32 accumulation; the epilogue
+// (alpha, beta, the SGD step) is the fp32 one.
 // Thread safety: kernels are pure; the driver packs into buffers owned by the calling thread.
 #pragma once
 
@@ -26,11 +31,22 @@ struct GemmKernel {
   // packing needs (op(A) not transposed, op(B) transposed), vectorised for this instruction set.
   void (*transpose)(const float* src, int64_t ld_src, int rows, int64_t cols, float* dst,
                     int64_t ld_dst);
+  // bfloat16 kernels only (null otherwise), the two conversions packing needs, each float rounded
+  // to bfloat16 to nearest even as the CPU's conversion instruction does:
+  // pair_rows: dst[j] = pair(src0[j], src1[j]) for j < n, with src1 null meaning zeros;
+  // pair_adjacent: dst[q] = pair(src[2q], src[2q + 1]) for q < ceil(k / 2), the last one
+  // pair(src[k - 1], 0) when k is odd.
+  bool bf16_pairs = false;
+  void (*pair_rows)(const float* src0, const float* src1, int64_t n, float* dst) = nullptr;
+  void (*pair_adjacent)(const float* src, int64_t k, float* dst) = nullptr;
 };
 
 // nullptr when this CPU lacks the instructions (AVX-512F; AVX2 with FMA).
 const GemmKernel* Avx512Kernel();
 const GemmKernel* Avx2Kernel();
+// bfloat16 products (AVX512_BF16 dot products, fp32 accumulation); nullptr when this CPU lacks
+// AVX512_BF16. Results differ from the fp32 kernels' by the rounding of the operands.
+const GemmKernel* Avx512Bf16Kernel();
 // Plain C++ (the compiler's baseline vectorisation): runs on every x86-64 CPU.
 const GemmKernel& PortableKernel();
 

@@ -37,37 +37,27 @@ __attribute__((target("avx512f"))) inline void SgdLanes(const SgdUpdate& u, __m5
   _mm512_mask_storeu_ps(v, m, nv);
 }
 
+// The weights and momentum of the next tile in these rows (the driver walks update tiles along
+// rows), fetched while this tile's k loop runs. A narrow tile ends its rows.
 template <int R, bool kWide>
-__attribute__((target("avx512f"))) void TileAvx512(int64_t kc, const float* ap, const float* bp,
-                                                   int64_t ldb, float alpha, float beta, float* c,
-                                                   int64_t ldc, int cols, const SgdUpdate* sgd) {
-  if (kWide && sgd != nullptr) {
-    // The weights and momentum of the next tile in these rows (the driver walks update tiles
-    // along rows): fetched while this tile's k loop runs. A narrow tile ends its rows.
-    for (int r = 0; r < R; ++r) {
-      const float* w = sgd->w + r * sgd->ld + kNr512;
-      const float* v = sgd->v + r * sgd->ld + kNr512;
-      _mm_prefetch(reinterpret_cast<const char*>(w), _MM_HINT_T0);
-      _mm_prefetch(reinterpret_cast<const char*>(v), _MM_HINT_T0);
-      _mm_prefetch(reinterpret_cast<const char*>(w + 16), _MM_HINT_T0);
-      _mm_prefetch(reinterpret_cast<const char*>(v + 16), _MM_HINT_T0);
-    }
+__attribute__((target("avx512f"), always_inline)) inline void PrefetchNextUpdateTile(
+    const SgdUpdate* sgd) {
+  if (!kWide || sgd == nullptr) return;
+  for (int r = 0; r < R; ++r) {
+    const float* w = sgd->w + r * sgd->ld + kNr512;
+    const float* v = sgd->v + r * sgd->ld + kNr512;
+    _mm_prefetch(reinterpret_cast<const char*>(w), _MM_HINT_T0);
+    _mm_prefetch(reinterpret_cast<const char*>(v), _MM_HINT_T0);
+    _mm_prefetch(reinterpret_cast<const char*>(w + 16), _MM_HINT_T0);
+    _mm_prefetch(reinterpret_cast<const char*>(v + 16), _MM_HINT_T0);
   }
-  __m512 acc0[R], acc1[R];
-#pragma GCC unroll 12
-  for (int r = 0; r < R; ++r) acc0[r] = acc1[r] = _mm512_setzero_ps();
-  for (int64_t p = 0; p < kc; ++p) {
-    const __m512 b0 = _mm512_loadu_ps(bp);
-    const __m512 b1 = kWide ? _mm512_loadu_ps(bp + 16) : _mm512_setzero_ps();
-#pragma GCC unroll 12
-    for (int r = 0; r < R; ++r) {
-      const __m512 a = _mm512_set1_ps(ap[r]);
-      acc0[r] = _mm512_fmadd_ps(a, b0, acc0[r]);
-      if constexpr (kWide) acc1[r] = _mm512_fmadd_ps(a, b1, acc1[r]);
-    }
-    ap += kMr512;
-    bp += ldb;
-  }
+}
+
+// The epilogue of an AVX-512 tile: G = alpha acc (+ beta C) stored to C or applied as the SGD step.
+template <int R, bool kWide>
+__attribute__((target("avx512f"), always_inline)) inline void FinishTileAvx512(
+    const __m512 (&acc0)[R], const __m512 (&acc1)[R], float alpha, float beta, float* c,
+    int64_t ldc, int cols, const SgdUpdate* sgd) {
   const __mmask16 m0 = FirstLanes(cols), m1 = FirstLanes(cols - 16);
   const __m512 va = _mm512_set1_ps(alpha), vb = _mm512_set1_ps(beta);
 #pragma GCC unroll 12
@@ -83,6 +73,90 @@ __attribute__((target("avx512f"))) void TileAvx512(int64_t kc, const float* ap, 
       if (sgd == nullptr) _mm512_mask_storeu_ps(cr + 16, m1, v1);
       else SgdLanes(*sgd, v1, sgd->w + r * sgd->ld + 16, sgd->v + r * sgd->ld + 16, m1);
     }
+  }
+}
+
+template <int R, bool kWide>
+__attribute__((target("avx512f"))) void TileAvx512(int64_t kc, const float* ap, const float* bp,
+                                                   int64_t ldb, float alpha, float beta, float* c,
+                                                   int64_t ldc, int cols, const SgdUpdate* sgd) {
+  PrefetchNextUpdateTile<R, kWide>(sgd);
+  __m512 acc0[R], acc1[R];
+#pragma GCC unroll 12
+  for (int r = 0; r < R; ++r) acc0[r] = acc1[r] = _mm512_setzero_ps();
+  for (int64_t p = 0; p < kc; ++p) {
+    const __m512 b0 = _mm512_loadu_ps(bp);
+    const __m512 b1 = kWide ? _mm512_loadu_ps(bp + 16) : _mm512_setzero_ps();
+#pragma GCC unroll 12
+    for (int r = 0; r < R; ++r) {
+      const __m512 a = _mm512_set1_ps(ap[r]);
+      acc0[r] = _mm512_fmadd_ps(a, b0, acc0[r]);
+      if constexpr (kWide) acc1[r] = _mm512_fmadd_ps(a, b1, acc1[r]);
+    }
+    ap += kMr512;
+    bp += ldb;
+  }
+  FinishTileAvx512<R, kWide>(acc0, acc1, alpha, beta, c, ldc, cols, sgd);
+}
+
+// ---- AVX512_BF16: the same 12 x 32 tile over bfloat16 pairs (common/gemm_kernel.h) ----
+// Each k step is a pair: one vdpbf16ps per accumulator adds two products, twice the work of an
+// fp32 FMA in the same instruction.
+
+template <int R, bool kWide>
+__attribute__((target("avx512f,avx512bf16"))) void TileAvx512Bf16(
+    int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha, float beta, float* c,
+    int64_t ldc, int cols, const SgdUpdate* sgd) {
+  PrefetchNextUpdateTile<R, kWide>(sgd);
+  __m512 acc0[R], acc1[R];
+#pragma GCC unroll 12
+  for (int r = 0; r < R; ++r) acc0[r] = acc1[r] = _mm512_setzero_ps();
+  for (int64_t p = 0; p < kc; ++p) {
+    // Loads and broadcasts move bits: the float type only carries the pairs.
+    const __m512bh b0 = (__m512bh)_mm512_castps_si512(_mm512_loadu_ps(bp));
+    const __m512bh b1 =
+        (__m512bh)_mm512_castps_si512(kWide ? _mm512_loadu_ps(bp + 16) : _mm512_setzero_ps());
+#pragma GCC unroll 12
+    for (int r = 0; r < R; ++r) {
+      const __m512bh a = (__m512bh)_mm512_castps_si512(_mm512_set1_ps(ap[r]));
+      acc0[r] = _mm512_dpbf16_ps(acc0[r], a, b0);
+      if constexpr (kWide) acc1[r] = _mm512_dpbf16_ps(acc1[r], a, b1);
+    }
+    ap += kMr512;
+    bp += ldb;
+  }
+  FinishTileAvx512<R, kWide>(acc0, acc1, alpha, beta, c, ldc, cols, sgd);
+}
+
+// 16 pairs (lo[j], hi[j]): both vectors rounded to nearest even by one vcvtne2ps2bf16, which
+// leaves lo's 16 bfloat16 below hi's, then interleaved by one vpermw.
+__attribute__((target("avx512f,avx512bw,avx512bf16"), always_inline)) inline __m512i PairLanes(
+    __m512 lo, __m512 hi) {
+  const __m512i interleave = _mm512_set_epi16(31, 15, 30, 14, 29, 13, 28, 12, 27, 11, 26, 10, 25, 9, 24, 8,
+                                              23, 7, 22, 6, 21, 5, 20, 4, 19, 3, 18, 2, 17, 1, 16, 0);
+  return _mm512_permutexvar_epi16(interleave, (__m512i)_mm512_cvtne2ps_pbh(hi, lo));
+}
+
+__attribute__((target("avx512f,avx512bw,avx512bf16"))) void PairRowsAvx512(const float* src0,
+                                                                  const float* src1, int64_t n,
+                                                                  float* dst) {
+  for (int64_t j = 0; j < n; j += 16) {
+    const __mmask16 m = FirstLanes(static_cast<int>(std::min<int64_t>(16, n - j)));
+    const __m512 lo = _mm512_maskz_loadu_ps(m, src0 + j);
+    const __m512 hi = src1 != nullptr ? _mm512_maskz_loadu_ps(m, src1 + j) : _mm512_setzero_ps();
+    _mm512_mask_storeu_ps(dst + j, m, _mm512_castsi512_ps(PairLanes(lo, hi)));
+  }
+}
+
+__attribute__((target("avx512f,avx512bf16"))) void PairAdjacentAvx512(const float* src, int64_t k,
+                                                                      float* dst) {
+  // 32 floats in order become 32 bfloat16 in order, that is 16 pairs: no shuffle needed.
+  for (int64_t j = 0; j < k; j += 32, dst += 16) {
+    const int left = static_cast<int>(std::min<int64_t>(32, k - j));
+    const __m512 lo = _mm512_maskz_loadu_ps(FirstLanes(left), src + j);
+    const __m512 hi = _mm512_maskz_loadu_ps(FirstLanes(left - 16), src + j + 16);
+    const __m512i pairs = (__m512i)_mm512_cvtne2ps_pbh(hi, lo);
+    _mm512_mask_storeu_ps(dst, FirstLanes((left + 1) / 2), _mm512_castsi512_ps(pairs));
   }
 }
 
@@ -236,13 +310,26 @@ template <size_t... kRows>
 constexpr std::array<TileFn, sizeof...(kRows)> Avx2Tiles(std::index_sequence<kRows...>) {
   return {&TileAvx2<static_cast<int>(kRows) + 1>...};
 }
+template <bool kWide, size_t... kRows>
+constexpr std::array<TileFn, sizeof...(kRows)> Avx512Bf16Tiles(std::index_sequence<kRows...>) {
+  return {&TileAvx512Bf16<static_cast<int>(kRows) + 1, kWide>...};
+}
 constexpr auto kAvx512Wide = Avx512Tiles<true>(std::make_index_sequence<kMr512>{});
 constexpr auto kAvx512Narrow = Avx512Tiles<false>(std::make_index_sequence<kMr512>{});
+constexpr auto kAvx512Bf16Wide = Avx512Bf16Tiles<true>(std::make_index_sequence<kMr512>{});
+constexpr auto kAvx512Bf16Narrow = Avx512Bf16Tiles<false>(std::make_index_sequence<kMr512>{});
 constexpr auto kAvx2 = Avx2Tiles(std::make_index_sequence<kMr256>{});
 
 void DispatchAvx512(int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha,
                     float beta, float* c, int64_t ldc, int rows, int cols, const SgdUpdate* sgd) {
   const auto& tiles = cols <= 16 ? kAvx512Narrow : kAvx512Wide;
+  tiles[rows - 1](kc, ap, bp, ldb, alpha, beta, c, ldc, cols, sgd);
+}
+
+void DispatchAvx512Bf16(int64_t kc, const float* ap, const float* bp, int64_t ldb, float alpha,
+                        float beta, float* c, int64_t ldc, int rows, int cols,
+                        const SgdUpdate* sgd) {
+  const auto& tiles = cols <= 16 ? kAvx512Bf16Narrow : kAvx512Bf16Wide;
   tiles[rows - 1](kc, ap, bp, ldb, alpha, beta, c, ldc, cols, sgd);
 }
 
@@ -256,6 +343,16 @@ void DispatchAvx2(int64_t kc, const float* ap, const float* bp, int64_t ldb, flo
 const GemmKernel* Avx512Kernel() {
   static const GemmKernel kernel{"avx512", kMr512, kNr512, DispatchAvx512, TransposeAvx};
   return __builtin_cpu_supports("avx512f") ? &kernel : nullptr;
+}
+
+const GemmKernel* Avx512Bf16Kernel() {
+  static const GemmKernel kernel{"avx512-bf16", kMr512,           kNr512, DispatchAvx512Bf16,
+                                 TransposeAvx,  true,             PairRowsAvx512,
+                                 PairAdjacentAvx512};
+  return __builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512bw") &&
+                 __builtin_cpu_supports("avx512bf16")
+             ? &kernel
+             : nullptr;
 }
 
 const GemmKernel* Avx2Kernel() {

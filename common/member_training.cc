@@ -60,7 +60,7 @@ class SgdRun {
         params_(net_.ParameterCount()),
         step_(net_, data.task, spec.train.optimizer, batch_,
               static_cast<int>(std::min<int64_t>(spec.train.parts, batch_)),
-              static_cast<float>(spec.train.beta_nll)),
+              static_cast<float>(spec.train.beta_nll), spec.train.products),
         xb_(batch_, data.features()), labels_(batch_), targets_(batch_), order_(rows_.size()) {
     net_.Initialize(Derive(spec.seed, "init"), params_.data());
   }

@@ -20,14 +20,16 @@ Mlp::Mlp(std::vector<int> widths, Activation activation, ConvFront front)
   }
 }
 
-Mlp::Workspace Mlp::MakeWorkspace(int64_t max_rows) const {
+Mlp::Workspace Mlp::MakeWorkspace(int64_t max_rows, ProductPrecision products) const {
   Workspace ws;
+  ws.products = products;
   for (int l = 0; l < layers(); ++l) {
     ws.pre.emplace_back(max_rows, widths_[l + 1]);
     ws.grad.emplace_back(max_rows, widths_[l + 1]);
     if (l + 1 < layers()) ws.post.emplace_back(max_rows, widths_[l + 1]);
   }
   ws.front = front_.MakeWorkspace(max_rows);
+  ws.front.products = products;
   return ws;
 }
 
@@ -68,7 +70,7 @@ MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& 
     auto z = ws.pre[l].topRows(rows);
     // Z_l = H_{l-1} W_l + 1 b^T, then H_l = act(Z_l) in the same pass as the bias
     const ConstMatrixRef input = DenseInput(l, x, ws);
-    Gemm(Transpose::kNo, Transpose::kNo, 1.0f, input, w, 0.0f, z);
+    Gemm(Transpose::kNo, Transpose::kNo, 1.0f, input, w, 0.0f, z, ws.products);
     if (l + 1 < layers()) {
       AddBiasAndActivate(activation_, params + BiasOffset(l), z, ws.post[l].topRows(rows));
     } else {
@@ -103,24 +105,25 @@ void Mlp::BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrix
       // dZ_{l-1} = (dZ_l W_l^T) * act'(Z_{l-1}), before W_l is updated.
       Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
       auto dprev = ws.grad[l - 1].topRows(rows);
-      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev);
+      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev, ws.products);
       MultiplyActivationDerivative(activation_, ws.pre[l - 1].topRows(rows), dprev);
     } else if (!front_.empty()) {
       // dL/d(front output) = dZ_0 W_0^T, before W_0 is updated.
       Eigen::Map<const Matrix> w(params + WeightOffset(0), widths_[0], widths_[1]);
-      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, front_.OutputGradient(ws.front, rows));
+      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, front_.OutputGradient(ws.front, rows),
+           ws.products);
     }
     // dW_l = H_{l-1}^T dZ_l ; db_l = 1^T dZ_l
     const ConstMatrixRef input = DenseInput(l, x, ws);
     db = dz.colwise().sum();
     if (optimizer == nullptr) {
-      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, 0.0f, dw);
+      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, 0.0f, dw, ws.products);
       continue;
     }
     const SgdUpdate update{params + WeightOffset(l), velocity + WeightOffset(l), widths_[l + 1], lr,
                            static_cast<float>(optimizer->momentum),
                            static_cast<float>(optimizer->weight_decay), optimizer->nesterov};
-    GemmSgdUpdate(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, update, dw);
+    GemmSgdUpdate(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, update, dw, ws.products);
     SgdStep(*optimizer, lr, widths_[l + 1], grad + BiasOffset(l), params + BiasOffset(l),
             velocity + BiasOffset(l));
   }

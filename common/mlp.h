@@ -39,8 +39,10 @@ class Mlp {
     std::vector<Matrix> post;  // H_l = act(Z_l), one per hidden layer
     std::vector<Matrix> grad;  // dL/dZ_l scratch, one per layer
     ConvFront::Workspace front;
+    ProductPrecision products = ProductPrecision::kFp32;  // of every product, front included
   };
-  Workspace MakeWorkspace(int64_t max_rows) const;
+  Workspace MakeWorkspace(int64_t max_rows,
+                          ProductPrecision products = ProductPrecision::kFp32) const;
 
   // Writes N(0, gain^2 / fan_in) weights (gain^2 = 2 for relu/gelu hidden layers, 1 for tanh and
   // for the output layer; He et al., ICCV 2015) and zero biases, drawn from Philox(seed).

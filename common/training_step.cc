@@ -21,12 +21,13 @@ struct TrainingStep::PartJob {
 };
 
 TrainingStep::TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer,
-                           int64_t max_rows, int parts, float beta_nll)
+                           int64_t max_rows, int parts, float beta_nll,
+                           ProductPrecision products)
     : net_(net), task_(task), optimizer_(optimizer), beta_nll_(beta_nll), velocity_(net.ParameterCount(), 0.0f) {
   assert(parts >= 1 && parts <= max_rows);
   for (int s = 0; s < parts; ++s) {
     const int64_t part_rows = (s + 1) * max_rows / parts - s * max_rows / parts;
-    parts_.push_back(Part{net.MakeWorkspace(part_rows), Matrix(part_rows, net.widths().back()),
+    parts_.push_back(Part{net.MakeWorkspace(part_rows, products), Matrix(part_rows, net.widths().back()),
                           std::vector<float>(net.ParameterCount()), 0.0});
   }
 }

@@ -31,9 +31,11 @@ class TrainingStep {
   static constexpr int64_t kFusedBelowRows = 64;
 
   // max_rows: the largest minibatch Run will see; parts in [1, max_rows]. beta_nll: the
-  // regression head's beta (common/heads.h GaussianNll); ignored for classification.
+  // regression head's beta (common/heads.h GaussianNll); ignored for classification. products:
+  // the precision of the forward and backward products (common/gemm.h).
   TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer, int64_t max_rows,
-               int parts, float beta_nll = 0.0f);
+               int parts, float beta_nll = 0.0f,
+               ProductPrecision products = ProductPrecision::kFp32);
 
   // x: rows x inputs (1 <= rows <= max_rows); labels (classification) or targets (regression) of
   // those rows, the other may be null. Updates params (ParameterCount floats) and the momentum

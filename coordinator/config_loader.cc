@@ -316,12 +316,14 @@ Status LoadEarlyStopping(const Section& t, EarlyStoppingConfig* e) {
 }
 
 Status LoadTrain(const Section& s, TrainConfig* t) {
-  CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "parts", "optimizer", "schedule",
-                                  "early_stopping", "beta_nll"}));
+  CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "parts", "products", "optimizer",
+                                  "schedule", "early_stopping", "beta_nll"}));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &t->epochs, "an epoch count", 1, 1000000));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("batch_size", &t->batch_size, "a batch size", 1, 1 << 20));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("parts", &t->parts, "a part count (at most batch_size)", 1,
                                     t->batch_size));
+  CHORUS_RETURN_IF_ERROR(s.GetEnum<ProductPrecision>("products", &t->products,
+                                                     ParseProductPrecision, "fp32, bf16"));
   CHORUS_RETURN_IF_ERROR(LoadSchedule(s, &t->schedule));
   CHORUS_RETURN_IF_ERROR(LoadEarlyStopping(s, &t->early_stopping));
   CHORUS_RETURN_IF_ERROR(s.Get<double>("beta_nll", &t->beta_nll, "a beta", 0.0, 1.0));
@@ -546,6 +548,7 @@ void EmitTrain(YAML::Emitter& out, const TrainConfig& t) {
   out << YAML::Key << "epochs" << YAML::Value << t.epochs;
   out << YAML::Key << "batch_size" << YAML::Value << t.batch_size;
   out << YAML::Key << "parts" << YAML::Value << t.parts;
+  out << YAML::Key << "products" << YAML::Value << ProductPrecisionName(t.products);
   out << YAML::Key << "optimizer" << YAML::Value << YAML::Flow << YAML::BeginMap
       << YAML::Key << "kind" << YAML::Value << "sgd" << YAML::Key << "lr" << YAML::Value << o.lr
       << YAML::Key << "momentum" << YAML::Value << o.momentum << YAML::Key << "nesterov"

@@ -93,7 +93,7 @@ json Manifest(const Inputs& in, const std::string& status, const std::string& ca
   return {{"status", status}, {"cause", cause}, {"chorus_version", CHORUS_VERSION},
           {"config_hash", in.config_hash}, {"data_hash", in.data.hash},
           {"run_seed", std::to_string(in.config.run.seed)}, {"member_seeds", seeds},
-          {"wall_seconds", seconds}, {"gemm_backend", GemmBackendName()},
+          {"wall_seconds", seconds}, {"gemm_backend", GemmBackendName(in.config.train.products)},
           {"coordinator", {{"host", HostName()}, {"cores", cores},
                            {"mode", TrainsInProcess(in.config) ? "in-process" : "workers"}}},
           {"workers", seen}};
@@ -241,6 +241,12 @@ int RunCommand(const RunOptions& options) {
   const auto& [need, have] = memory.value();
   LogLine(stderr, LogLevel::kInfo, "memory: estimated " + need.Breakdown() + "; usable " + ByteText(have.bytes),
           {{"estimated_bytes", need.Total()}, {"usable_bytes", have.bytes}});
+  if (in.config.train.products == ProductPrecision::kBf16 && !Bf16ProductsAvailable()) {
+    LogLine(stderr, LogLevel::kWarning,
+            "train.products: bf16: this CPU has no AVX512_BF16, so members trained here use fp32 "
+            "products (results differ from a bf16 machine's)",
+            {{"products", "fp32"}});
+  }
   phases.End("config, data and run directory");
   std::unique_ptr<JobRunner> runner = MakeJobRunner({&in.config, &in.data, in.config_hash}, dir);
   StatusOr<TrainedRun> trained = TrainRun(in.config, in.data, in.config_hash, dir, *runner);

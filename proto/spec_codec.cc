@@ -23,6 +23,7 @@ void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
   out->set_epochs(t.epochs);
   out->set_batch_size(t.batch_size);
   out->set_parts(t.parts);
+  out->set_products(ProductPrecisionName(t.products));
   out->set_lr(t.optimizer.lr);
   out->set_momentum(t.optimizer.momentum);
   out->set_nesterov(t.optimizer.nesterov);
@@ -65,8 +66,10 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   const auto role = ParseJobRole(w.role());
   const auto hessian = ParseLaplaceHessian(w.basin_hessian());
   const auto sampler = ParseSgmcmcSampler(w.sgmcmc_sampler());
-  if (!activation || !schedule || !basin || !role || !hessian || !sampler) {
-    return Status::InvalidInput("job spec: unknown activation, schedule, basin method, hessian, sampler or role");
+  const auto products = w.products().empty() ? ProductPrecision::kFp32 : ParseProductPrecision(w.products());
+  if (!activation || !schedule || !basin || !role || !hessian || !sampler || !products) {
+    return Status::InvalidInput(
+        "job spec: unknown activation, schedule, basin method, hessian, sampler, products or role");
   }
   const bool sizes_ok = w.epochs() >= 1 && w.batch_size() >= 1 && w.parts() >= 1 &&
                         w.parts() <= w.batch_size() && w.lr() > 0 && w.hidden_size() <= 64 &&
@@ -100,6 +103,7 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   s.train.epochs = w.epochs();
   s.train.batch_size = w.batch_size();
   s.train.parts = w.parts();
+  s.train.products = *products;
   s.train.optimizer = {w.lr(), w.momentum(), w.nesterov(), w.weight_decay(), w.clip_norm()};
   s.train.schedule = {*schedule, w.step_every_epochs(), w.step_factor()};
   s.basin = {*basin, w.basin_epochs(), w.basin_lr(), w.basin_snapshots(), w.basin_rank(),

@@ -12,6 +12,7 @@
 #include <thread>
 #include <vector>
 
+#include "common/gemm.h"
 #include "common/host_name.h"
 #include "common/log_format.h"
 #include "common/member_training.h"
@@ -193,6 +194,15 @@ class LeasedJob final : public TakenJob {
     StatusOr<MemberSpec> parsed = SpecFromWire(lease_.spec());
     CHORUS_RETURN_IF_ERROR(parsed.status());
     spec_ = std::move(parsed).value();
+    if (spec_->train.products == ProductPrecision::kBf16 && !Bf16ProductsAvailable()) {
+      static std::once_flag said;  // once per worker process, not per job
+      std::call_once(said, [] {
+        LogLine(stderr, LogLevel::kWarning,
+                "chorus-worker: train.products: bf16, but this CPU has no AVX512_BF16: its jobs "
+                "train with fp32 products",
+                {{"products", "fp32"}});
+      });
+    }
     wire::HeartbeatRequest base;
     base.set_worker_id(worker_id_);
     base.set_job_id(lease_.job_id());

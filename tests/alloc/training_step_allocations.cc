@@ -71,6 +71,16 @@ TEST(TrainingStepAllocations, NoneAfterWarmUpWithOnePart) {
   EXPECT_EQ(AllocationsPerSteps(p, step, nullptr, 2, 20), 0);
 }
 
+// bf16 products (where the CPU has them): the conversion buffers are the thread's packing
+// buffers, made on the first call.
+TEST(TrainingStepAllocations, NoneAfterWarmUpWithBf16Products) {
+  if (!Bf16ProductsAvailable()) GTEST_SKIP() << "this CPU has no AVX512_BF16";
+  Problem p;
+  TrainingStep step(p.net, Task::kClassification, OptimizerConfig{}, kBatch, 1, 0.0f,
+                    ProductPrecision::kBf16);
+  EXPECT_EQ(AllocationsPerSteps(p, step, nullptr, 2, 20), 0);
+}
+
 TEST(TrainingStepAllocations, NoneAfterWarmUpForRegression) {
   Problem p;
   p.net = Mlp({300, 128, 64, 2}, Activation::kGelu);

@@ -5,12 +5,17 @@
 // - against oneDNN's sgemm (Debian libdnnl-dev), an independent implementation, on the shapes
 //   of training a 784-512-512-10 network;
 // - for the BLAS conventions of alpha, beta and beta == 0 (C not read);
-// - for bit-identical results on repeated calls and on another thread.
+// - for bit-identical results on repeated calls and on another thread;
+// - the bfloat16 kernel (where the CPU has AVX512_BF16): its rounding against PyTorch's
+//   Tensor.to(torch.bfloat16), its products against the double product of the rounded operands.
 #include <gtest/gtest.h>
 #include <oneapi/dnnl/dnnl.h>
 #include <omp.h>
 
+#include <cfloat>
 #include <cmath>
+#include <cstring>
+#include <filesystem>
 #include <limits>
 #include <string>
 #include <thread>
@@ -20,12 +25,14 @@
 #include "common/gemm_kernel.h"
 #include "common/rng.h"
 #include "common/sgd.h"
+#include "tests/testing/reference.h"
 
 namespace chorus {
 namespace gemm_test {
 
 std::vector<const GemmKernel*> KernelsHere() {
   std::vector<const GemmKernel*> kernels;
+  if (Avx512Bf16Kernel() != nullptr) kernels.push_back(Avx512Bf16Kernel());
   if (Avx512Kernel() != nullptr) kernels.push_back(Avx512Kernel());
   if (Avx2Kernel() != nullptr) kernels.push_back(Avx2Kernel());
   kernels.push_back(&PortableKernel());
@@ -46,8 +53,29 @@ struct Case {
   float alpha, beta;
 };
 
+// x rounded to bfloat16 to nearest even, ties to even (IEEE 754 roundTiesToEven on an 8-bit
+// significand), as a float; normal and zero inputs only. Pinned to PyTorch's conversion by
+// Bf16RoundingMatchesPyTorch.
+float RoundToBf16(float x) {
+  uint32_t bits;
+  std::memcpy(&bits, &x, sizeof bits);
+  bits += 0x7FFFu + ((bits >> 16) & 1u);
+  bits &= 0xFFFF0000u;
+  float rounded;
+  std::memcpy(&rounded, &bits, sizeof rounded);
+  return rounded;
+}
+
+// The operands a kernel multiplies: themselves, or for a bfloat16 kernel rounded to bfloat16.
+MatrixD Operand(const GemmKernel& kernel, const Eigen::Ref<const Matrix>& x) {
+  if (!kernel.bf16_pairs) return x.cast<double>();
+  return x.unaryExpr([](float v) { return RoundToBf16(v); }).cast<double>();
+}
+
 // Checks kernel on one case, with each operand a view into a larger matrix (row stride larger
-// than its width), against the double product and Higham's bound.
+// than its width), against the double product and Higham's bound. A bfloat16 kernel is checked
+// against the double product of the bfloat16-rounded operands: their products are exact in fp32
+// (8-bit significands), so the fp32 accumulation is all that is left to bound.
 void CheckAgainstDouble(const GemmKernel& kernel, const Case& c, Philox& rng) {
   const std::string what = std::string(kernel.name) + " m=" + std::to_string(c.m) + " n=" +
                            std::to_string(c.n) + " k=" + std::to_string(c.k) + " ta=" +
@@ -62,8 +90,8 @@ void CheckAgainstDouble(const GemmKernel& kernel, const Case& c, Philox& rng) {
                  c.tb ? Transpose::kYes : Transpose::kNo, c.alpha, a, b, c.beta,
                  c_big.block(1, 4, c.m, c.n));
 
-  const MatrixD op_a = c.ta ? MatrixD(a.cast<double>().transpose()) : MatrixD(a.cast<double>());
-  const MatrixD op_b = c.tb ? MatrixD(b.cast<double>().transpose()) : MatrixD(b.cast<double>());
+  const MatrixD op_a = c.ta ? MatrixD(Operand(kernel, a).transpose()) : Operand(kernel, a);
+  const MatrixD op_b = c.tb ? MatrixD(Operand(kernel, b).transpose()) : Operand(kernel, b);
   const MatrixD exact = op_a * op_b;
   const MatrixD magnitude = op_a.cwiseAbs() * op_b.cwiseAbs();
   const double u = std::ldexp(1.0, -24), gamma = c.k * u / (1 - c.k * u);
@@ -220,6 +248,99 @@ TEST(GemmTest, SameBitsOnRepeatAndOnAnotherThread) {
   std::thread([&] { Gemm(Transpose::kNo, Transpose::kYes, 1.0f, a, b, 0.0f, elsewhere); }).join();
   EXPECT_EQ(first, again);
   EXPECT_EQ(first, elsewhere);
+}
+
+// The bfloat16 kernel's conversions (vcvtneps2bf16) against PyTorch 1.13's Tensor.to(bfloat16)
+// (Debian python3-torch, tests/reference/torch_bf16.py): the same bits on normal numbers of every
+// magnitude, on exact ties (both parities of the kept last bit) and on signed zeros. Two cases
+// PyTorch cannot hand back through the text format are checked against round-to-nearest-even
+// itself: the largest floats round up to infinity, and infinities stay. Subnormal inputs are
+// flushed to signed zero, as the instruction is defined (Intel SDM, VCVTNEPS2BF16: denormal
+// inputs treated as zero); PyTorch keeps them, a difference below 1.2e-38.
+TEST(GemmTest, Bf16RoundingMatchesPyTorch) {
+  const GemmKernel* kernel = Avx512Bf16Kernel();
+  if (kernel == nullptr) GTEST_SKIP() << "this CPU has no AVX512_BF16";
+  Philox rng(21);
+  std::vector<float> values = {0.0f, -0.0f, 1.0f, -1.0f, FLT_MIN, -FLT_MIN, 3.0e38f};
+  for (int i = 0; i < 2000; ++i) {
+    values.push_back(static_cast<float>(rng.NextNormal() * std::pow(10.0, 60 * rng.NextUniform() - 30)));
+  }
+  for (uint32_t upper : {0x3F80u, 0x3F81u, 0xC2F3u, 0x0A01u, 0x4B00u}) {  // ties: low half 0x8000
+    const uint32_t bits = (upper << 16) | 0x8000u;
+    float tie;
+    std::memcpy(&tie, &bits, sizeof tie);
+    values.push_back(tie);
+  }
+  const int64_t n = static_cast<int64_t>(values.size());
+  // pair_rows on (value, value of the next entry) and pair_adjacent on the whole vector give every
+  // value through both conversions.
+  std::vector<float> shifted(values.begin() + 1, values.end());
+  shifted.push_back(0.0f);
+  std::vector<float> from_rows(n), from_adjacent((n + 1) / 2);
+  kernel->pair_rows(values.data(), shifted.data(), n, from_rows.data());
+  kernel->pair_adjacent(values.data(), n, from_adjacent.data());
+  const auto half = [](const std::vector<float>& words, int64_t i, bool high) {
+    uint32_t w;
+    std::memcpy(&w, &words[i], sizeof w);
+    const uint32_t bits = (high ? w & 0xFFFF0000u : w << 16);
+    float f;
+    std::memcpy(&f, &bits, sizeof f);
+    return f;
+  };
+  const std::string dir = testing::MakeTempDir("chorus-torch-bf16");
+  MatrixD in(1, n);
+  for (int64_t i = 0; i < n; ++i) in(0, i) = values[i];
+  testing::WriteMatrixText(dir + "/in.txt", in);
+  testing::RunReferenceScript("torch_bf16.py", {"round", dir + "/in.txt", dir + "/out.txt"});
+  const MatrixD torch = testing::ReadMatrixText(dir + "/out.txt");
+  ASSERT_EQ(torch.cols(), n);
+  for (int64_t i = 0; i < n; ++i) {
+    const double want = torch(0, i);
+    EXPECT_EQ(half(from_rows, i, false), want) << "pair_rows low half of value " << values[i];
+    if (i > 0) {
+      EXPECT_EQ(half(from_rows, i - 1, true), want) << "pair_rows high half of " << values[i];
+    }
+    EXPECT_EQ(half(from_adjacent, i / 2, i % 2 == 1), want) << "pair_adjacent of " << values[i];
+    EXPECT_EQ(RoundToBf16(values[i]), want) << "the test's own rounding of " << values[i];
+    EXPECT_EQ(std::signbit(half(from_rows, i, false)), std::signbit(want)) << values[i];
+  }
+  if (n % 2 == 1) {
+    EXPECT_EQ(half(from_adjacent, n / 2, true), 0.0f) << "odd k: the pair's high half";
+  }
+  std::filesystem::remove_all(dir);
+
+  const float edge[] = {FLT_MAX, -FLT_MAX, INFINITY, -INFINITY, 1.0e-39f, -1.0e-39f};
+  std::vector<float> out(3);
+  kernel->pair_adjacent(edge, 6, out.data());
+  EXPECT_EQ(half(out, 0, false), INFINITY);
+  EXPECT_EQ(half(out, 0, true), -INFINITY);
+  EXPECT_EQ(half(out, 1, false), INFINITY);
+  EXPECT_EQ(half(out, 1, true), -INFINITY);
+  EXPECT_EQ(half(out, 2, false), 0.0f);
+  EXPECT_FALSE(std::signbit(half(out, 2, false)));
+  EXPECT_EQ(half(out, 2, true), 0.0f);
+  EXPECT_TRUE(std::signbit(half(out, 2, true)));
+}
+
+// Gemm's precision switch: kBf16 runs the bfloat16 kernel where the CPU has one, and fp32 stays
+// the default and gives the fp32 kernel's bits.
+TEST(GemmTest, PrecisionChoosesTheKernel) {
+  Philox rng(22);
+  const Matrix a = RandomMatrix(20, 50, rng), b = RandomMatrix(50, 40, rng);
+  Matrix fp32(20, 40), bf16(20, 40), by_kernel(20, 40);
+  Gemm(Transpose::kNo, Transpose::kNo, 1.0f, a, b, 0.0f, fp32);
+  Gemm(Transpose::kNo, Transpose::kNo, 1.0f, a, b, 0.0f, bf16, ProductPrecision::kBf16);
+  const GemmKernel* kernel = Avx512Bf16Kernel();
+  EXPECT_EQ(Bf16ProductsAvailable(), kernel != nullptr);
+  GemmWithKernel(kernel != nullptr ? *kernel : BestGemmKernel(), Transpose::kNo, Transpose::kNo,
+                 1.0f, a, b, 0.0f, by_kernel);
+  EXPECT_EQ(bf16, by_kernel);
+  GemmWithKernel(BestGemmKernel(), Transpose::kNo, Transpose::kNo, 1.0f, a, b, 0.0f, by_kernel);
+  EXPECT_EQ(fp32, by_kernel);
+  if (kernel != nullptr) {
+    EXPECT_NE(bf16, fp32);
+    EXPECT_STREQ(GemmBackendName(ProductPrecision::kBf16), "avx512-bf16");
+  }
 }
 
 }  // namespace gemm_test

@@ -67,6 +67,20 @@ TEST(ConfigLoaderTest, HashIgnoresSpeedOnlySettingsButNotModelSettings) {
   EXPECT_NE(ConfigHash(a), ConfigHash(b));
 }
 
+// train.products changes the arithmetic, so it is part of the hash; it round-trips and defaults
+// to fp32.
+TEST(ConfigLoaderTest, ProductPrecisionLoadsRoundTripsAndChangesTheHash) {
+  const Config fp32 = ParseConfig(kMinimal, "/x/a.yaml").value();
+  EXPECT_EQ(fp32.train.products, ProductPrecision::kFp32);
+  StatusOr<Config> bf16 = ParseConfig(std::string(kMinimal) + "train: {products: bf16}\n", "/x/a.yaml");
+  ASSERT_TRUE(bf16.ok()) << bf16.status().ToString();
+  EXPECT_EQ(bf16.value().train.products, ProductPrecision::kBf16);
+  EXPECT_NE(ConfigHash(fp32), ConfigHash(bf16.value()));
+  StatusOr<Config> again = ParseConfig(ConfigToYaml(bf16.value()), "/y/b.yaml");
+  ASSERT_TRUE(again.ok()) << again.status().ToString();
+  EXPECT_EQ(again.value().train.products, ProductPrecision::kBf16);
+}
+
 TEST(ConfigLoaderTest, ConvolutionStagesLoadRoundTripAndChangeTheHash) {
   const std::string text = std::string(kMinimal) +
       "model:\n  image: [3, 32, 30]\n  conv:\n    - {channels: 8, kernel: 5, pool: average}\n"
@@ -173,6 +187,8 @@ TEST(ConfigLoaderTest, BadConfigsAreRejectedWithTheirPlace) {
                 "cfg.yaml:1:61: data.validation.fraction: expected a fraction in [1e-09, 0.5], found 0.7"},
       BadConfig{"BadEnum", "data: {train: a, test: b, target: y}\nmodel: {activation: swish}\n",
                   "model.activation: expected one of relu, tanh, gelu, found \"swish\""},
+      BadConfig{"BadProducts", "data: {train: a, test: b, target: y}\ntrain: {products: fp16}\n",
+                "cfg.yaml:2:19: train.products: expected one of fp32, bf16, found \"fp16\""},
       BadConfig{"BadFormat", "data: {format: parquet, train: a, test: b, target: y}\n",
                 "cfg.yaml:1:16: data.format: expected one of csv, idx, found \"parquet\""},
       BadConfig{"BadTask", "data: {train: a, test: b, target: y, task: ranking}\n",
