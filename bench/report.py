@@ -169,7 +169,7 @@ class Report:
 
     def chorus_lines(self, batch, threads, network="mlp"):
         return [f for f in select(self.records, "chorus", batch=batch, threads=threads)
-                if f.get("network", "mlp") == network and is_fp32(f)]
+                if f.get("network", "mlp") == network and is_fp32(f) and "pair" not in f]
 
     def chorus_in(self, batch, threads, rnd, network="mlp"):
         found = [f for f in self.chorus_lines(batch, threads, network) if round_of(f) == rnd]
@@ -332,6 +332,38 @@ class Report:
                 + table(("round", "chorus, 1", "PyTorch, 1", "ratio", "chorus, 2 at once",
                          "PyTorch, 2 at once", "ratio", "load"), rows))
 
+    def bf16_section(self):
+        """bf16 products at batch 128: chorus fp32 and bf16 back to back in each round (lines
+        tagged pair=bf16), and the median of the within-round ratios."""
+        lines = [f for f in select(self.records, "chorus", batch=128) if f.get("pair") == "bf16"]
+        rounds = sorted({round_of(f) for f in lines} - {None}, key=int)
+        if not rounds:
+            return "### bf16 products (batch 128)\n\nNot measured in this run (no AVX512_BF16)."
+
+        def rate_of(threads, products, rnd):
+            found = [f for f in lines if f.get("threads") == str(threads) and round_of(f) == rnd
+                     and f.get("products", "fp32") == products]
+            return num(found[0], "samples_per_s") if found else None
+        rows, ratios = [], {1: [], 2: []}
+        for r in rounds:
+            cells = [r]
+            for threads in (1, 2):
+                fp32, bf16 = rate_of(threads, "fp32", r), rate_of(threads, "bf16", r)
+                ratios[threads].append(ratio(bf16, fp32))
+                cells += [rate(fp32), rate(bf16),
+                          "not measured" if ratio(bf16, fp32) is None else f"{ratio(bf16, fp32):.2f}x"]
+            cells.append(loads([f for f in lines if round_of(f) == r]))
+            rows.append(tuple(cells))
+        r1 = self.target("batch 128, 1 member: chorus bf16 / fp32 products", median(ratios[1]), 1.6,
+                         lambda x: f"{x:.2f}x")
+        r2 = self.target("batch 128, 2 at once: chorus bf16 / fp32 products", median(ratios[2]), 1.6,
+                         lambda x: f"{x:.2f}x")
+        return ("### bf16 products (batch 128, samples/s)\n\n"
+                "chorus-bench-train 128 3 with train.products fp32, then bf16, in each round. Median "
+                f"ratio: one member {r1}, two at once {r2}.\n\n"
+                + table(("round", "fp32, 1", "bf16, 1", "ratio", "fp32, 2 at once", "bf16, 2 at once",
+                         "ratio", "load"), rows))
+
     def step_section(self):
         pieces = [("products", "the eight products back to back"),
                   ("backward", "+ bias, activation, head, bias gradients"),
@@ -393,7 +425,8 @@ class Report:
 
     def render(self):
         sections = [self.machine_section(), self.gemm_section(), self.training_section(),
-                    self.conv_section(), self.step_section(), self.predict_section()]
+                    self.conv_section(), self.bf16_section(), self.step_section(),
+                    self.predict_section()]
         sections.append("### Targets (issues 6 and 15)\n\n"
                         + table(("target", "measured", "required", "met"), self.targets))
         raw = "\n".join(line for _, _, line in self.records)

@@ -15,17 +15,24 @@
 //   gather_step: the minibatch's rows copied from a shuffled 8192-row matrix, then
 //                TrainingStep::Run with one part, which takes one of the two above by the
 //                minibatch's rows (what TrainMember does per step, less the schedule).
-// Usage: chorus-bench-step [fp32|bf16] [BATCH...]   (default fp32, 32 128 512): the precision of
-// every product (common/gemm.h; bf16 needs AVX512_BF16).
-// Output, per batch and piece:
+// With --pair, two threads each run all of the above on a network of their own, meeting before
+// every timed block so that both run the same piece at the same time: as two members training
+// at once share the machine, piece by piece (what each piece loses to the other member).
+// Usage: chorus-bench-step [fp32|bf16] [--pair] [BATCH...]   (default fp32, 32 128 512): the
+// precision of every product (common/gemm.h; bf16 needs AVX512_BF16).
+// Output, per batch and piece (and with --pair, per thread):
 //   chorus-step batch=B piece=NAME median_us=T best_us=T samples_per_s=R products=P
-//   (R from the median)
+//               [together=2 thread=T]   (R from the median)
 #include <algorithm>
 #include <chrono>
+#include <condition_variable>
 #include <cstdio>
 #include <cstdlib>
+#include <cstring>
 #include <functional>
+#include <mutex>
 #include <numeric>
+#include <thread>
 #include <vector>
 
 #include "bench/chained_products.h"
@@ -45,12 +52,37 @@ constexpr int kFeatures = 784, kClasses = 10;
 constexpr int kBlocks = 30;
 constexpr int64_t kSamplesPerBlock = 2048;
 
+// Where the threads of --pair meet before each timed block.
+class Barrier {
+ public:
+  explicit Barrier(int parties) : parties_(parties) {}
+  void Wait() {
+    std::unique_lock<std::mutex> lock(mu_);
+    const int64_t generation = generation_;
+    if (++arrived_ == parties_) {
+      arrived_ = 0;
+      ++generation_;
+      cv_.notify_all();
+      return;
+    }
+    cv_.wait(lock, [&] { return generation_ != generation; });
+  }
+
+ private:
+  std::mutex mu_;
+  std::condition_variable cv_;
+  const int parties_;
+  int arrived_ = 0;
+  int64_t generation_ = 0;
+};
+
 double Median(std::vector<double> v) {
   std::sort(v.begin(), v.end());
   return v[v.size() / 2];
 }
 
-void MeasureBatch(int64_t batch, ProductPrecision precision) {
+// pair: null for one thread, else the barrier shared with the other thread (number `thread`).
+void MeasureBatch(int64_t batch, ProductPrecision precision, Barrier* pair, int thread) {
   Philox rng(Derive(1, "bench-step"));
   const Mlp net({kFeatures, 512, 512, kClasses}, Activation::kRelu);
   std::vector<float> params(net.ParameterCount()), grad(net.ParameterCount()),
@@ -132,6 +164,7 @@ void MeasureBatch(int64_t batch, ProductPrecision precision) {
   for (Piece& p : pieces) p.run();  // warm-up: first-touch page faults, packing buffers
   for (int block = 0; block < kBlocks; ++block) {
     for (Piece& p : pieces) {
+      if (pair != nullptr) pair->Wait();
       const auto start = Clock::now();
       for (int64_t s = 0; s < steps; ++s) p.run();
       p.seconds.push_back(std::chrono::duration<double>(Clock::now() - start).count() / steps);
@@ -140,10 +173,12 @@ void MeasureBatch(int64_t batch, ProductPrecision precision) {
   for (const Piece& p : pieces) {
     const double median = Median(p.seconds);
     const double best = *std::min_element(p.seconds.begin(), p.seconds.end());
+    char together[32] = "";
+    if (pair != nullptr) std::snprintf(together, sizeof together, " together=2 thread=%d", thread);
     std::printf(
-        "chorus-step batch=%lld piece=%s median_us=%.1f best_us=%.1f samples_per_s=%.0f products=%s\n",
+        "chorus-step batch=%lld piece=%s median_us=%.1f best_us=%.1f samples_per_s=%.0f products=%s%s\n",
         static_cast<long long>(batch), p.name, median * 1e6, best * 1e6,
-        static_cast<double>(batch) / median, ProductPrecisionName(precision));
+        static_cast<double>(batch) / median, ProductPrecisionName(precision), together);
   }
   std::fflush(stdout);
 }
@@ -156,10 +191,13 @@ int main(int argc, char** argv) {
   int first = 1;
   const auto precision = chorus::ParseProductPrecision(argc > 1 ? argv[1] : "");
   if (precision) first = 2;
+  const bool pair = argc > first && std::strcmp(argv[first], "--pair") == 0;
+  if (pair) ++first;
   for (int i = first; i < argc; ++i) {
     const long long b = std::atoll(argv[i]);
     if (b < 1 || b > 8192) {
-      std::fprintf(stderr, "usage: chorus-bench-step [fp32|bf16] [BATCH...]   (batch sizes 1-8192)\n");
+      std::fprintf(stderr,
+                   "usage: chorus-bench-step [fp32|bf16] [--pair] [BATCH...]   (batch sizes 1-8192)\n");
       return 2;
     }
     batches.push_back(b);
@@ -170,6 +208,15 @@ int main(int argc, char** argv) {
     return 2;
   }
   if (batches.empty()) batches = {32, 128, 512};
-  for (int64_t b : batches) chorus::MeasureBatch(b, products);
+  for (int64_t b : batches) {
+    if (!pair) {
+      chorus::MeasureBatch(b, products, nullptr, 0);
+      continue;
+    }
+    chorus::Barrier barrier(2);
+    std::thread other([&] { chorus::MeasureBatch(b, products, &barrier, 1); });
+    chorus::MeasureBatch(b, products, &barrier, 0);
+    other.join();
+  }
   return 0;
 }
