@@ -137,14 +137,6 @@ void PackAdjacentPairs(const GemmKernel& kernel, const float* src, int64_t ld, i
   }
 }
 
-// One pair row of a strip from two consecutive rows of an operand stored k-major (src1 null past
-// the end of k), `count` entries then zeros up to `width`.
-void PackPairRow(const GemmKernel& kernel, const float* src0, const float* src1, int count,
-                 int width, float* dst) {
-  kernel.pair_rows(src0, src1, count, dst);
-  for (int r = count; r < width; ++r) dst[r] = 0.0f;
-}
-
 // PackA for a bfloat16 kernel: strip s holds kcw x mr pairs.
 void PackAPairs(const GemmKernel& kernel, const ConstMatrixRef& a, bool trans, int64_t i0,
                 int64_t mc, int64_t p0, int64_t kc, float* pairs, float* out) {
@@ -156,10 +148,9 @@ void PackAPairs(const GemmKernel& kernel, const ConstMatrixRef& a, bool trans, i
       PackAdjacentPairs(kernel, a.data() + (i0 + s) * lda + p0, lda, rows, kc, mr, pairs, out);
       continue;
     }
-    for (int64_t q = 0; q < kcw; ++q) {  // op(A)(i, p) = A(p, i): a pair spans two rows of A
-      const float* src0 = a.data() + (p0 + 2 * q) * lda + i0 + s;
-      PackPairRow(kernel, src0, 2 * q + 1 < kc ? src0 + lda : nullptr, rows, mr, out + q * mr);
-    }
+    // op(A)(i, p) = A(p, i): a pair spans two rows of A. Strip by strip, so that each strip is
+    // written from start to end (its pair rows are 48 bytes, under a cache line).
+    kernel.pair_rows(a.data() + p0 * lda + i0 + s, lda, kc, rows, mr, out);
   }
 }
 
@@ -175,16 +166,10 @@ void PackBPairs(const GemmKernel& kernel, const ConstMatrixRef& b, bool trans, i
     }
     return;
   }
-  // op(B)(p, j) = B(p, j): each pair row from two rows of B, read from start to end and dealt
-  // out to the strips.
-  for (int64_t q = 0; q < kcw; ++q) {
-    const float* src0 = b.data() + (p0 + 2 * q) * ldb + j0;
-    const float* src1 = 2 * q + 1 < kc ? src0 + ldb : nullptr;
-    float* dst = out + q * nr;
-    for (int64_t s = 0; s < nc; s += nr, dst += kcw * nr) {
-      const int cols = static_cast<int>(std::min<int64_t>(nr, nc - s));
-      PackPairRow(kernel, src0 + s, src1 != nullptr ? src1 + s : nullptr, cols, nr, dst);
-    }
+  // op(B)(p, j) = B(p, j): a pair spans two rows of B; strip by strip.
+  for (int64_t s = 0; s < nc; s += nr, out += kcw * nr) {
+    const int cols = static_cast<int>(std::min<int64_t>(nr, nc - s));
+    kernel.pair_rows(b.data() + p0 * ldb + j0 + s, ldb, kc, cols, nr, out);
   }
 }
 

@@ -33,11 +33,13 @@ struct GemmKernel {
                     int64_t ld_dst);
   // bfloat16 kernels only (null otherwise), the two conversions packing needs, each float rounded
   // to bfloat16 to nearest even as the CPU's conversion instruction does:
-  // pair_rows: dst[j] = pair(src0[j], src1[j]) for j < n, with src1 null meaning zeros;
+  // pair_rows: one strip from an operand stored k-major (row p at src + p * ld), k rows of it:
+  // dst[q * width + j] = pair(src[2q * ld + j], src[(2q + 1) * ld + j]) for q < ceil(k / 2) and
+  // j < n (a missing last row pairs with zero), entries n <= j < width zero; width <= 32;
   // pair_adjacent: dst[q] = pair(src[2q], src[2q + 1]) for q < ceil(k / 2), the last one
   // pair(src[k - 1], 0) when k is odd.
   bool bf16_pairs = false;
-  void (*pair_rows)(const float* src0, const float* src1, int64_t n, float* dst) = nullptr;
+  void (*pair_rows)(const float* src, int64_t ld, int64_t k, int n, int width, float* dst) = nullptr;
   void (*pair_adjacent)(const float* src, int64_t k, float* dst) = nullptr;
 };
 

@@ -137,14 +137,22 @@ __attribute__((target("avx512f,avx512bw,avx512bf16"), always_inline)) inline __m
   return _mm512_permutexvar_epi16(interleave, (__m512i)_mm512_cvtne2ps_pbh(hi, lo));
 }
 
-__attribute__((target("avx512f,avx512bw,avx512bf16"))) void PairRowsAvx512(const float* src0,
-                                                                  const float* src1, int64_t n,
-                                                                  float* dst) {
-  for (int64_t j = 0; j < n; j += 16) {
-    const __mmask16 m = FirstLanes(static_cast<int>(std::min<int64_t>(16, n - j)));
-    const __m512 lo = _mm512_maskz_loadu_ps(m, src0 + j);
-    const __m512 hi = src1 != nullptr ? _mm512_maskz_loadu_ps(m, src1 + j) : _mm512_setzero_ps();
-    _mm512_mask_storeu_ps(dst + j, m, _mm512_castsi512_ps(PairLanes(lo, hi)));
+// A whole strip per call (12 or 32 entries: one or two vectors per pair row), written from
+// start to end.
+__attribute__((target("avx512f,avx512bw,avx512bf16"))) void PairRowsAvx512(
+    const float* src, int64_t ld, int64_t k, int n, int width, float* dst) {
+  const __mmask16 load0 = FirstLanes(n), load1 = FirstLanes(n - 16);
+  const __mmask16 store0 = FirstLanes(width), store1 = FirstLanes(width - 16);
+  for (int64_t p = 0; p < k; p += 2, dst += width) {
+    const float* row0 = src + p * ld;
+    const float* row1 = p + 1 < k ? row0 + ld : nullptr;
+    const __m512 lo0 = _mm512_maskz_loadu_ps(load0, row0);
+    const __m512 hi0 = row1 != nullptr ? _mm512_maskz_loadu_ps(load0, row1) : _mm512_setzero_ps();
+    _mm512_mask_storeu_ps(dst, store0, _mm512_castsi512_ps(PairLanes(lo0, hi0)));
+    if (width <= 16) continue;
+    const __m512 lo1 = _mm512_maskz_loadu_ps(load1, row0 + 16);
+    const __m512 hi1 = row1 != nullptr ? _mm512_maskz_loadu_ps(load1, row1 + 16) : _mm512_setzero_ps();
+    _mm512_mask_storeu_ps(dst + 16, store1, _mm512_castsi512_ps(PairLanes(lo1, hi1)));
   }
 }
 

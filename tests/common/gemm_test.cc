@@ -272,12 +272,17 @@ TEST(GemmTest, Bf16RoundingMatchesPyTorch) {
     values.push_back(tie);
   }
   const int64_t n = static_cast<int64_t>(values.size());
-  // pair_rows on (value, value of the next entry) and pair_adjacent on the whole vector give every
-  // value through both conversions.
-  std::vector<float> shifted(values.begin() + 1, values.end());
-  shifted.push_back(0.0f);
-  std::vector<float> from_rows(n), from_adjacent((n + 1) / 2);
-  kernel->pair_rows(values.data(), shifted.data(), n, from_rows.data());
+  // pair_rows on two rows, the values and the values shifted by one (32 columns a call, its
+  // widest strip), and pair_adjacent on the whole vector give every value through both
+  // conversions.
+  std::vector<float> two_rows(values);
+  two_rows.insert(two_rows.end(), values.begin() + 1, values.end());
+  two_rows.push_back(0.0f);
+  std::vector<float> from_rows(n + 32), from_adjacent((n + 1) / 2);
+  for (int64_t c = 0; c < n; c += 32) {
+    kernel->pair_rows(two_rows.data() + c, n, 2, static_cast<int>(std::min<int64_t>(32, n - c)), 32,
+                      from_rows.data() + c);
+  }
   kernel->pair_adjacent(values.data(), n, from_adjacent.data());
   const auto half = [](const std::vector<float>& words, int64_t i, bool high) {
     uint32_t w;
