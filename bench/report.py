@@ -303,27 +303,39 @@ class Report:
                          "PyTorch 2 processes, default malloc", "PyTorch 2 processes, tuned malloc",
                          "chorus / best PyTorch", "load"), two))
 
+    def paired_rounds(self, rounds, pair, lines_in, what, required):
+        """Table rows for measurements paired within each round, one and two at once: pair(n, r)
+        gives the round's two rates (in column order) and their ratio; lines_in(r) the round's
+        lines, for the load. Records the targets (what with "1 member" / "2 at once" filled in,
+        median ratio >= required); returns (rows, the one-member cell, the two-at-once cell)."""
+        rows, ratios = [], {1: [], 2: []}
+        for r in rounds:
+            cells = [r]
+            for n in (1, 2):
+                a, b, x = pair(n, r)
+                ratios[n].append(x)
+                cells += [rate(a), rate(b), "not measured" if x is None else f"{x:.2f}x"]
+            cells.append(loads(lines_in(r)))
+            rows.append(tuple(cells))
+        cell = {n: self.target(what.format("1 member" if n == 1 else "2 at once"), median(ratios[n]),
+                               required, lambda x: f"{x:.2f}x") for n in (1, 2)}
+        return rows, cell[1], cell[2]
+
     def conv_section(self):
         """The convolutional member at batch 128: chorus against PyTorch (tuned malloc) per round,
         and the median of the within-round ratios."""
         rounds = sorted({round_of(f) for f in self.chorus_lines(128, 1, "conv")} - {None})
         if not rounds:
             return "### Convolutional member (batch 128)\n\nNot measured in this run."
-        rows, ratios = [], {1: [], 2: []}
-        for r in rounds:
-            cells = [r]
-            for procs in (1, 2):
-                c = self.chorus_in(128, procs, r, "conv")
-                t = union_rate([f for f in select(self.records, "torch", group=f"b128-tuned-{procs}-conv")
-                                if round_of(f) == r])
-                ratios[procs].append(ratio(c, t))
-                cells += [rate(c), rate(t), "not measured" if ratio(c, t) is None else f"{ratio(c, t):.2f}x"]
-            cells.append(loads([f for f in self.chorus_lines(128, 1, "conv") if round_of(f) == r]))
-            rows.append(tuple(cells))
-        r1 = self.target("conv member, batch 128, 1 thread: chorus / PyTorch", median(ratios[1]), 1.5,
-                         lambda x: f"{x:.2f}x")
-        r2 = self.target("conv member, batch 128, 2 at once: chorus / PyTorch", median(ratios[2]), 1.5,
-                         lambda x: f"{x:.2f}x")
+
+        def pair(procs, r):
+            c = self.chorus_in(128, procs, r, "conv")
+            t = union_rate([f for f in select(self.records, "torch", group=f"b128-tuned-{procs}-conv")
+                            if round_of(f) == r])
+            return c, t, ratio(c, t)
+        rows, r1, r2 = self.paired_rounds(
+            rounds, pair, lambda r: [f for f in self.chorus_lines(128, 1, "conv") if round_of(f) == r],
+            "conv member, batch 128, {}: chorus / PyTorch", 1.5)
         return ("### Convolutional member (batch 128, samples/s)\n\n"
                 "The network of configs/fashion_mnist_conv.yaml (1 x 28 x 28, 3 x 3 convolutions to 16 "
                 "and 32 channels with 2 x 2 max pooling, then 1568-128-10); PyTorch with tuned malloc, "
@@ -344,20 +356,12 @@ class Report:
             found = [f for f in lines if f.get("threads") == str(threads) and round_of(f) == rnd
                      and f.get("products", "fp32") == products]
             return num(found[0], "samples_per_s") if found else None
-        rows, ratios = [], {1: [], 2: []}
-        for r in rounds:
-            cells = [r]
-            for threads in (1, 2):
-                fp32, bf16 = rate_of(threads, "fp32", r), rate_of(threads, "bf16", r)
-                ratios[threads].append(ratio(bf16, fp32))
-                cells += [rate(fp32), rate(bf16),
-                          "not measured" if ratio(bf16, fp32) is None else f"{ratio(bf16, fp32):.2f}x"]
-            cells.append(loads([f for f in lines if round_of(f) == r]))
-            rows.append(tuple(cells))
-        r1 = self.target("batch 128, 1 member: chorus bf16 / fp32 products", median(ratios[1]), 1.6,
-                         lambda x: f"{x:.2f}x")
-        r2 = self.target("batch 128, 2 at once: chorus bf16 / fp32 products", median(ratios[2]), 1.6,
-                         lambda x: f"{x:.2f}x")
+
+        def pair(threads, r):
+            fp32, bf16 = rate_of(threads, "fp32", r), rate_of(threads, "bf16", r)
+            return fp32, bf16, ratio(bf16, fp32)
+        rows, r1, r2 = self.paired_rounds(rounds, pair, lambda r: [f for f in lines if round_of(f) == r],
+                                          "batch 128, {}: chorus bf16 / fp32 products", 1.6)
         return ("### bf16 products (batch 128, samples/s)\n\n"
                 "chorus-bench-train 128 3 with train.products fp32, then bf16, in each round. Median "
                 f"ratio: one member {r1}, two at once {r2}.\n\n"

@@ -7,6 +7,7 @@
 
 #include <cmath>
 #include <limits>
+#include <utility>
 #include <vector>
 
 #include "common/gemm.h"
@@ -55,18 +56,25 @@ std::vector<float> Train(int parts, const ParallelFor* parallel, int steps, doub
   return params;
 }
 
+// How far `a` moved any parameter from Train's starting point, and how far b is from a: the
+// largest entry of each difference.
+std::pair<double, double> MovedAndDiffer(const std::vector<float>& a, const std::vector<float>& b) {
+  std::vector<float> start(Net().ParameterCount());
+  Net().Initialize(3, start.data());
+  double moved = 0, differ = 0;
+  for (size_t i = 0; i < a.size(); ++i) {
+    moved = std::max(moved, static_cast<double>(std::abs(a[i] - start[i])));
+    differ = std::max(differ, static_cast<double>(std::abs(a[i] - b[i])));
+  }
+  return {moved, differ};
+}
+
 TEST(TrainingStepTest, PartsAddUpToTheWholeBatchUpToRounding) {
   double loss_whole = 0, loss_parts = 0;
   const std::vector<float> whole = Train(1, nullptr, 1, &loss_whole);
   const std::vector<float> parts = Train(4, nullptr, 1, &loss_parts);
   EXPECT_NEAR(loss_parts, loss_whole, 1e-12 * std::abs(loss_whole) + 1e-12);
-  std::vector<float> start(Net().ParameterCount());
-  Net().Initialize(3, start.data());
-  double moved = 0, differ = 0;
-  for (size_t i = 0; i < whole.size(); ++i) {
-    moved = std::max(moved, static_cast<double>(std::abs(whole[i] - start[i])));
-    differ = std::max(differ, static_cast<double>(std::abs(whole[i] - parts[i])));
-  }
+  const auto [moved, differ] = MovedAndDiffer(whole, parts);
   EXPECT_GT(moved, 1e-4);            // the step did something
   EXPECT_LT(differ, 1e-5 * moved);   // and both ways did the same thing up to float rounding
 }
@@ -93,13 +101,7 @@ TEST(TrainingStepTest, Bf16StepFollowsTheFp32StepUpToOperandRounding) {
   const OptimizerConfig optimizer;
   const std::vector<float> fp32 = Train(1, nullptr, 1, nullptr, optimizer, ProductPrecision::kFp32);
   const std::vector<float> bf16 = Train(1, nullptr, 1, nullptr, optimizer, ProductPrecision::kBf16);
-  std::vector<float> start(Net().ParameterCount());
-  Net().Initialize(3, start.data());
-  double moved = 0, differ = 0;
-  for (size_t i = 0; i < fp32.size(); ++i) {
-    moved = std::max(moved, static_cast<double>(std::abs(fp32[i] - start[i])));
-    differ = std::max(differ, static_cast<double>(std::abs(fp32[i] - bf16[i])));
-  }
+  const auto [moved, differ] = MovedAndDiffer(fp32, bf16);
   EXPECT_GT(moved, 1e-4);
   EXPECT_GT(differ, 0.0);
   EXPECT_LT(differ, 0.1 * moved);
