@@ -22,8 +22,6 @@ __attribute__((target("avx512f"))) inline __mmask16 FirstLanes(int n) {
   return n >= 16 ? __mmask16(0xFFFF) : n <= 0 ? __mmask16(0) : __mmask16((1u << n) - 1u);
 }
 
-// kWide: both zmm columns of the tile; a tile of at most 16 columns (a narrow output layer)
-// runs half the FMAs.
 // The SGD step on up to 16 entries (lanes in m): G in g, weights and momentum at w and v.
 // Separate multiplies and adds, as SgdEntries: the same bits.
 __attribute__((target("avx512f"))) inline void SgdLanes(const SgdUpdate& u, __m512 g, float* w,
@@ -76,6 +74,8 @@ __attribute__((target("avx512f"), always_inline)) inline void FinishTileAvx512(
   }
 }
 
+// R rows; kWide: both zmm columns of the tile; a tile of at most 16 columns (a narrow output
+// layer) runs half the FMAs.
 template <int R, bool kWide>
 __attribute__((target("avx512f"))) void TileAvx512(int64_t kc, const float* ap, const float* bp,
                                                    int64_t ldb, float alpha, float beta, float* c,
