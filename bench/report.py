@@ -344,9 +344,27 @@ class Report:
                 + table(("round", "chorus, 1", "PyTorch, 1", "ratio", "chorus, 2 at once",
                          "PyTorch, 2 at once", "ratio", "load"), rows))
 
+    def bf16_gemm_rows(self):
+        """Per batch, the median over rounds of the GEMM limit with fp32 and with bf16 products
+        (chorus-bench-gemm's bf16 backends, where the CPU has them)."""
+        rows = []
+        for b in self.batches:
+            rates = {}
+            for f in select(self.records, "gemm-limit", batch=b):
+                rates.setdefault(f["backend"], []).append(float(f["samples_per_s"]))
+            if "chorus_bf16" not in rates:
+                continue
+            med = {name: median(values) for name, values in rates.items()}
+            gain = ratio(med.get("chorus_bf16"), med.get("chorus"))
+            rows.append((b, rate(med.get("chorus")), rate(med.get("chorus_bf16")),
+                         rate(med.get("onednn_bf16")), rate(med.get("onednn_fpmath_bf16")),
+                         "not measured" if gain is None else f"{gain:.2f}x"))
+        return rows
+
     def bf16_section(self):
         """bf16 products at batch 128: chorus fp32 and bf16 back to back in each round (lines
-        tagged pair=bf16), and the median of the within-round ratios."""
+        tagged pair=bf16), and the median of the within-round ratios; and the GEMM limit with bf16
+        products at every batch."""
         lines = [f for f in select(self.records, "chorus", batch=128) if f.get("pair") == "bf16"]
         rounds = sorted({round_of(f) for f in lines} - {None}, key=int)
         if not rounds:
@@ -366,7 +384,12 @@ class Report:
                 "chorus-bench-train 128 3 with train.products fp32, then bf16, in each round. Median "
                 f"ratio: one member {r1}, two at once {r2}.\n\n"
                 + table(("round", "fp32, 1", "bf16, 1", "ratio", "fp32, 2 at once", "bf16, 2 at once",
-                         "ratio", "load"), rows))
+                         "ratio", "load"), rows)
+                + "\n\nThe GEMM limit (samples/s, one thread; as above, the median over the rounds) "
+                "with bf16 products, every backend converting the fp32 operands as a step must:\n\n"
+                + table(("batch", "chorus fp32", "chorus bf16", "oneDNN bf16 matmul + reorders",
+                         "oneDNN f32 matmul, fpmath_mode bf16", "chorus bf16 / fp32"),
+                        self.bf16_gemm_rows()))
 
     def step_section(self):
         pieces = [("products", "the eight products back to back"),
