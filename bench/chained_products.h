@@ -13,12 +13,14 @@
 
 namespace chorus {
 
-// chorus::Gemm in the product signature Run takes: C = op(A) op(B) + beta C.
-inline void ChorusProduct(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta,
-                          Matrix& c) {
+// chorus::Gemm at a product precision, in the product signature Run takes:
+// C = op(A) op(B) + beta C.
+template <ProductPrecision kPrecision>
+void ChorusProductAt(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
   Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f, a, b,
-       beta, c);
+       beta, c, kPrecision);
 }
+inline constexpr auto ChorusProduct = ChorusProductAt<ProductPrecision::kFp32>;
 
 struct ChainedProducts {
   Matrix x;                          // the minibatch, batch x widths[0]

@@ -187,11 +187,6 @@ void OneDnnBf16(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, 
   plan->stream.wait();
 }
 
-void ChorusBf16(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
-  Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f, a, b,
-       beta, c, ProductPrecision::kBf16);
-}
-
 // beta is 0 or 1 in every product here: C = op(A) op(B), or C += op(A) op(B).
 void EigenProduct(bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
   if (beta == 0.0f) c.setZero();
@@ -212,13 +207,13 @@ constexpr Backend kFp32Backends[] = {
     {"onednn", OneDnn}, {"chorus", ChorusProduct}, {"eigen", EigenProduct}};
 constexpr Backend kBf16Backends[] = {{"onednn_bf16", OneDnnBf16<false>},
                                      {"onednn_fpmath_bf16", OneDnnBf16<true>},
-                                     {"chorus_bf16", ChorusBf16}};
+                                     {"chorus_bf16", ChorusProductAt<ProductPrecision::kBf16>}};
 
-void MeasureBatch(int64_t batch, const std::vector<Backend>& kBackends) {
-  const int kBackendCount = static_cast<int>(kBackends.size());
+void MeasureBatch(int64_t batch, const std::vector<Backend>& backends) {
+  const int backend_count = static_cast<int>(backends.size());
   const std::vector<int> widths = {784, 512, 512, 10};
   const std::vector<Product> products = StepProducts(widths, batch);
-  std::vector<double> step_seconds(kBackendCount);
+  std::vector<double> step_seconds(backend_count);
   double step_flops = 0;
   for (const Product& p : products) {
     Operands operands(p);
@@ -226,27 +221,27 @@ void MeasureBatch(int64_t batch, const std::vector<Backend>& kBackends) {
     std::printf("gemm-shape batch=%lld product=%s op=%c%c m=%lld n=%lld k=%lld", (long long)batch,
                 p.name.c_str(), p.ta ? 'T' : 'N', p.tb ? 'T' : 'N', (long long)p.m,
                 (long long)p.n, (long long)p.k);
-    for (int i = 0; i < kBackendCount; ++i) {
+    for (int i = 0; i < backend_count; ++i) {
       const double s = SecondsPerCall([&] {
-        kBackends[i].run(p.ta, p.tb, operands.a, operands.b, p.beta, operands.c);
+        backends[i].run(p.ta, p.tb, operands.a, operands.b, p.beta, operands.c);
       });
       step_seconds[i] += s;
-      std::printf(" %s_gflops=%.1f", kBackends[i].name, Flops(p) / s * 1e-9);
+      std::printf(" %s_gflops=%.1f", backends[i].name, Flops(p) / s * 1e-9);
     }
     std::printf("\n");
     std::fflush(stdout);
   }
-  for (int i = 0; i < kBackendCount; ++i) {
+  for (int i = 0; i < backend_count; ++i) {
     std::printf(
         "gemm-limit batch=%lld backend=%s step_us=%.1f samples_per_s=%.0f gflops=%.1f "
         "flops_per_sample=%.0f\n",
-        (long long)batch, kBackends[i].name, step_seconds[i] * 1e6, batch / step_seconds[i],
+        (long long)batch, backends[i].name, step_seconds[i] * 1e6, batch / step_seconds[i],
         step_flops / step_seconds[i] * 1e-9, step_flops / batch);
   }
   // The same products back to back on chained buffers, as a step runs them: operands no longer
   // stay hot in cache from one call of a product to the next. Eigen is left out (5x slower).
   ChainedProducts chained(widths, batch);
-  for (const Backend& backend : kBackends) {
+  for (const Backend& backend : backends) {
     if (std::string(backend.name) == "eigen") continue;
     const double s = SecondsPerCall([&] { chained.Run(backend.run); });
     std::printf(

@@ -127,10 +127,8 @@ void MeasureBatch(int64_t batch, ProductPrecision precision, Barrier* pair, int 
   std::vector<Piece> pieces = {
       {"products",
        [&] {
-         products.Run([&](bool ta, bool tb, const Matrix& a, const Matrix& b, float beta, Matrix& c) {
-           Gemm(ta ? Transpose::kYes : Transpose::kNo, tb ? Transpose::kYes : Transpose::kNo, 1.0f,
-                a, b, beta, c, precision);
-         });
+         products.Run(precision == ProductPrecision::kBf16 ? ChorusProductAt<ProductPrecision::kBf16>
+                                                           : ChorusProduct);
        },
        {}},
       {"backward", backward, {}},
