@@ -27,39 +27,54 @@ InputStrides StridesOf(const ConvFront::Stage& g, bool channel_major) {
   return {h * w * c, 1, w * c, c};
 }
 
+// Copies n floats; a loop the compiler vectorises, not a memcpy call: runs here are tens of floats,
+// where the call costs more than the copy (measured: memcpy was 4% of a member's step).
+[[gnu::always_inline]] inline void CopyRun(const float* __restrict src, int64_t n, float* __restrict dst) {
+  for (int64_t t = 0; t < n; ++t) dst[t] = src[t];
+}
+
+[[gnu::always_inline]] inline void AddRun(const float* __restrict src, int64_t n, float* __restrict dst) {
+  for (int64_t t = 0; t < n; ++t) dst[t] += src[t];
+}
+
+// The taps dx in [lo, hi) of a k-wide kernel row centred at x that fall inside [0, width).
+struct TapRange {
+  int lo, hi;
+};
+[[gnu::always_inline]] inline TapRange TapsInside(int x, const ConvFront::Stage& g) {
+  return {std::max(0, g.pad - x), std::min(g.kernel, g.width + g.pad - x)};
+}
+
 // Unfolds `samples` samples of `in` into columns: row (i H + y) W + x, column (dy k + dx) C + c
 // holds input channel c at (y + dy - pad, x + dx - pad) of sample i, or 0 outside the image.
-void Unfold(const float* in, int64_t samples, const ConvFront::Stage& g, const InputStrides& st,
-            float* columns) {
+// When a pixel's channels sit just before the next pixel's (channels last, or one channel), each
+// kernel row's taps inside the image are one run of the input, copied whole.
+[[gnu::always_inline]] inline void UnfoldBody(const float* in, int64_t samples, const ConvFront::Stage& g,
+                                              const InputStrides& st, float* columns) {
   const int k = g.kernel, c_in = g.in_channels;
-  const int64_t row_floats = g.KernelRows();
-  float* out = columns;
+  const int64_t span = int64_t{k} * c_in;
+  const bool runs = st.x == c_in && (c_in == 1 || st.channel == 1);
+  float* dst = columns;
   for (int64_t i = 0; i < samples; ++i) {
     const float* sample = in + i * st.sample;
     for (int y = 0; y < g.height; ++y) {
-      for (int x = 0; x < g.width; ++x, out += row_floats) {
-        float* dst = out;
-        for (int dy = 0; dy < k; ++dy) {
+      for (int x = 0; x < g.width; ++x) {
+        const TapRange taps = TapsInside(x, g);
+        for (int dy = 0; dy < k; ++dy, dst += span) {
           const int iy = y + dy - g.pad;
           if (iy < 0 || iy >= g.height) {
-            std::fill(dst, dst + int64_t{k} * c_in, 0.0f);
-            dst += int64_t{k} * c_in;
+            std::fill(dst, dst + span, 0.0f);
             continue;
           }
-          for (int dx = 0; dx < k; ++dx, dst += c_in) {
-            const int ix = x + dx - g.pad;
-            if (ix < 0 || ix >= g.width) {
-              std::fill(dst, dst + c_in, 0.0f);
-              continue;
-            }
-            // A loop, not memcpy: rows are a few channels long, where the call costs more than
-            // the copy (measured: memcpy was 4% of a Fashion-MNIST member's step).
-            const float* src = sample + iy * st.y + ix * st.x;
-            if (st.channel == 1) {
-              for (int c = 0; c < c_in; ++c) dst[c] = src[c];
-            } else {
-              for (int c = 0; c < c_in; ++c) dst[c] = src[c * st.channel];
-            }
+          std::fill(dst, dst + int64_t{taps.lo} * c_in, 0.0f);
+          std::fill(dst + int64_t{taps.hi} * c_in, dst + span, 0.0f);
+          const float* src = sample + iy * st.y + (x + taps.lo - g.pad) * st.x;
+          if (runs) {
+            CopyRun(src, int64_t{taps.hi - taps.lo} * c_in, dst + int64_t{taps.lo} * c_in);
+            continue;
+          }
+          for (int dx = taps.lo; dx < taps.hi; ++dx, src += st.x) {
+            for (int c = 0; c < c_in; ++c) dst[int64_t{dx} * c_in + c] = src[c * st.channel];
           }
         }
       }
@@ -67,37 +82,58 @@ void Unfold(const float* in, int64_t samples, const ConvFront::Stage& g, const I
   }
 }
 
+__attribute__((target("avx512f"))) void UnfoldAvx512(const float* in, int64_t samples, const ConvFront::Stage& g,
+                                                     const InputStrides& st, float* columns) {
+  UnfoldBody(in, samples, g, st, columns);
+}
+
+void Unfold(const float* in, int64_t samples, const ConvFront::Stage& g, const InputStrides& st,
+            float* columns) {
+  static const bool avx512 = __builtin_cpu_supports("avx512f");
+  if (avx512) return UnfoldAvx512(in, samples, g, st, columns);
+  UnfoldBody(in, samples, g, st, columns);
+}
+
 // The adjoint of Unfold for a channels-last input: adds each column entry back onto the input
-// pixel it was copied from. `in_grad` (samples H W C floats) is overwritten.
-void Fold(const float* columns, int64_t samples, const ConvFront::Stage& g, float* in_grad) {
+// pixel it was copied from, in column order. `in_grad` (samples H W C floats) is overwritten.
+[[gnu::always_inline]] inline void FoldBody(const float* columns, int64_t samples, const ConvFront::Stage& g,
+                                            float* in_grad) {
   const int k = g.kernel, c_in = g.in_channels;
+  const int64_t span = int64_t{k} * c_in;
   const InputStrides st = StridesOf(g, false);
   std::fill(in_grad, in_grad + samples * st.sample, 0.0f);
-  const float* src_row = columns;
+  const float* src = columns;
   for (int64_t i = 0; i < samples; ++i) {
     float* sample = in_grad + i * st.sample;
     for (int y = 0; y < g.height; ++y) {
-      for (int x = 0; x < g.width; ++x, src_row += g.KernelRows()) {
-        for (int dy = 0; dy < k; ++dy) {
+      for (int x = 0; x < g.width; ++x) {
+        const TapRange taps = TapsInside(x, g);
+        for (int dy = 0; dy < k; ++dy, src += span) {
           const int iy = y + dy - g.pad;
           if (iy < 0 || iy >= g.height) continue;
-          for (int dx = 0; dx < k; ++dx) {
-            const int ix = x + dx - g.pad;
-            if (ix < 0 || ix >= g.width) continue;
-            const float* src = src_row + (int64_t{dy} * k + dx) * c_in;
-            float* dst = sample + iy * st.y + ix * st.x;
-            for (int c = 0; c < c_in; ++c) dst[c] += src[c];
-          }
+          AddRun(src + int64_t{taps.lo} * c_in, int64_t{taps.hi - taps.lo} * c_in,
+                 sample + iy * st.y + (x + taps.lo - g.pad) * st.x);
         }
       }
     }
   }
+}
+
+__attribute__((target("avx512f"))) void FoldAvx512(const float* columns, int64_t samples, const ConvFront::Stage& g,
+                                                   float* in_grad) {
+  FoldBody(columns, samples, g, in_grad);
+}
+
+void Fold(const float* columns, int64_t samples, const ConvFront::Stage& g, float* in_grad) {
+  static const bool avx512 = __builtin_cpu_supports("avx512f");
+  if (avx512) return FoldAvx512(columns, samples, g, in_grad);
+  FoldBody(columns, samples, g, in_grad);
 }
 
 // Calls visit(sample, top_row, out_row) for every 2 x 2 window of a stage's pixel rows: the
 // window's pixels are rows top, top + 1, top + W, top + W + 1; out_row is its pooled row.
 template <typename Visit>
-void ForEachWindow(const ConvFront::Stage& g, int64_t samples, const Visit& visit) {
+[[gnu::always_inline]] inline void ForEachWindow(const ConvFront::Stage& g, int64_t samples, const Visit& visit) {
   for (int64_t i = 0; i < samples; ++i) {
     for (int oy = 0; oy < g.out_height; ++oy) {
       for (int ox = 0; ox < g.out_width; ++ox) {
@@ -109,7 +145,7 @@ void ForEachWindow(const ConvFront::Stage& g, int64_t samples, const Visit& visi
 
 // Calls visit(row) for every pixel row in no window: the last row or column of an odd image.
 template <typename Visit>
-void ForEachUnpooledPixel(const ConvFront::Stage& g, int64_t samples, const Visit& visit) {
+[[gnu::always_inline]] inline void ForEachUnpooledPixel(const ConvFront::Stage& g, int64_t samples, const Visit& visit) {
   if (g.height % 2 == 0 && g.width % 2 == 0) return;
   for (int64_t i = 0; i < samples; ++i) {
     for (int y = 0; y < g.height; ++y) {
@@ -120,83 +156,124 @@ void ForEachUnpooledPixel(const ConvFront::Stage& g, int64_t samples, const Visi
   }
 }
 
+// One 2 x 2 window of BiasActivateAndPool over c channels: z0..z3 are the window's pixel rows
+// in order (0,0), (0,1), (1,0), (1,1). Distinct rows, hence restrict: the loop vectorises.
+template <typename Act>
+[[gnu::always_inline]] inline void PoolWindow(const Act act, Pooling pool, int64_t c, const float* __restrict bias,
+                                              float* __restrict z0, float* __restrict z1, float* __restrict z2,
+                                              float* __restrict z3, float* __restrict dst, uint8_t* __restrict best) {
+  if (pool == Pooling::kAverage) {
+    for (int64_t j = 0; j < c; ++j) {
+      z0[j] += bias[j];
+      z1[j] += bias[j];
+      z2[j] += bias[j];
+      z3[j] += bias[j];
+      dst[j] = 0.25f * (((act(z0[j]) + act(z1[j])) + act(z2[j])) + act(z3[j]));
+    }
+    return;
+  }
+  for (int64_t j = 0; j < c; ++j) {
+    z0[j] += bias[j];
+    z1[j] += bias[j];
+    z2[j] += bias[j];
+    z3[j] += bias[j];
+    const float a0 = act(z0[j]), a1 = act(z1[j]), a2 = act(z2[j]), a3 = act(z3[j]);
+    // As a tree, with selects the compiler vectorises; the same winner as a scan in window order
+    // in which a later value wins only if greater.
+    const float top = a1 > a0 ? a1 : a0, bottom = a3 > a2 ? a3 : a2;
+    dst[j] = bottom > top ? bottom : top;
+    const int32_t right_top = a1 > a0, right_bottom = a3 > a2, in_bottom = bottom > top;
+    best[j] = static_cast<uint8_t>(2 * in_bottom + (in_bottom & right_bottom) + ((1 - in_bottom) & right_top));
+  }
+}
+
 // For a pooled stage, in one pass over the pre-activations z (channels-last (rows H W) x C): adds
 // the bias to z, applies the activation and pools 2 x 2 at stride 2 into `pooled`. Max keeps the
 // first of equal values in window order (0,0), (0,1), (1,0), (1,1), as PyTorch does, and records
 // it in `argmax`; average is ((a0 + a1) + a2) + a3 over 4. The activations themselves are never
 // stored: backward needs only z and the winners.
-void BiasActivateAndPool(Activation activation, const ConvFront::Stage& g, int64_t samples,
-                         const float* bias, Matrix& z, Matrix& pooled, std::vector<uint8_t>& argmax) {
+template <typename Act>
+[[gnu::always_inline]] inline void BiasActivateAndPoolBody(const Act act, const ConvFront::Stage& g, int64_t samples,
+                                                           const float* bias, Matrix& z, Matrix& pooled,
+                                                           std::vector<uint8_t>& argmax) {
   const int64_t c = g.out_channels;
-  WithActivation(activation, [&](const auto act) {
-    ForEachWindow(g, samples, [&](int64_t top, int64_t out_row) {
-      float* window[4] = {z.row(top).data(), z.row(top + 1).data(), z.row(top + g.width).data(),
-                          z.row(top + g.width + 1).data()};
-      float* dst = pooled.row(out_row).data();
-      float a[4];
-      if (g.pool == Pooling::kAverage) {
-        for (int64_t j = 0; j < c; ++j) {
-          for (int p = 0; p < 4; ++p) {
-            window[p][j] += bias[j];
-            a[p] = act(window[p][j]);
-          }
-          dst[j] = 0.25f * (((a[0] + a[1]) + a[2]) + a[3]);
-        }
-        return;
-      }
-      uint8_t* best = argmax.data() + out_row * c;
-      for (int64_t j = 0; j < c; ++j) {
-        for (int p = 0; p < 4; ++p) {
-          window[p][j] += bias[j];
-          a[p] = act(window[p][j]);
-        }
-        // Branch-free, so the compiler vectorises it; a later value wins only if greater.
-        float v = a[0];
-        uint8_t b = 0;
-        for (uint8_t p = 1; p < 4; ++p) {
-          const bool greater = a[p] > v;
-          v = greater ? a[p] : v;
-          b = greater ? p : b;
-        }
-        best[j] = b;
-        dst[j] = v;
-      }
-    });
-    ForEachUnpooledPixel(g, samples, [&](int64_t row) {
-      for (int64_t j = 0; j < c; ++j) z(row, j) += bias[j];
-    });
+  ForEachWindow(g, samples, [&](int64_t top, int64_t out_row) {
+    uint8_t* best = g.pool == Pooling::kMax ? argmax.data() + out_row * c : nullptr;
+    PoolWindow(act, g.pool, c, bias, z.row(top).data(), z.row(top + 1).data(), z.row(top + g.width).data(),
+               z.row(top + g.width + 1).data(), pooled.row(out_row).data(), best);
   });
+  ForEachUnpooledPixel(g, samples, [&](int64_t row) {
+    for (int64_t j = 0; j < c; ++j) z(row, j) += bias[j];
+  });
+}
+
+template <typename Act>
+__attribute__((target("avx512f"))) void BiasActivateAndPoolAvx512(const Act act, const ConvFront::Stage& g,
+                                                                  int64_t samples, const float* bias, Matrix& z,
+                                                                  Matrix& pooled, std::vector<uint8_t>& argmax) {
+  BiasActivateAndPoolBody(act, g, samples, bias, z, pooled, argmax);
+}
+
+void BiasActivateAndPool(Activation activation, const ConvFront::Stage& g, int64_t samples, const float* bias,
+                         Matrix& z, Matrix& pooled, std::vector<uint8_t>& argmax) {
+  static const bool avx512 = __builtin_cpu_supports("avx512f");
+  WithActivation(activation, [&](const auto act) {
+    if (avx512) return BiasActivateAndPoolAvx512(act, g, samples, bias, z, pooled, argmax);
+    BiasActivateAndPoolBody(act, g, samples, bias, z, pooled, argmax);
+  });
+}
+
+template <typename Act>
+[[gnu::always_inline]] inline void UnpoolWindow(const Act act, Pooling pool, int64_t c, const float* __restrict src,
+                                                const uint8_t* __restrict best, const float* __restrict z,
+                                                float* __restrict dst, int32_t p) {
+  if (pool == Pooling::kAverage) {
+    for (int64_t j = 0; j < c; ++j) dst[j] = act.Backward(0.25f * src[j], z[j]);
+    return;
+  }
+  for (int64_t j = 0; j < c; ++j) {
+    const int32_t winner = best[j];  // widened first, or the loop does not vectorise
+    dst[j] = act.Backward(winner == p ? src[j] : 0.0f, z[j]);
+  }
 }
 
 // The adjoint of BiasActivateAndPool, in one pass: from dL/d(pooled) and z, writes dL/dz into
 // `grad` (same shape as z). A window's gradient goes to its winner (max) or a quarter to each
 // pixel (average), times the activation's derivative; pixels in no window get 0.
-void UnpoolThroughActivation(Activation activation, const ConvFront::Stage& g, int64_t samples,
-                             const Matrix& pooled_grad, const std::vector<uint8_t>& argmax,
-                             const Matrix& z, Matrix& grad) {
+template <typename Act>
+[[gnu::always_inline]] inline void UnpoolThroughActivationBody(const Act act, const ConvFront::Stage& g,
+                                                               int64_t samples, const Matrix& pooled_grad,
+                                                               const std::vector<uint8_t>& argmax, const Matrix& z,
+                                                               Matrix& grad) {
   const int64_t c = g.out_channels;
+  ForEachWindow(g, samples, [&](int64_t top, int64_t out_row) {
+    const int64_t rows[4] = {top, top + 1, top + g.width, top + g.width + 1};
+    const uint8_t* best = g.pool == Pooling::kMax ? argmax.data() + out_row * c : nullptr;
+    for (int32_t p = 0; p < 4; ++p) {
+      UnpoolWindow(act, g.pool, c, pooled_grad.row(out_row).data(), best, z.row(rows[p]).data(),
+                   grad.row(rows[p]).data(), p);
+    }
+  });
+  ForEachUnpooledPixel(g, samples, [&](int64_t row) {
+    for (int64_t j = 0; j < c; ++j) grad(row, j) = act.Backward(0.0f, z(row, j));
+  });
+}
+
+template <typename Act>
+__attribute__((target("avx512f"))) void UnpoolThroughActivationAvx512(const Act act, const ConvFront::Stage& g,
+                                                                      int64_t samples, const Matrix& pooled_grad,
+                                                                      const std::vector<uint8_t>& argmax,
+                                                                      const Matrix& z, Matrix& grad) {
+  UnpoolThroughActivationBody(act, g, samples, pooled_grad, argmax, z, grad);
+}
+
+void UnpoolThroughActivation(Activation activation, const ConvFront::Stage& g, int64_t samples,
+                             const Matrix& pooled_grad, const std::vector<uint8_t>& argmax, const Matrix& z,
+                             Matrix& grad) {
+  static const bool avx512 = __builtin_cpu_supports("avx512f");
   WithActivation(activation, [&](const auto act) {
-    ForEachWindow(g, samples, [&](int64_t top, int64_t out_row) {
-      const int64_t rows[4] = {top, top + 1, top + g.width, top + g.width + 1};
-      const float* src = pooled_grad.row(out_row).data();
-      if (g.pool == Pooling::kAverage) {
-        for (int64_t r : rows) {
-          const float* zr = z.row(r).data();
-          float* dst = grad.row(r).data();
-          for (int64_t j = 0; j < c; ++j) dst[j] = act.Backward(0.25f * src[j], zr[j]);
-        }
-        return;
-      }
-      const uint8_t* best = argmax.data() + out_row * c;
-      for (uint8_t p = 0; p < 4; ++p) {
-        const float* zr = z.row(rows[p]).data();
-        float* dst = grad.row(rows[p]).data();
-        for (int64_t j = 0; j < c; ++j) dst[j] = act.Backward(best[j] == p ? src[j] : 0.0f, zr[j]);
-      }
-    });
-    ForEachUnpooledPixel(g, samples, [&](int64_t row) {
-      for (int64_t j = 0; j < c; ++j) grad(row, j) = act.Backward(0.0f, z(row, j));
-    });
+    if (avx512) return UnpoolThroughActivationAvx512(act, g, samples, pooled_grad, argmax, z, grad);
+    UnpoolThroughActivationBody(act, g, samples, pooled_grad, argmax, z, grad);
   });
 }
 
