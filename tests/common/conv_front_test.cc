@@ -5,6 +5,7 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <filesystem>
 #include <fstream>
@@ -95,6 +96,23 @@ Problem TanhAverage() {
                      {4}, Activation::kTanh, true);
 }
 
+// tanh and max pooling over windows with tied values: inputs in {-1, 0, 1} and a kernel that
+// reads only its centre tap, so equal inputs give equal pre-activations, while the winner's
+// neighbours (which the other taps' gradients read) differ. PyTorch's max pooling passes the
+// gradient to the first of equal values in window order; so must ours.
+Problem TanhTiedWindows() {
+  Problem p = MakeProblem("tanh-tied-windows", {1, 6, 6}, {{2, 3, Pooling::kMax}}, {}, Activation::kTanh, true);
+  for (int64_t i = 0; i < p.x.size(); ++i) {
+    p.x.data()[i] = std::round(std::clamp(p.x.data()[i], -1.0f, 1.0f)) + 0.0f;  // + 0: no -0
+  }
+  const ConvFront front(p.image, p.stages, p.activation);
+  const int centre = (3 / 2) * 3 + 3 / 2;  // row (dy k + dx) C_in + c with dy = dx = 1, c = 0
+  for (int64_t row = 0; row < front.stages()[0].KernelRows(); ++row) {
+    for (int o = 0; o < 2 && row != centre; ++o) p.params[front.WeightOffset(0) + row * 2 + o] = 0.0f;
+  }
+  return p;
+}
+
 double HeadLoss(const Problem& p, const ConstMatrixRef& out, MatrixRef grad_out) {
   return p.softmax ? SoftmaxCrossEntropy(out, p.labels.data(), grad_out)
                    : GaussianNll(out, p.targets.data(), grad_out);
@@ -169,7 +187,7 @@ constexpr double kTorchRelativeBound = 1e-5;
 // k / 2 padding, F.max_pool2d / F.avg_pool2d, F.linear, the activations and heads, autograd, in
 // float64 and float32, from the same flat parameters.
 TEST(ConvFrontTest, ForwardAndGradientsMatchTorch) {
-  std::vector<Problem> problems = {ReluTwoPools(), GeluNoPool(), TanhMixed()};
+  std::vector<Problem> problems = {ReluTwoPools(), GeluNoPool(), TanhMixed(), TanhTiedWindows()};
   std::vector<std::string> dirs;
   for (const Problem& p : problems) {
     dirs.push_back(MakeTempDir("chorus-torch-conv"));
