@@ -108,7 +108,8 @@ Problem TanhTiedWindows() {
   const ConvFront front(p.image, p.stages, p.activation);
   const int centre = (3 / 2) * 3 + 3 / 2;  // row (dy k + dx) C_in + c with dy = dx = 1, c = 0
   for (int64_t row = 0; row < front.stages()[0].KernelRows(); ++row) {
-    for (int o = 0; o < 2 && row != centre; ++o) p.params[front.WeightOffset(0) + row * 2 + o] = 0.0f;
+    if (row == centre) continue;
+    for (int o = 0; o < 2; ++o) p.params[front.WeightOffset(0) + row * 2 + o] = 0.0f;
   }
   return p;
 }
