@@ -106,10 +106,11 @@ Problem TanhTiedWindows() {
     p.x.data()[i] = std::round(std::clamp(p.x.data()[i], -1.0f, 1.0f)) + 0.0f;  // + 0: no -0
   }
   const ConvFront front(p.image, p.stages, p.activation);
-  const int centre = (3 / 2) * 3 + 3 / 2;  // row (dy k + dx) C_in + c with dy = dx = 1, c = 0
-  for (int64_t row = 0; row < front.stages()[0].KernelRows(); ++row) {
+  const ConvFront::Stage& g = front.stages()[0];
+  const int64_t centre = int64_t{g.pad} * g.kernel + g.pad;  // row (dy k + dx) C_in + c, dy = dx = pad, c = 0
+  for (int64_t row = 0; row < g.KernelRows(); ++row) {
     if (row == centre) continue;
-    for (int o = 0; o < 2; ++o) p.params[front.WeightOffset(0) + row * 2 + o] = 0.0f;
+    for (int o = 0; o < g.out_channels; ++o) p.params[front.WeightOffset(0) + row * g.out_channels + o] = 0.0f;
   }
   return p;
 }
