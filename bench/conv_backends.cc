@@ -297,7 +297,8 @@ bool MeasureBatch(int64_t batch) {
   ConvFront::Workspace ws = front.MakeWorkspace(batch);
   OneDnnFront onednn(front, batch, x.data(), params.data(), onednn_grad.data());
   onednn.Describe(batch);
-  std::printf("conv-chorus batch=%lld columns=%s\n", (long long)batch, ws.kept_columns.empty() ? "chunked" : "kept");
+  std::printf("conv-chorus batch=%lld chunk_samples=%lld,%lld\n", (long long)batch, (long long)ws.chunk_samples[0],
+              (long long)ws.chunk_samples[1]);
 
   const auto out = front.Forward(params.data(), x, ws);
   onednn.Forward();

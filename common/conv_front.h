@@ -10,11 +10,13 @@
 // weight row order.
 // Parameters (float32, one block): for each stage, the kernel as a (k k C_s) x C_{s+1} row-major
 // matrix whose row (dy k + dx) C_s + c is input channel c at offset (dy, dx), then the bias.
-// A workspace whose unfolded inputs for max_rows samples fit in kKeptColumnsBytes keeps them from
-// Forward for Backward (one unfolding and one kernel-gradient GEMM per stage: a training
-// minibatch); a larger one unfolds chunks of kChunkSamples samples, twice, so its scratch memory
-// does not grow with the batch (prediction over many rows), and sums the kernel gradient over the
-// chunks in order. Either way the bits depend only on the data and the workspace's max_rows.
+// Forward and Backward run each stage over chunks of samples (Workspace::chunk_samples), sized
+// so that a chunk's unfolded input and pre-activations stay in a core's L2 cache: unfold, product,
+// then bias, activation and pooling (forward); the pooling's adjoint, the unfolding again, the
+// kernel gradient's share and the input gradient (backward). Only the stages' outputs, the
+// pooling winners and their pre-activations (max) or all pre-activations (otherwise) span the
+// batch. A sample's outputs depend only on it and the parameters; the parameter gradients add
+// the chunks' shares in order, so their bits depend on the batch and the chunk size.
 // Thread safety: a ConvFront is immutable and shareable; a Workspace belongs to one thread.
 #pragma once
 
@@ -30,8 +32,7 @@ namespace chorus {
 
 class ConvFront {
  public:
-  static constexpr int64_t kChunkSamples = 16;
-  static constexpr int64_t kKeptColumnsBytes = int64_t{64} << 20;
+  static constexpr int64_t kChunkBytes = int64_t{384} << 10;  // unfolded input + pre-activations
 
   // The geometry of one stage.
   struct Stage {
@@ -43,6 +44,8 @@ class ConvFront {
     int64_t Pixels() const { return int64_t{height} * width; }
     int64_t OutPixels() const { return int64_t{out_height} * out_width; }
   };
+  // Samples per chunk of a stage: as many as fit chunk_bytes, at least 1.
+  static int64_t ChunkSamples(const Stage& g, int64_t chunk_bytes = kChunkBytes);
 
   ConvFront() = default;  // no stages
   // Requires every stage valid for `input` (CheckConvStages); asserts otherwise.
@@ -60,19 +63,20 @@ class ConvFront {
   // Activations kept for backward, for up to max_rows samples. Forward and Backward on at most
   // max_rows rows allocate nothing.
   struct Workspace {
-    std::vector<Matrix> pre;      // per stage: pre-activation, (rows H W) x C_out
+    std::vector<Matrix> pre;      // per stage: pre-activation, (rows H W) x C_out; one chunk's if max-pooled
     std::vector<Matrix> post;     // per unpooled stage: activation, same shape; else empty
     std::vector<Matrix> pooled;   // per pooled stage: (rows H' W') x C_out; else empty
     std::vector<std::vector<uint8_t>> argmax;  // per max-pooled stage: winner in its 2 x 2 window
-    std::vector<Matrix> grad;     // per stage: dL/d(post), then dL/d(pre) in place
+    std::vector<Matrix> argmax_z;  // per max-pooled stage: the winner's pre-activation, shaped as pooled
+    std::vector<Matrix> grad;     // per unpooled stage: dL/d(post), then dL/d(pre) in place; else empty
     std::vector<Matrix> grad_pooled;  // per pooled stage: dL/d(pooled)
-    std::vector<Matrix> kept_columns;  // per stage: the whole batch unfolded, or all empty
-    Matrix columns;               // unfolded input of one chunk, when not kept
-    Matrix column_grad;           // the gradient of one chunk's unfolded input
+    std::vector<int64_t> chunk_samples;  // per stage: samples per chunk
+    Matrix columns;               // one chunk's unfolded input, then its gradient
+    Matrix chunk_grad;            // dL/d(pre) of one chunk of a pooled stage
     ProductPrecision products = ProductPrecision::kFp32;  // of the stages' products
   };
-  // kept_columns_bytes: the budget for keeping the unfolded inputs (tests pass 0 to force chunks).
-  Workspace MakeWorkspace(int64_t max_rows, int64_t kept_columns_bytes = kKeptColumnsBytes) const;
+  // chunk_bytes: sizes the chunks (tests pass a small one to run many chunks on small images).
+  Workspace MakeWorkspace(int64_t max_rows, int64_t chunk_bytes = kChunkBytes) const;
 
   // N(0, gain^2 / (k k C_s)) kernels (gain^2 = 2 for relu/gelu, 1 for tanh; He et al. 2015) and
   // zero biases, drawn in parameter order from rng.
@@ -109,5 +113,10 @@ std::string CheckConvStages(const ImageShape& input, const std::vector<ConvStage
 
 // Parameters of the front, or -1 if CheckConvStages fails.
 int64_t ConvParameterCount(const ImageShape& input, const std::vector<ConvStage>& stages);
+
+// For tests: true runs the fronts' element-wise passes (unfolding, folding, pooling and their
+// adjoints) in their baseline x86-64 form even where the CPU has AVX-512; false restores the
+// CPU's choice. Takes effect for passes started after the call, in every thread.
+void ForceBaselineConvPasses(bool baseline);
 
 }  // namespace chorus

@@ -26,18 +26,32 @@ void NetworkSize(int64_t features, const std::vector<int>& hidden, int64_t outpu
 }
 
 // Floats a convolutional front holds for each row of a minibatch (common/conv_front.h Workspace:
-// pre-activations and their gradients, activations or pooled copies and the pooling winners'
-// bytes rounded up, the unfolded input a training minibatch keeps), and the unfolding buffers it
-// holds whatever the batch.
+// for a max-pooled stage the pooled copies, their gradients, the winners' pre-activations and
+// bytes rounded up; for an average-pooled one the pre-activations, pooled copies and their
+// gradients; else pre-activations, activations and their gradients), and the chunk buffers it
+// holds whatever the batch (one chunk's unfolded input and pre-activations' gradient, shared by
+// the stages, and each max-pooled stage's chunk of pre-activations).
 void FrontSize(const ConvFront& front, int64_t* per_row, int64_t* fixed) {
   *per_row = 0;
-  *fixed = 0;
+  int64_t columns = 0, chunk_grad = 0, chunk_pre = 0;
   for (const ConvFront::Stage& g : front.stages()) {
-    const bool pooled = g.pool != Pooling::kNone;
-    *per_row += (2 * g.Pixels() + (pooled ? 2 * g.OutPixels() + g.OutPixels() / 4 + 1 : g.Pixels())) * g.out_channels +
-                g.Pixels() * g.KernelRows();
-    *fixed = std::max(*fixed, 2 * ConvFront::kChunkSamples * g.Pixels() * g.KernelRows());
+    const int64_t chunk_floats = ConvFront::ChunkSamples(g) * g.Pixels() * g.out_channels;
+    columns = std::max(columns, ConvFront::ChunkSamples(g) * g.Pixels() * g.KernelRows());
+    if (g.pool != Pooling::kNone) chunk_grad = std::max(chunk_grad, chunk_floats);
+    switch (g.pool) {
+      case Pooling::kMax:
+        *per_row += (3 * g.OutPixels() + g.OutPixels() / 4 + 1) * g.out_channels;
+        chunk_pre += chunk_floats;
+        break;
+      case Pooling::kAverage:
+        *per_row += (g.Pixels() + 2 * g.OutPixels()) * g.out_channels;
+        break;
+      case Pooling::kNone:
+        *per_row += 3 * g.Pixels() * g.out_channels;
+        break;
+    }
   }
+  *fixed = columns + chunk_grad + chunk_pre;
 }
 
 }  // namespace

@@ -31,7 +31,8 @@ using testing::RunReferenceScript;
 using testing::WriteMatrixText;
 
 constexpr uint64_t kSeed = 20261203;  // every random draw below derives from it
-// More rows than ConvFront::kChunkSamples, so the unfolding runs in two chunks, the second short.
+// Rows per batch; workspaces from SmallChunks below cut them into chunks of 3 samples at the
+// first stage (the last chunk short).
 constexpr int kRows = 20;
 
 struct Problem {
@@ -126,8 +127,17 @@ struct Pass {
   MatrixD grad;  // 1 x P
 };
 
+// A workspace whose chunks hold 3 samples at the first stage (the small test images would
+// otherwise fit one chunk), so that the checks below cover the sums across chunks.
+Mlp::Workspace SmallChunks(const Mlp& net, int64_t max_rows) {
+  Mlp::Workspace ws = net.MakeWorkspace(max_rows);
+  const ConvFront::Stage& g = net.front().stages()[0];
+  ws.front = net.front().MakeWorkspace(max_rows, 3 * g.Pixels() * (g.KernelRows() + g.out_channels) * 4);
+  return ws;
+}
+
 Pass ChorusPass(const Problem& p) {
-  Mlp::Workspace ws = p.net.MakeWorkspace(kRows + 5);  // larger than the batch on purpose
+  Mlp::Workspace ws = SmallChunks(p.net, kRows + 5);  // larger than the batch on purpose
   const MatrixRef out = p.net.Forward(p.params.data(), p.x, ws);
   Matrix grad_out(kRows, out.cols());
   Pass r;
@@ -219,7 +229,7 @@ TEST(ConvFrontTest, GradientMatchesCentralDifferences) {
     SCOPED_TRACE(p.name);
     const Pass ours = ChorusPass(p);
     const std::vector<float> analytic(ours.grad.data(), ours.grad.data() + ours.grad.size());
-    Mlp::Workspace ws = p.net.MakeWorkspace(kRows);
+    Mlp::Workspace ws = SmallChunks(p.net, kRows);
     Matrix grad_out(kRows, p.net.widths().back());
     const LossFunction loss = [&](const std::vector<float>& w) {
       return HeadLoss(p, p.net.Forward(w.data(), p.x, ws), grad_out);
@@ -264,10 +274,9 @@ TEST(ConvFrontTest, EachRowsOutputIsThatOfTheRowAlone) {
   }
 }
 
-// A workspace that keeps the whole batch unfolded (a training minibatch) and one that unfolds
-// chunks of it twice (prediction over many rows) give the same outputs, bit for bit, and kernel
-// gradients equal up to the order of the chunks' float32 sums.
-TEST(ConvFrontTest, KeptAndChunkedUnfoldingAgree) {
+// Chunks of 3 samples and one chunk of the whole batch give the same outputs, bit for bit, and
+// kernel gradients equal up to the order of the chunks' float32 sums.
+TEST(ConvFrontTest, ChunkSizeChangesOnlyTheGradientsRounding) {
   const Problem p = ReluTwoPools();
   const ConvFront& front = p.net.front();
   Matrix grad_out(kRows, front.Outputs());
@@ -275,9 +284,9 @@ TEST(ConvFrontTest, KeptAndChunkedUnfoldingAgree) {
   for (int64_t i = 0; i < grad_out.size(); ++i) grad_out.data()[i] = static_cast<float>(rng.NextNormal());
   std::vector<Matrix> outputs;
   std::vector<std::vector<float>> grads;
-  for (int64_t budget : {ConvFront::kKeptColumnsBytes, int64_t{0}}) {
-    ConvFront::Workspace ws = front.MakeWorkspace(kRows, budget);
-    EXPECT_EQ(ws.kept_columns.empty(), budget == 0);
+  for (const bool small : {false, true}) {
+    ConvFront::Workspace ws = small ? SmallChunks(p.net, kRows).front : front.MakeWorkspace(kRows);
+    EXPECT_EQ(ws.chunk_samples[0], small ? 3 : kRows);
     outputs.push_back(front.Forward(p.params.data(), p.x, ws));
     front.OutputGradient(ws, kRows) = grad_out;
     grads.emplace_back(front.ParameterCount(), NAN);
@@ -292,6 +301,24 @@ TEST(ConvFrontTest, KeptAndChunkedUnfoldingAgree) {
   // the largest partial sum, with a factor 2 for terms up to about 2).
   const MatrixD a = as_matrix(grads[0]), b = as_matrix(grads[1]);
   EXPECT_LE(MaxAbsDiff(a, b), 1e-4 * std::max(1.0, a.cwiseAbs().maxCoeff()));
+  EXPECT_GT(MaxAbsDiff(a, b), 0.0);  // the chunks really did sum in another order
+}
+
+// The element-wise passes are compiled twice, for baseline x86-64 and for AVX-512, and picked
+// at run time; both forms give the same bits (outputs and parameter gradients) on every problem.
+TEST(ConvFrontTest, BaselineAndAvx512PassesGiveTheSameBits) {
+  if (!__builtin_cpu_supports("avx512f")) GTEST_SKIP() << "this CPU runs the baseline passes only";
+  for (const Problem& p : {ReluTwoPools(), GeluNoPool(), TanhMixed(), TanhAverage(), TanhTiedWindows()}) {
+    SCOPED_TRACE(p.name);
+    std::vector<Pass> passes;
+    for (const bool baseline : {false, true}) {
+      ForceBaselineConvPasses(baseline);
+      passes.push_back(ChorusPass(p));
+    }
+    ForceBaselineConvPasses(false);
+    EXPECT_EQ(MaxAbsDiff(passes[0].outputs, passes[1].outputs), 0.0);
+    EXPECT_EQ(MaxAbsDiff(passes[0].grad, passes[1].grad), 0.0);
+  }
 }
 
 // He et al. 2015: kernels drawn with variance 2 / (k k C_in) for relu, 1 / (k k C_in) for tanh.
