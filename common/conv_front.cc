@@ -470,6 +470,28 @@ ConvFront::Workspace ConvFront::MakeWorkspace(int64_t max_rows, int64_t chunk_by
   return ws;
 }
 
+int64_t ConvFront::WorkspaceFloats(int64_t max_rows, int64_t chunk_bytes) const {
+  int64_t floats = 0, column_floats = 0, grad_floats = 0;
+  for (const Stage& g : stages_) {
+    const int64_t chunk = std::max<int64_t>(1, std::min(max_rows, ChunkSamples(g, chunk_bytes)));
+    const int64_t c = g.out_channels;
+    switch (g.pool) {
+      case Pooling::kMax:  // pre (one chunk); pooled, its gradient, the winners' z; the winners
+        floats += chunk * g.Pixels() * c + 3 * max_rows * g.OutPixels() * c + (max_rows * g.OutPixels() * c + 3) / 4;
+        break;
+      case Pooling::kAverage:  // pre; pooled and its gradient
+        floats += max_rows * (g.Pixels() + 2 * g.OutPixels()) * c;
+        break;
+      case Pooling::kNone:  // pre, post and its gradient
+        floats += 3 * max_rows * g.Pixels() * c;
+        break;
+    }
+    column_floats = std::max(column_floats, chunk * g.Pixels() * g.KernelRows());
+    if (g.pool != Pooling::kNone) grad_floats = std::max(grad_floats, chunk * g.Pixels() * c);
+  }
+  return floats + column_floats + grad_floats;
+}
+
 void ConvFront::Initialize(Philox& rng, float* params) const {
   const double gain2 = activation_ == Activation::kTanh ? 1.0 : 2.0;
   for (size_t s = 0; s < stages_.size(); ++s) {

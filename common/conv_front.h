@@ -77,6 +77,9 @@ class ConvFront {
   };
   // chunk_bytes: sizes the chunks (tests pass a small one to run many chunks on small images).
   Workspace MakeWorkspace(int64_t max_rows, int64_t chunk_bytes = kChunkBytes) const;
+  // The floats MakeWorkspace(max_rows, chunk_bytes) holds (the winners' bytes rounded up to
+  // whole floats per stage), without allocating them: for the run's memory estimate.
+  int64_t WorkspaceFloats(int64_t max_rows, int64_t chunk_bytes = kChunkBytes) const;
 
   // N(0, gain^2 / (k k C_s)) kernels (gain^2 = 2 for relu/gelu, 1 for tanh; He et al. 2015) and
   // zero biases, drawn in parameter order from rng.

@@ -25,35 +25,6 @@ void NetworkSize(int64_t features, const std::vector<int>& hidden, int64_t outpu
   *widths += outputs;
 }
 
-// Floats a convolutional front holds for each row of a minibatch (common/conv_front.h Workspace:
-// for a max-pooled stage the pooled copies, their gradients, the winners' pre-activations and
-// bytes rounded up; for an average-pooled one the pre-activations, pooled copies and their
-// gradients; else pre-activations, activations and their gradients), and the chunk buffers it
-// holds whatever the batch (one chunk's unfolded input and pre-activations' gradient, shared by
-// the stages, and each max-pooled stage's chunk of pre-activations).
-void FrontSize(const ConvFront& front, int64_t* per_row, int64_t* fixed) {
-  *per_row = 0;
-  int64_t columns = 0, chunk_grad = 0, chunk_pre = 0;
-  for (const ConvFront::Stage& g : front.stages()) {
-    const int64_t chunk_floats = ConvFront::ChunkSamples(g) * g.Pixels() * g.out_channels;
-    columns = std::max(columns, ConvFront::ChunkSamples(g) * g.Pixels() * g.KernelRows());
-    if (g.pool != Pooling::kNone) chunk_grad = std::max(chunk_grad, chunk_floats);
-    switch (g.pool) {
-      case Pooling::kMax:
-        *per_row += (3 * g.OutPixels() + g.OutPixels() / 4 + 1) * g.out_channels;
-        chunk_pre += chunk_floats;
-        break;
-      case Pooling::kAverage:
-        *per_row += (g.Pixels() + 2 * g.OutPixels()) * g.out_channels;
-        break;
-      case Pooling::kNone:
-        *per_row += 3 * g.Pixels() * g.out_channels;
-        break;
-    }
-  }
-  *fixed = columns + chunk_grad + chunk_pre;
-}
-
 }  // namespace
 
 std::string ByteText(int64_t bytes) {
@@ -88,8 +59,6 @@ MemoryEstimate EstimateRunMemory(const Config& config, const PreparedData& data,
   const ConvFront front = config.model.conv.empty()
                               ? ConvFront()
                               : ConvFront(config.model.image, config.model.conv, config.model.activation);
-  int64_t front_per_row = 0, front_fixed = 0;
-  FrontSize(front, &front_per_row, &front_fixed);
   const int64_t dense_inputs = front.empty() ? data.features() : front.Outputs();
   int64_t widths = 0;
   for (const std::vector<int>& hidden : shapes) {
@@ -119,8 +88,8 @@ MemoryEstimate EstimateRunMemory(const Config& config, const PreparedData& data,
           ? int64_t{basin.sgmcmc.cycles} * basin.sgmcmc.samples_per_cycle + 1
           : 0;
   const int64_t per_member_floats = e.parameters * (6 + config.train.parts + basin_vectors + collected_vectors) +
-                                    int64_t{config.train.batch_size} * (widths * 4 + front_per_row) +
-                                    front_fixed + laplace_fit_floats;
+                                    int64_t{config.train.batch_size} * widths * 4 +
+                                    front.WorkspaceFloats(config.train.batch_size) + laplace_fit_floats;
   e.training_bytes = int64_t{members_at_once} * per_member_floats * 4;
   const int64_t samples = basin.method == BasinMethod::kNone ? 1
                           : basin.method == BasinMethod::kCyclicalSgmcmc ? collected_vectors - 1

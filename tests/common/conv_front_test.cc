@@ -321,6 +321,31 @@ TEST(ConvFrontTest, BaselineAndAvx512PassesGiveTheSameBits) {
   }
 }
 
+// The run's memory estimate (common/memory_estimate.h) counts a front's workspace with
+// WorkspaceFloats, without allocating it; the count is what MakeWorkspace allocates, for small
+// images in one chunk or several and for the Fashion-MNIST member's shape at batch 128.
+TEST(ConvFrontTest, WorkspaceFloatsCountsWhatMakeWorkspaceHolds) {
+  std::vector<ConvFront> fronts;
+  for (const Problem& p : {ReluTwoPools(), GeluNoPool(), TanhMixed(), TanhAverage()}) fronts.push_back(p.net.front());
+  fronts.emplace_back(ImageShape{1, 28, 28}, std::vector<ConvStage>{{16, 3, Pooling::kMax}, {32, 3, Pooling::kMax}},
+                      Activation::kRelu);
+  for (const ConvFront& front : fronts) {
+    for (const int64_t rows : {int64_t{1}, int64_t{7}, int64_t{128}}) {
+      for (const int64_t chunk_bytes : {ConvFront::kChunkBytes, int64_t{4096}}) {
+        SCOPED_TRACE(::testing::Message() << front.stages().size() << " stages, rows " << rows << ", chunk bytes "
+                                        << chunk_bytes);
+        const ConvFront::Workspace ws = front.MakeWorkspace(rows, chunk_bytes);
+        int64_t floats = ws.columns.size() + ws.chunk_grad.size();
+        for (size_t s = 0; s < front.stages().size(); ++s) {
+          floats += ws.pre[s].size() + ws.post[s].size() + ws.pooled[s].size() + ws.grad[s].size() +
+                    ws.grad_pooled[s].size() + ws.argmax_z[s].size() + (static_cast<int64_t>(ws.argmax[s].size()) + 3) / 4;
+        }
+        EXPECT_EQ(front.WorkspaceFloats(rows, chunk_bytes), floats);
+      }
+    }
+  }
+}
+
 // He et al. 2015: kernels drawn with variance 2 / (k k C_in) for relu, 1 / (k k C_in) for tanh.
 TEST(ConvFrontTest, KernelsAreDrawnWithTheirFanInVariance) {
   for (Activation a : {Activation::kRelu, Activation::kTanh}) {
