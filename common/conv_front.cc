@@ -108,7 +108,8 @@ void UnfoldBaseline(const float* in, int64_t samples, const ConvFront::Stage& g,
 // The same in AVX-512 moves: each kernel row's span is written whole, 16 lanes at a time, the
 // taps outside the image loaded as 0 by the load's mask (no lane outside the input is read). In
 // place of a memmove and two memsets per kernel row it took 23% less time forward and backward
-// (BENCHMARKS.md).
+// (BENCHMARKS.md). Its loops repeat UnfoldBaseline's: GCC will not inline the AVX-512 moves into
+// a shared skeleton compiled for baseline x86-64.
 __attribute__((target("avx512f"))) void UnfoldAvx512(const float* in, int64_t samples, const ConvFront::Stage& g,
                                                      float* columns) {
   const int k = g.kernel, c_in = g.in_channels;
