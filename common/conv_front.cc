@@ -39,7 +39,7 @@ struct TapRange {
 // `columns_t` (ld floats apart) holds input channel c at (y + dy - pad, x + dx - pad) of sample
 // i, or 0 outside the image. The input is channel-major, so each row is made of whole image rows,
 // shifted: runs of about W floats, where the untransposed form would copy runs of k (a stage on
-// 1 x 28 x 28 images took 25% less time forward and backward; BENCHMARKS.md).
+// 1 x 28 x 28 images took about 18% less time forward and backward; BENCHMARKS.md).
 void UnfoldTransposed(const float* in, int64_t samples, const ConvFront::Stage& g, float* columns_t, int64_t ld) {
   const int k = g.kernel;
   for (int dy = 0; dy < k; ++dy) {
@@ -107,9 +107,9 @@ void UnfoldBaseline(const float* in, int64_t samples, const ConvFront::Stage& g,
 
 // The same in AVX-512 moves: each kernel row's span is written whole, 16 lanes at a time, the
 // taps outside the image loaded as 0 by the load's mask (no lane outside the input is read). In
-// place of a memmove and two memsets per kernel row it took 23% less time forward and backward
-// (BENCHMARKS.md). Its loops repeat UnfoldBaseline's: GCC will not inline the AVX-512 moves into
-// a shared skeleton compiled for baseline x86-64.
+// place of a memmove and two memsets per kernel row it took about 25% less time forward and
+// backward (BENCHMARKS.md). Its loops repeat UnfoldBaseline's: GCC will not inline the AVX-512
+// moves into a shared skeleton compiled for baseline x86-64.
 __attribute__((target("avx512f"))) void UnfoldAvx512(const float* in, int64_t samples, const ConvFront::Stage& g,
                                                      float* columns) {
   const int k = g.kernel, c_in = g.in_channels;

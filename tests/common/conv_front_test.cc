@@ -337,8 +337,9 @@ TEST(ConvFrontTest, WorkspaceFloatsCountsWhatMakeWorkspaceHolds) {
         const ConvFront::Workspace ws = front.MakeWorkspace(rows, chunk_bytes);
         int64_t floats = ws.columns.size() + ws.chunk_grad.size();
         for (size_t s = 0; s < front.stages().size(); ++s) {
+          const int64_t argmax_floats = (static_cast<int64_t>(ws.argmax[s].size()) + 3) / 4;
           floats += ws.pre[s].size() + ws.post[s].size() + ws.pooled[s].size() + ws.grad[s].size() +
-                    ws.grad_pooled[s].size() + ws.argmax_z[s].size() + (static_cast<int64_t>(ws.argmax[s].size()) + 3) / 4;
+                    ws.grad_pooled[s].size() + ws.argmax_z[s].size() + argmax_floats;
         }
         EXPECT_EQ(front.WorkspaceFloats(rows, chunk_bytes), floats);
       }
