@@ -367,6 +367,13 @@ void UnpoolThroughActivation(Activation activation, const ConvFront::Stage& g, i
   });
 }
 
+// Samples per chunk of a stage: as many as fit chunk_bytes of unfolded input and
+// pre-activations, at least 1 and at most max_rows (when that is positive).
+int64_t ChunkSamples(const ConvFront::Stage& g, int64_t max_rows, int64_t chunk_bytes) {
+  const int64_t bytes_per_sample = g.Pixels() * (g.KernelRows() + g.out_channels) * int64_t{sizeof(float)};
+  return std::max<int64_t>(1, std::min(max_rows, chunk_bytes / bytes_per_sample));
+}
+
 std::vector<ConvFront::Stage> Geometry(const ImageShape& input, const std::vector<ConvStage>& stages) {
   std::vector<ConvFront::Stage> out;
   int c = input.channels, h = input.height, w = input.width;
@@ -443,18 +450,13 @@ void ForceBaselineConvPasses(bool baseline) {
   Avx512PassesFlag().store(!baseline && __builtin_cpu_supports("avx512f"), std::memory_order_relaxed);
 }
 
-int64_t ConvFront::ChunkSamples(const Stage& g, int64_t chunk_bytes) {
-  const int64_t bytes_per_sample = g.Pixels() * (g.KernelRows() + g.out_channels) * int64_t{sizeof(float)};
-  return std::max<int64_t>(1, chunk_bytes / bytes_per_sample);
-}
-
 ConvFront::Workspace ConvFront::MakeWorkspace(int64_t max_rows, int64_t chunk_bytes) const {
   Workspace ws;
   int64_t column_floats = 0, grad_floats = 0;
   for (const Stage& g : stages_) {
     const bool pooled = g.pool != Pooling::kNone;
-    const int64_t chunk = std::min(max_rows, ChunkSamples(g, chunk_bytes));
-    ws.chunk_samples.push_back(std::max<int64_t>(chunk, 1));
+    const int64_t chunk = ChunkSamples(g, max_rows, chunk_bytes);
+    ws.chunk_samples.push_back(chunk);
     const bool max = g.pool == Pooling::kMax;
     ws.pre.emplace_back((max ? chunk : max_rows) * g.Pixels(), g.out_channels);
     ws.post.emplace_back(pooled ? 0 : max_rows * g.Pixels(), g.out_channels);
@@ -474,7 +476,7 @@ ConvFront::Workspace ConvFront::MakeWorkspace(int64_t max_rows, int64_t chunk_by
 int64_t ConvFront::WorkspaceFloats(int64_t max_rows, int64_t chunk_bytes) const {
   int64_t floats = 0, column_floats = 0, grad_floats = 0;
   for (const Stage& g : stages_) {
-    const int64_t chunk = std::max<int64_t>(1, std::min(max_rows, ChunkSamples(g, chunk_bytes)));
+    const int64_t chunk = ChunkSamples(g, max_rows, chunk_bytes);
     const int64_t c = g.out_channels;
     switch (g.pool) {
       case Pooling::kMax:  // pre (one chunk); pooled, its gradient, the winners' z; the winners
@@ -524,11 +526,11 @@ Eigen::Map<const Matrix> ConvFront::Forward(const float* params, const ConstMatr
     const float* bias = params + BiasOffset(s);
     Eigen::Map<const Matrix> kernel(params + WeightOffset(s), g.KernelRows(), g.out_channels);
     const int64_t chunk = ws.chunk_samples[s];
+    // A max-pooled stage's pre-activations are one chunk's scratch (backward needs only the
+    // winners'); the others' span the batch.
+    const bool max = g.pool == Pooling::kMax;
     for (int64_t i0 = 0; i0 < rows; i0 += chunk) {
       const int64_t n = std::min(chunk, rows - i0);
-      // A max-pooled stage's pre-activations are one chunk's scratch (backward needs only the
-      // winners'); the others' span the batch.
-      const bool max = g.pool == Pooling::kMax;
       auto z = ws.pre[s].middleRows(max ? 0 : i0 * g.Pixels(), n * g.Pixels());
       if (s == 0) {
         Eigen::Map<Matrix> columns_t(ws.columns.data(), g.KernelRows(), n * g.Pixels());
@@ -572,6 +574,7 @@ void ConvFront::Backward(float* params, const ConstMatrixRef& x, Workspace& ws, 
       dbias.setZero();
     }
     const int64_t chunk = ws.chunk_samples[s];
+    const bool max = g.pool == Pooling::kMax;
     // Chunk by chunk: dZ (dL/dz); dK += columns^T dZ; db += 1^T dZ; for s > 0 also
     // dL/d(input) = Fold(dZ K^T), taken before K is updated.
     for (int64_t i0 = 0; i0 < rows; i0 += chunk) {
@@ -581,7 +584,6 @@ void ConvFront::Backward(float* params, const ConstMatrixRef& x, Workspace& ws, 
       if (g.pool == Pooling::kNone) {
         MultiplyActivationDerivative(activation_, ws.pre[s].middleRows(i0 * g.Pixels(), n * g.Pixels()), dz);
       } else {
-        const bool max = g.pool == Pooling::kMax;
         const int64_t out0 = i0 * g.OutPixels();
         UnpoolThroughActivation(activation_, g, n, ws.grad_pooled[s].row(out0).data(),
                                 max ? ws.argmax[s].data() + out0 * g.out_channels : nullptr,

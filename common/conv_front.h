@@ -44,8 +44,6 @@ class ConvFront {
     int64_t Pixels() const { return int64_t{height} * width; }
     int64_t OutPixels() const { return int64_t{out_height} * out_width; }
   };
-  // Samples per chunk of a stage: as many as fit chunk_bytes, at least 1.
-  static int64_t ChunkSamples(const Stage& g, int64_t chunk_bytes = kChunkBytes);
 
   ConvFront() = default;  // no stages
   // Requires every stage valid for `input` (CheckConvStages); asserts otherwise.
