@@ -5,9 +5,11 @@
 // then 1568-128-10, as configs/fashion_mnist_conv.yaml), relu, batch B (default 128), SGD (momentum 0.9, weight decay 5e-4,
 // cosine schedule), on synthetic data: 8192 standard-normal rows with uniformly random labels. Each
 // member runs through TrainMember, the same code a worker runs for a job (shuffle, gather,
-// forward, head, backward, schedule, SGD step), single-threaded. Two configurations:
+// forward, head, backward, schedule, SGD step), single-threaded. Three configurations:
 //   threads=1: one member on a tbb::task_arena of 1;
-//   threads=2: two members at once on a tbb::task_arena of 2 (as execution/job_slots.cc does).
+//   threads=2: two members at once on a tbb::task_arena of 2 (as execution/job_slots.cc does);
+//   granted, threads=2 members=1: one member given both threads (its products cut across them,
+//     as a job granted an idle slot's core runs: execution/job_slots.h).
 // The first epoch is a warm-up (page faults, caches, frequency ramp). The epoch-end callbacks
 // give the timed window: from the end of each member's first epoch to the end of its last, and
 // the reported rate is all timed samples divided by the union of the members' windows.
@@ -17,6 +19,7 @@
 // Output: one "machine:" line, then per configuration one line
 //   chorus threads=T members=T batch=B samples_per_s=R gflops=G flops_per_sample=F [network=conv]
 //   [products=bf16]
+// and for the third the same fields after "granted" instead of "chorus".
 #include <sched.h>
 #include <tbb/parallel_for.h>
 #include <tbb/task_arena.h>
@@ -33,6 +36,7 @@
 #include "common/member_training.h"
 #include "common/prepared_data.h"
 #include "common/rng.h"
+#include "execution/tbb_parallel_for.h"
 
 namespace chorus {
 namespace {
@@ -105,20 +109,23 @@ MemberSpec BenchSpec(int index, int batch, int timed_epochs, bool conv, ProductP
   return spec;
 }
 
-// Trains `threads` members at once, one per arena slot; returns samples per second over the union
-// of their timed windows. Exits with a message if a member fails.
-double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, bool conv,
+// Trains `members` members at once on an arena of `threads` (members <= threads); a member may
+// use the threads no member holds. Returns samples per second over the union of their timed
+// windows. Exits with a message if a member fails.
+double MeasureSamplesPerSecond(int threads, int members, int batch, int timed_epochs, bool conv,
                                ProductPrecision products, const PreparedData& data) {
-  std::vector<Clock::time_point> first(threads), last(threads);
+  std::vector<Clock::time_point> first(members), last(members);
   tbb::task_arena arena(threads);
+  const TbbParallelFor parallel;
   arena.execute([&] {
-    tbb::parallel_for(0, threads, [&](int m) {
+    tbb::parallel_for(0, members, [&](int m) {
       const ProgressFn mark = [&, m](const EpochProgress& p) {
         if (p.epoch == kWarmupEpochs) first[m] = Clock::now();
         if (p.epoch == p.epochs) last[m] = Clock::now();
       };
       const StatusOr<MemberResult> result =
-          TrainMember(BenchSpec(m, batch, timed_epochs, conv, products), data, mark);
+          TrainMember(BenchSpec(m, batch, timed_epochs, conv, products), data, mark, nullptr,
+                      members < threads ? &parallel : nullptr);
       if (!result.ok()) {
         std::fprintf(stderr, "member %d failed: %s\n", m, result.status().ToString().c_str());
         std::exit(1);
@@ -128,7 +135,7 @@ double MeasureSamplesPerSecond(int threads, int batch, int timed_epochs, bool co
   const auto start = *std::min_element(first.begin(), first.end());
   const auto end = *std::max_element(last.begin(), last.end());
   const double seconds = std::chrono::duration<double>(end - start).count();
-  return static_cast<double>(threads) * timed_epochs * kTrainRows / seconds;
+  return static_cast<double>(members) * timed_epochs * kTrainRows / seconds;
 }
 
 std::string CpuModel() {
@@ -173,10 +180,15 @@ int main(int argc, char** argv) {
   PrintMachine(*products);
   const PreparedData data = SyntheticData();
   const double flops = conv ? ConvFlopsPerSample() : FlopsPerSample({kFeatures, 512, 512, kClasses});
-  for (int threads : {1, 2}) {
-    const double rate = MeasureSamplesPerSecond(threads, batch, timed_epochs, conv, *products, data);
-    std::printf("chorus threads=%d members=%d batch=%d samples_per_s=%.0f gflops=%.2f", threads,
-                threads, batch, rate, rate * flops * 1e-9);
+  const struct {
+    const char* kind;
+    int threads, members;
+  } configurations[] = {{"chorus", 1, 1}, {"chorus", 2, 2}, {"granted", 2, 1}};
+  for (const auto& c : configurations) {
+    const double rate = MeasureSamplesPerSecond(c.threads, c.members, batch, timed_epochs, conv,
+                                                *products, data);
+    std::printf("%s threads=%d members=%d batch=%d samples_per_s=%.0f gflops=%.2f", c.kind,
+                c.threads, c.members, batch, rate, rate * flops * 1e-9);
     std::printf(" flops_per_sample=%.0f%s%s\n", flops, conv ? " network=conv" : "",
                 *products == ProductPrecision::kBf16 ? " products=bf16" : "");
     std::fflush(stdout);

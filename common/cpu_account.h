@@ -41,6 +41,7 @@ class CpuAccount {
    public:
     explicit ChargingParallelFor(CpuAccount& account) : account_(account) {}
     void Run(int64_t count, void (*body)(void* context, int64_t i), void* context) const override;
+    int Threads() const override { return account_.inner_->Threads(); }
 
    private:
     CpuAccount& account_;

@@ -18,6 +18,10 @@ namespace {
 constexpr int64_t kKc = 256;  // k per packed block
 constexpr int64_t kMc = 144;  // rows of op(A) per packed block: a multiple of every kernel's mr
 constexpr int64_t kNc = 512;  // columns of op(B) per packed panel: a multiple of every nr
+// Products with fewer multiply-adds stay on one thread when GemmAcross could cut them: a block
+// (2M multiply-adds, about 20 microseconds on one core) gains little over handing it to another
+// thread.
+constexpr int64_t kMinSplitMultiplies = int64_t{1} << 21;
 
 struct FreeDeleter {
   void operator()(float* p) const { std::free(p); }
@@ -264,7 +268,90 @@ const GemmKernel& KernelFor(ProductPrecision precision) {
   return precision == ProductPrecision::kBf16 && bf16 != nullptr ? *bf16 : BestGemmKernel();
 }
 
+// One product cut into `pieces` blocks of C's rows (by_rows) or columns, each a whole number of
+// the kernel's tiles but the last; block i is one ParallelFor item.
+struct SplitProduct {
+  const GemmKernel* kernel;
+  Transpose trans_a, trans_b;
+  float alpha;
+  const ConstMatrixRef* a;
+  const ConstMatrixRef* b;
+  float beta;
+  MatrixRef* c;
+  const SgdUpdate* sgd;
+  bool by_rows;
+  int64_t pieces, unit, extent;  // extent: rows or columns of C; unit: the kernel's mr or nr
+
+  int64_t Boundary(int64_t i) const {
+    const int64_t units = (extent + unit - 1) / unit;
+    return std::min(extent, i * units / pieces * unit);
+  }
+
+  static void RunPiece(void* context, int64_t i) {
+    const SplitProduct& s = *static_cast<const SplitProduct*>(context);
+    const int64_t lo = s.Boundary(i), len = s.Boundary(i + 1) - lo;
+    if (len == 0) return;
+    SgdUpdate piece_sgd{};
+    if (s.sgd != nullptr) {  // the block's weights and momentum, laid out like C
+      piece_sgd = *s.sgd;
+      const int64_t offset = s.by_rows ? lo * s.sgd->ld : lo;
+      piece_sgd.w += offset;
+      piece_sgd.v += offset;
+    }
+    const SgdUpdate* sgd = s.sgd != nullptr ? &piece_sgd : nullptr;
+    if (s.by_rows) {  // rows of op(A)
+      const ConstMatrixRef a = s.trans_a == Transpose::kYes ? ConstMatrixRef(s.a->middleCols(lo, len))
+                                                            : ConstMatrixRef(s.a->middleRows(lo, len));
+      GemmWithKernel(*s.kernel, s.trans_a, s.trans_b, s.alpha, a, *s.b, s.beta,
+                     s.c->middleRows(lo, len), sgd);
+    } else {  // columns of op(B)
+      const ConstMatrixRef b = s.trans_b == Transpose::kYes ? ConstMatrixRef(s.b->middleRows(lo, len))
+                                                            : ConstMatrixRef(s.b->middleCols(lo, len));
+      GemmWithKernel(*s.kernel, s.trans_a, s.trans_b, s.alpha, *s.a, b, s.beta,
+                     s.c->middleCols(lo, len), sgd);
+    }
+  }
+};
+
+void GemmWithKernelAcross(const ParallelFor* parallel, const GemmKernel& kernel, Transpose trans_a,
+                          Transpose trans_b, float alpha, const ConstMatrixRef& a,
+                          const ConstMatrixRef& b, float beta, MatrixRef c, const SgdUpdate* sgd) {
+  const int64_t m = c.rows(), n = c.cols(), k = trans_a == Transpose::kYes ? a.rows() : a.cols();
+  const int64_t threads = ThreadsOf(parallel);
+  if (threads <= 1 || m * n * k < kMinSplitMultiplies) {
+    GemmWithKernel(kernel, trans_a, trans_b, alpha, a, b, beta, c, sgd);
+    return;
+  }
+  // Every block packs the whole of the operand that is not cut. Cutting rows repeats op(B)'s
+  // packing (none when each block reads a plain op(B) in place: see GemmWithKernel), cutting
+  // columns repeats op(A)'s.
+  const bool b_in_place = trans_b == Transpose::kNo && !kernel.bf16_pairs &&
+                          (m + threads - 1) / threads <= kMc;
+  const bool by_rows = (b_in_place ? 0 : k * n) <= m * k;
+  const int64_t unit = by_rows ? kernel.mr : kernel.nr, extent = by_rows ? m : n;
+  const int64_t pieces = std::min(threads, (extent + unit - 1) / unit);
+  if (pieces <= 1) {
+    GemmWithKernel(kernel, trans_a, trans_b, alpha, a, b, beta, c, sgd);
+    return;
+  }
+  SplitProduct split{&kernel, trans_a, trans_b, alpha, &a, &b, beta, &c, sgd, by_rows, pieces, unit, extent};
+  parallel->Run(pieces, &SplitProduct::RunPiece, &split);
+}
+
 }  // namespace
+
+void GemmAcross(const ParallelFor* parallel, Transpose trans_a, Transpose trans_b, float alpha,
+                const ConstMatrixRef& a, const ConstMatrixRef& b, float beta, MatrixRef c,
+                ProductPrecision precision) {
+  GemmWithKernelAcross(parallel, KernelFor(precision), trans_a, trans_b, alpha, a, b, beta, c, nullptr);
+}
+
+void GemmSgdUpdateAcross(const ParallelFor* parallel, Transpose trans_a, Transpose trans_b,
+                         float alpha, const ConstMatrixRef& a, const ConstMatrixRef& b,
+                         const SgdUpdate& update, MatrixRef scratch, ProductPrecision precision) {
+  GemmWithKernelAcross(parallel, KernelFor(precision), trans_a, trans_b, alpha, a, b, 0.0f, scratch,
+                       &update);
+}
 
 void Gemm(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
           const ConstMatrixRef& b, float beta, MatrixRef c, ProductPrecision precision) {

@@ -9,6 +9,7 @@
 #pragma once
 
 #include "common/matrix.h"
+#include "common/parallel_for.h"
 #include "common/product_precision.h"
 #include "common/sgd.h"
 
@@ -33,6 +34,18 @@ void Gemm(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRe
 void GemmSgdUpdate(Transpose trans_a, Transpose trans_b, float alpha, const ConstMatrixRef& a,
                    const ConstMatrixRef& b, const SgdUpdate& update, MatrixRef scratch,
                    ProductPrecision precision = ProductPrecision::kFp32);
+
+// Gemm and GemmSgdUpdate with C cut into up to ThreadsOf(parallel) blocks of whole rows or whole
+// columns (whichever repeats less packing), each block one item of `parallel`: one product on
+// several threads. Same bits as Gemm / GemmSgdUpdate whatever the number of blocks: each element
+// of C is summed over k in the same blocks and order whichever block holds it.
+void GemmAcross(const ParallelFor* parallel, Transpose trans_a, Transpose trans_b, float alpha,
+                const ConstMatrixRef& a, const ConstMatrixRef& b, float beta, MatrixRef c,
+                ProductPrecision precision = ProductPrecision::kFp32);
+void GemmSgdUpdateAcross(const ParallelFor* parallel, Transpose trans_a, Transpose trans_b,
+                         float alpha, const ConstMatrixRef& a, const ConstMatrixRef& b,
+                         const SgdUpdate& update, MatrixRef scratch,
+                         ProductPrecision precision = ProductPrecision::kFp32);
 
 // Name of the micro-kernel this CPU runs at a precision ("avx512", "avx2", "portable",
 // "avx512-bf16"), for benchmark and manifest output.

@@ -1,5 +1,6 @@
 #include "common/mlp.h"
 
+#include <algorithm>
 #include <cassert>
 #include <cmath>
 
@@ -9,6 +10,27 @@
 #include "common/sgd.h"
 
 namespace chorus {
+namespace {
+
+// Element-wise passes over fewer entries stay on one thread (about 10 microseconds of work).
+constexpr int64_t kMinSplitEntries = 32 * 1024;
+
+// fn(first_row, rows) over blocks of [0, rows) that together cover it, one block per thread of
+// `parallel`; one block when the pass is small.
+template <typename Fn>
+void ForRowBlocks(const ParallelFor* parallel, int64_t rows, int64_t cols, Fn&& fn) {
+  const int64_t blocks = rows * cols < kMinSplitEntries ? 1 : std::min<int64_t>(ThreadsOf(parallel), rows);
+  if (blocks <= 1) {
+    fn(int64_t{0}, rows);
+    return;
+  }
+  ParallelForEach(parallel, blocks, [&](int64_t i) {
+    const int64_t first = i * rows / blocks;
+    fn(first, (i + 1) * rows / blocks - first);
+  });
+}
+
+}  // namespace
 
 Mlp::Mlp(std::vector<int> widths, Activation activation, ConvFront front)
     : widths_(std::move(widths)), activation_(activation), front_(std::move(front)),
@@ -61,7 +83,8 @@ ConstMatrixRef Mlp::LastLayerInput(const ConstMatrixRef& x, const Workspace& ws)
   return DenseInput(layers() - 1, x, ws);
 }
 
-MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& ws) const {
+MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& ws,
+                       const ParallelFor* parallel) const {
   const int64_t rows = x.rows();
   if (!front_.empty()) front_.Forward(params, x, ws.front);
   for (int l = 0; l < layers(); ++l) {
@@ -70,9 +93,13 @@ MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& 
     auto z = ws.pre[l].topRows(rows);
     // Z_l = H_{l-1} W_l + 1 b^T, then H_l = act(Z_l) in the same pass as the bias
     const ConstMatrixRef input = DenseInput(l, x, ws);
-    Gemm(Transpose::kNo, Transpose::kNo, 1.0f, input, w, 0.0f, z, ws.products);
+    GemmAcross(parallel, Transpose::kNo, Transpose::kNo, 1.0f, input, w, 0.0f, z, ws.products);
     if (l + 1 < layers()) {
-      AddBiasAndActivate(activation_, params + BiasOffset(l), z, ws.post[l].topRows(rows));
+      auto h = ws.post[l].topRows(rows);
+      ForRowBlocks(parallel, rows, z.cols(), [&](int64_t first, int64_t count) {
+        AddBiasAndActivate(activation_, params + BiasOffset(l), z.middleRows(first, count),
+                           h.middleRows(first, count));
+      });
     } else {
       z.rowwise() += b;
     }
@@ -81,20 +108,20 @@ MatrixRef Mlp::Forward(const float* params, const ConstMatrixRef& x, Workspace& 
 }
 
 void Mlp::Backward(const float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
-                   Workspace& ws, float* grad) const {
+                   Workspace& ws, float* grad, const ParallelFor* parallel) const {
   // Without an optimizer nothing writes through the pointer.
-  BackwardImpl(const_cast<float*>(params), x, grad_output, ws, grad, nullptr, 0.0f, nullptr);
+  BackwardImpl(const_cast<float*>(params), x, grad_output, ws, grad, nullptr, 0.0f, nullptr, parallel);
 }
 
 void Mlp::BackwardWithSgd(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
                           Workspace& ws, float* grad, const OptimizerConfig& optimizer, float lr,
-                          float* velocity) const {
-  BackwardImpl(params, x, grad_output, ws, grad, &optimizer, lr, velocity);
+                          float* velocity, const ParallelFor* parallel) const {
+  BackwardImpl(params, x, grad_output, ws, grad, &optimizer, lr, velocity, parallel);
 }
 
 void Mlp::BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
                        Workspace& ws, float* grad, const OptimizerConfig* optimizer, float lr,
-                       float* velocity) const {
+                       float* velocity, const ParallelFor* parallel) const {
   const int64_t rows = x.rows();
   ws.grad.back().topRows(rows) = grad_output;
   for (int l = layers() - 1; l >= 0; --l) {
@@ -105,25 +132,29 @@ void Mlp::BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrix
       // dZ_{l-1} = (dZ_l W_l^T) * act'(Z_{l-1}), before W_l is updated.
       Eigen::Map<const Matrix> w(params + WeightOffset(l), widths_[l], widths_[l + 1]);
       auto dprev = ws.grad[l - 1].topRows(rows);
-      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev, ws.products);
-      MultiplyActivationDerivative(activation_, ws.pre[l - 1].topRows(rows), dprev);
+      GemmAcross(parallel, Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, dprev, ws.products);
+      const auto z = ws.pre[l - 1].topRows(rows);
+      ForRowBlocks(parallel, rows, dprev.cols(), [&](int64_t first, int64_t count) {
+        MultiplyActivationDerivative(activation_, z.middleRows(first, count), dprev.middleRows(first, count));
+      });
     } else if (!front_.empty()) {
       // dL/d(front output) = dZ_0 W_0^T, before W_0 is updated.
       Eigen::Map<const Matrix> w(params + WeightOffset(0), widths_[0], widths_[1]);
-      Gemm(Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f, front_.OutputGradient(ws.front, rows),
-           ws.products);
+      GemmAcross(parallel, Transpose::kNo, Transpose::kYes, 1.0f, dz, w, 0.0f,
+                 front_.OutputGradient(ws.front, rows), ws.products);
     }
     // dW_l = H_{l-1}^T dZ_l ; db_l = 1^T dZ_l
     const ConstMatrixRef input = DenseInput(l, x, ws);
     db = dz.colwise().sum();
     if (optimizer == nullptr) {
-      Gemm(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, 0.0f, dw, ws.products);
+      GemmAcross(parallel, Transpose::kYes, Transpose::kNo, 1.0f, input, dz, 0.0f, dw, ws.products);
       continue;
     }
     const SgdUpdate update{params + WeightOffset(l), velocity + WeightOffset(l), widths_[l + 1], lr,
                            static_cast<float>(optimizer->momentum),
                            static_cast<float>(optimizer->weight_decay), optimizer->nesterov};
-    GemmSgdUpdate(Transpose::kYes, Transpose::kNo, 1.0f, input, dz, update, dw, ws.products);
+    GemmSgdUpdateAcross(parallel, Transpose::kYes, Transpose::kNo, 1.0f, input, dz, update, dw,
+                        ws.products);
     SgdStep(*optimizer, lr, widths_[l + 1], grad + BiasOffset(l), params + BiasOffset(l),
             velocity + BiasOffset(l));
   }

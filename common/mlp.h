@@ -5,7 +5,10 @@
 // the network output: logits, or mean/log-variance).
 // Parameter layout (float32): the front's block, then for each dense layer in order, W_l
 // (width[l] x width[l+1], row-major) then b_l (width[l+1]).
-// Thread safety: an Mlp is immutable and shareable; a Workspace belongs to one thread.
+// Threads: Forward and Backward may cut the dense layers' products and element-wise passes into
+// blocks of whole rows or columns run through a ParallelFor (null: on the calling thread); the
+// bits do not depend on it. The convolutional front runs on the calling thread.
+// Thread safety: an Mlp is immutable and shareable; a Workspace belongs to one call at a time.
 #pragma once
 
 #include <cstdint>
@@ -14,6 +17,7 @@
 #include "common/config.h"
 #include "common/conv_front.h"
 #include "common/matrix.h"
+#include "common/parallel_for.h"
 
 namespace chorus {
 
@@ -50,7 +54,8 @@ class Mlp {
 
   // Runs x (rows x Inputs(), rows <= max_rows) forward; returns a view of the output Z_L
   // (rows x outputs) inside `ws`, valid until the next call with the same workspace.
-  MatrixRef Forward(const float* params, const ConstMatrixRef& x, Workspace& ws) const;
+  MatrixRef Forward(const float* params, const ConstMatrixRef& x, Workspace& ws,
+                    const ParallelFor* parallel = nullptr) const;
 
   // The input of the last dense layer after Forward on `ws` (rows x widths()[layers() - 1]): the
   // last hidden activation, the front's output, or x itself.
@@ -59,7 +64,7 @@ class Mlp {
   // Given dL/dZ_L (rows x outputs, same rows as the last Forward on `ws`), writes dL/dparams into
   // grad (ParameterCount() floats, overwritten).
   void Backward(const float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
-                Workspace& ws, float* grad) const;
+                Workspace& ws, float* grad, const ParallelFor* parallel = nullptr) const;
 
   // Backward with the SGD step (common/sgd.h, at rate lr, no clipping) fused in: each layer's
   // weights and biases are updated as soon as their gradient is known, after they have served the
@@ -68,13 +73,13 @@ class Mlp {
   // scratch; velocity: the momentum, Mlp layout.
   void BackwardWithSgd(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
                        Workspace& ws, float* grad, const OptimizerConfig& optimizer, float lr,
-                       float* velocity) const;
+                       float* velocity, const ParallelFor* parallel = nullptr) const;
 
  private:
   // Backward, and with optimizer non-null the fused update of BackwardWithSgd.
   void BackwardImpl(float* params, const ConstMatrixRef& x, const ConstMatrixRef& grad_output,
                     Workspace& ws, float* grad, const OptimizerConfig* optimizer, float lr,
-                    float* velocity) const;
+                    float* velocity, const ParallelFor* parallel) const;
 
   // The input of dense layer l: x, the front's output or H_{l-1}.
   ConstMatrixRef DenseInput(int l, const ConstMatrixRef& x, const Workspace& ws) const;

@@ -15,7 +15,16 @@ class ParallelFor {
   // Runs body(context, i) for every i in [0, count), in any order and possibly in parallel;
   // returns when all calls have returned. Allocates nothing per call.
   virtual void Run(int64_t count, void (*body)(void* context, int64_t i), void* context) const = 0;
+  // The most items that may run at the same time now (>= 1): how many pieces work is worth
+  // cutting into. May change between calls (a job granted an idle core); results must not depend
+  // on it.
+  virtual int Threads() const = 0;
 };
+
+// parallel->Threads(), or 1 for null (items in order on the calling thread).
+inline int ThreadsOf(const ParallelFor* parallel) {
+  return parallel == nullptr ? 1 : parallel->Threads();
+}
 
 // Calls fn(i) for every i in [0, count) through `parallel`, or in order on this thread when it
 // is null. fn must be safe to call concurrently for different i.

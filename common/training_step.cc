@@ -18,7 +18,30 @@ struct TrainingStep::PartJob {
   int64_t rows;
   float lr;
   bool fused;  // one part and no clipping: the update happens inside the backward pass
+  const ParallelFor* within;  // for the products of a part: with one part, the step's threads
 };
+
+namespace {
+
+// SgdStep (common/sgd.h) in blocks of whole cache lines, one block per thread of `parallel`:
+// element-wise, so the bits do not depend on the blocks.
+void SgdStepAcross(const ParallelFor* parallel, const OptimizerConfig& opt, float lr, int64_t n,
+                   const float* g, float* w, float* velocity) {
+  constexpr int64_t kLine = 16, kMinPerBlock = 64 * 1024;  // floats
+  const int64_t blocks = std::min<int64_t>(ThreadsOf(parallel), n / kMinPerBlock);
+  if (blocks <= 1) {
+    SgdStep(opt, lr, n, g, w, velocity);
+    return;
+  }
+  const int64_t lines = (n + kLine - 1) / kLine;
+  ParallelForEach(parallel, blocks, [&](int64_t i) {
+    const int64_t first = std::min(n, i * lines / blocks * kLine);
+    const int64_t end = std::min(n, (i + 1) * lines / blocks * kLine);
+    SgdStep(opt, lr, end - first, g + first, w + first, velocity + first);
+  });
+}
+
+}  // namespace
 
 TrainingStep::TrainingStep(const Mlp& net, Task task, const OptimizerConfig& optimizer,
                            int64_t max_rows, int parts, float beta_nll,
@@ -44,7 +67,7 @@ void TrainingStep::RunPart(void* context, int64_t s) {
     return;
   }
   const auto x = job.x->middleRows(begin, rows);
-  const auto out = self.net_.Forward(job.params, x, part.workspace);
+  const auto out = self.net_.Forward(job.params, x, part.workspace, job.within);
   auto grad_out = part.grad_output.topRows(rows);
   part.loss = self.task_ == Task::kClassification
                   ? SoftmaxCrossEntropy(out, job.labels + begin, grad_out, job.rows)
@@ -52,9 +75,9 @@ void TrainingStep::RunPart(void* context, int64_t s) {
   if (!std::isfinite(part.loss)) return;
   if (job.fused) {
     self.net_.BackwardWithSgd(job.params, x, grad_out, part.workspace, part.grad.data(),
-                              self.optimizer_, job.lr, self.velocity_.data());
+                              self.optimizer_, job.lr, self.velocity_.data(), job.within);
   } else {
-    self.net_.Backward(job.params, x, grad_out, part.workspace, part.grad.data());
+    self.net_.Backward(job.params, x, grad_out, part.workspace, part.grad.data(), job.within);
   }
 }
 
@@ -63,7 +86,8 @@ double TrainingStep::Run(const ConstMatrixRef& x, const int32_t* labels, const f
   const bool fused = parts_.size() == 1 && !(optimizer_.clip_norm > 0.0) && x.rows() < kFusedBelowRows;
   const double loss = Gradient(x, labels, targets, lr, params, parallel, fused);
   if (!std::isfinite(loss) || fused) return loss;
-  SgdStep(optimizer_, lr, net_.ParameterCount(), parts_[0].grad.data(), params, velocity_.data());
+  SgdStepAcross(parallel, optimizer_, lr, net_.ParameterCount(),
+                parts_[0].grad.data(), params, velocity_.data());
   return loss;
 }
 
@@ -78,7 +102,7 @@ double TrainingStep::RunWithUpdate(const ConstMatrixRef& x, const int32_t* label
 double TrainingStep::Gradient(const ConstMatrixRef& x, const int32_t* labels, const float* targets,
                               float lr, float* params, const ParallelFor* parallel, bool fused) {
   const int parts = static_cast<int>(parts_.size());
-  PartJob job{this, &x, labels, targets, params, x.rows(), lr, fused};
+  PartJob job{this, &x, labels, targets, params, x.rows(), lr, fused, parts == 1 ? parallel : nullptr};
   if (parallel != nullptr && parts > 1) {
     parallel->Run(parts, &TrainingStep::RunPart, &job);
   } else {

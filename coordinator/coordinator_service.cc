@@ -141,6 +141,7 @@ void CoordinatorService::Seen(const std::string& worker, const std::string& job,
                               const wire::HeartbeatRequest* p) {
   std::lock_guard<std::mutex> lock(mu_);
   WorkerView& w = workers_[worker];
+  if (w.job.empty() != job.empty()) hosts_[w.host].idle += job.empty() ? 1 : -1;
   w.job = job;
   w.last_seen = Clock::now();
   if (p != nullptr) {
@@ -167,7 +168,11 @@ grpc::Status CoordinatorService::Register(grpc::ServerContext* ctx, const wire::
     std::lock_guard<std::mutex> lock(mu_);
     if (static_cast<int>(workers_.size()) < in_.limits.max_workers) {
       id = NewWorkerId(next_worker_++);
-      workers_[id] = WorkerView{req->host(), "", 0, 0, 0, 0, Clock::now()};
+      WorkerView& w = workers_[id] = WorkerView{req->host(), "", 0, 0, 0, 0, Clock::now(),
+                                                std::max(1, req->slots())};
+      HostWorkers& host = hosts_[w.host];
+      host.workers.push_back(&w);
+      ++host.idle;
     }
   }
   if (id.empty()) {
@@ -197,6 +202,8 @@ grpc::Status CoordinatorService::Lease(grpc::ServerContext* ctx, const wire::Lea
     reply->set_kind(closed && table_->AllSettled() ? wire::LeaseReply::DONE : wire::LeaseReply::WAIT);
     reply->set_retry_after_seconds(0.5);
     Seen(req->worker_id(), "", nullptr);
+    std::lock_guard<std::mutex> lock(mu_);
+    workers_[req->worker_id()].last_refused = Clock::now();
     return grpc::Status::OK;
   }
   reply->set_kind(wire::LeaseReply::JOB);
@@ -220,7 +227,22 @@ grpc::Status CoordinatorService::Heartbeat(grpc::ServerContext* ctx, const wire:
   if (job < 0) return Invalid("unknown job " + req->job_id());
   reply->set_keep_going(table_->Renew(job, req->lease_id(), Clock::now()));
   Seen(req->worker_id(), req->job_id(), req);
+  reply->set_extra_threads(ExtraThreads(req->worker_id()));
   return grpc::Status::OK;
+}
+
+int CoordinatorService::ExtraThreads(const std::string& worker) const {
+  std::lock_guard<std::mutex> lock(mu_);
+  const HostWorkers& host = hosts_.at(workers_.at(worker).host);
+  if (host.idle == 0) return 0;
+  const Clock::time_point fresh = Clock::now() - std::chrono::duration_cast<Clock::duration>(
+                                                     std::chrono::duration<double>(kIdleFreshSeconds));
+  int idle_slots = 0, busy = 0;
+  for (const WorkerView* w : host.workers) {
+    if (!w->job.empty()) ++busy;
+    else if (w->last_refused >= fresh) idle_slots += w->slots;
+  }
+  return busy == 0 ? 0 : idle_slots / busy;
 }
 
 grpc::Status CoordinatorService::FetchData(grpc::ServerContext* ctx, const wire::FetchDataRequest* req,

@@ -41,12 +41,17 @@ struct WorkerView {
   int epoch = 0, epochs = 0;
   double loss = 0, samples_per_second = 0;
   Clock::time_point last_seen;
+  int slots = 1;                  // jobs it runs at once, as registered
+  Clock::time_point last_refused; // when it last asked for a job and none was queued
 };
 
 class CoordinatorService final : public wire::Coordinator::Service {
  public:
   // Starts with no jobs; AddJobs adds them stage by stage.
   CoordinatorService(DispatchInputs inputs, JobTable* table, RunDirectory* dir);
+  // How recently a worker must have asked for a job in vain to count as idle (ExtraThreads); an
+  // idle worker asks every 0.5 s.
+  static constexpr double kIdleFreshSeconds = 2.0;
   // Logs, for every kind of refusal and peer address, the refusals no event has counted yet.
   ~CoordinatorService() override;
 
@@ -106,6 +111,16 @@ class CoordinatorService final : public wire::Coordinator::Service {
                      const std::optional<MemberResult::CpuSeconds>& cpu_seconds, const std::string& bytes,
                      wire::UploadReply* reply);
   void Seen(const std::string& worker, const std::string& job, const wire::HeartbeatRequest* progress);
+  // Threads beyond one that `worker`'s job may use: the slots of the idle workers on its host
+  // (idle: holds no job, and asked for one within kIdleFreshSeconds and none was queued), shared
+  // among the host's busy workers. O(1) while no worker of the host is idle, else O(workers on the host).
+  int ExtraThreads(const std::string& worker) const;
+
+  // A host's registered workers, and how many of them hold no job.
+  struct HostWorkers {
+    std::vector<const WorkerView*> workers;  // into workers_ (std::map: stable addresses)
+    int idle = 0;
+  };
 
   const DispatchInputs in_;
   const std::string data_sha_;
@@ -115,6 +130,7 @@ class CoordinatorService final : public wire::Coordinator::Service {
   std::vector<MemberSpec> specs_;              // guarded by mu_; job i trains specs_[i]
   bool closed_ = false;                        // guarded by mu_
   std::map<std::string, WorkerView> workers_;  // guarded by mu_; registered workers only
+  std::map<std::string, HostWorkers> hosts_;   // guarded by mu_; by WorkerView::host
   int next_worker_ = 1;                        // guarded by mu_
   int refused_ = 0;                            // guarded by mu_
   RefusalThrottle refusals_;

@@ -1,5 +1,6 @@
 #include "execution/tbb_parallel_for.h"
 
+#include <tbb/task_arena.h>
 #include <tbb/task_group.h>
 
 #include "execution/tsan_handoff.h"
@@ -57,5 +58,7 @@ void TbbParallelFor::Run(int64_t count, void (*body)(void* context, int64_t i), 
   tasks.wait();
   TsanTakeOver(&kJoin);
 }
+
+int TbbParallelFor::Threads() const { return tbb::this_task_arena::max_concurrency(); }
 
 }  // namespace chorus

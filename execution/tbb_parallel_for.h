@@ -10,6 +10,8 @@ namespace chorus {
 class TbbParallelFor final : public ParallelFor {
  public:
   void Run(int64_t count, void (*body)(void* context, int64_t i), void* context) const override;
+  // The calling thread's arena's concurrency.
+  int Threads() const override;
 };
 
 }  // namespace chorus

@@ -34,14 +34,16 @@ void SleepUnlessStopped(double seconds, const std::atomic<bool>& stop) {
   }
 }
 
-// Renews one lease every period seconds with the latest progress, until Stop(). Sets `cancel` if
-// the coordinator says the lease is gone.
+// Renews one lease every period seconds with the latest progress, and at the end of an epoch when
+// kEpochBeatSeconds have passed since the last renewal, until Stop(). Sets `cancel` if the
+// coordinator says the lease is gone, and `extra_threads` to the threads it grants the job (so a
+// grant reaches a job within an epoch or two, not a whole period).
 class Heartbeat {
  public:
   Heartbeat(CoordinatorClient* client, wire::HeartbeatRequest base, double period,
-            std::atomic<bool>* cancel)
+            std::atomic<bool>* cancel, std::atomic<int>* extra_threads)
       : client_(client), request_(std::move(base)), period_(period), cancel_(cancel),
-        thread_([this] { Loop(); }) {}
+        extra_threads_(extra_threads), thread_([this] { Loop(); }) {}
   ~Heartbeat() { Stop(); }
 
   void Update(const EpochProgress& p, double samples_per_second) {
@@ -50,6 +52,10 @@ class Heartbeat {
     request_.set_epochs(p.epochs);
     request_.set_loss(p.mean_loss);
     request_.set_samples_per_second(samples_per_second);
+    if (SteadyClock::now() - last_sent_ >= duration<double>(kEpochBeatSeconds)) {
+      beat_now_ = true;
+      wake_.notify_all();
+    }
   }
 
   void Stop() {
@@ -64,13 +70,18 @@ class Heartbeat {
  private:
   void Loop() {
     std::unique_lock<std::mutex> lock(mu_);
-    while (!wake_.wait_for(lock, duration<double>(period_), [this] { return stopped_; })) {
+    while (true) {
+      wake_.wait_for(lock, duration<double>(period_), [this] { return stopped_ || beat_now_; });
+      if (stopped_) break;
+      beat_now_ = false;
+      last_sent_ = SteadyClock::now();
       const wire::HeartbeatRequest request = request_;
       lock.unlock();
       wire::HeartbeatReply reply;
       const Status st = client_->Heartbeat(request, &reply);
       // kRefused: the coordinator no longer knows this worker (it restarted), so neither the lease.
       if ((st.ok() && !reply.keep_going()) || st.code() == Status::Code::kRefused) cancel_->store(true);
+      if (st.ok()) extra_threads_->store(std::max(0, reply.extra_threads()));
       lock.lock();
     }
   }
@@ -79,9 +90,13 @@ class Heartbeat {
   wire::HeartbeatRequest request_;
   const double period_;
   std::atomic<bool>* cancel_;
+  std::atomic<int>* extra_threads_;
   std::mutex mu_;
   std::condition_variable wake_;
+  static constexpr double kEpochBeatSeconds = 2.0;
   bool stopped_ = false;
+  bool beat_now_ = false;
+  SteadyClock::time_point last_sent_ = SteadyClock::now();
   std::thread thread_;
 };
 
@@ -207,7 +222,8 @@ class LeasedJob final : public TakenJob {
     base.set_worker_id(worker_id_);
     base.set_job_id(lease_.job_id());
     base.set_lease_id(lease_.lease_id());
-    heartbeat_.emplace(s_.client, base, std::max(0.2, s_.registration->lease_seconds() / 3), &cancel);
+    heartbeat_.emplace(s_.client, base, std::max(0.2, s_.registration->lease_seconds() / 3), &cancel,
+                       &extra_threads);
     start_ = SteadyClock::now();
     *spec = &spec_.value();
     *data = data_.get();
@@ -310,7 +326,9 @@ Status RunWorker(const WorkerOptions& options, const std::atomic<bool>& stop) {
   DataCache cache(client.get(), options.cache_dir);
   const Shared shared{options, stop, client.get(), &cache, &registration};
   LeaseSource source(shared);
-  return RunJobSlots(source, options.slots);
+  // Threads past the slots serve grants (execution/job_slots.h): the coordinator grants this
+  // worker's jobs the slots of idle workers on this machine.
+  return RunJobSlots(source, options.slots, static_cast<int>(std::thread::hardware_concurrency()));
 }
 
 }  // namespace chorus

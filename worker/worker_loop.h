@@ -1,7 +1,8 @@
 // The chorus-worker main loop, the gRPC transport of execution/job_slots.h: register, then on each
 // of `slots` slot threads lease a job, make sure its data is at hand (memory, then the disk cache
-// by hash, then FetchData), train it while a heartbeat thread renews the lease and carries
-// progress, and upload the result or report the failure. Reconnects with backoff while the
+// by hash, then FetchData), train it while a heartbeat thread renews the lease, carries progress
+// and brings back the threads the coordinator grants the job (the idle workers' cores on this
+// machine: execution/job_slots.h), and upload the result or report the failure. Reconnects with backoff while the
 // coordinator is away, registers again when a restarted coordinator no longer knows its worker id,
 // and retries an upload the coordinator is too busy to take (all its upload slots held).
 // Thread safety: RunWorker is called once per process; `stop` may be set from a signal handler.

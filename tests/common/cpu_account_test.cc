@@ -33,6 +33,7 @@ class ThreadPerItem final : public ParallelFor {
     for (int64_t i = 0; i < count; ++i) threads.emplace_back([=] { body(context, i); });
     for (std::thread& t : threads) t.join();
   }
+  int Threads() const override { return 2; }
 };
 
 // Runs every item on the calling thread, as a oneTBB thread does when it takes other work's
@@ -42,6 +43,7 @@ class OnCallingThread final : public ParallelFor {
   void Run(int64_t count, void (*body)(void*, int64_t), void* context) const override {
     for (int64_t i = 0; i < count; ++i) body(context, i);
   }
+  int Threads() const override { return 1; }
 };
 
 // Clock reads and the rusage interface's tick (Linux accounts thread time in scheduler ticks for

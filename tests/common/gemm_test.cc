@@ -12,6 +12,7 @@
 #include <oneapi/dnnl/dnnl.h>
 #include <omp.h>
 
+#include <algorithm>
 #include <cfloat>
 #include <cmath>
 #include <cstring>
@@ -248,6 +249,74 @@ TEST(GemmTest, SameBitsOnRepeatAndOnAnotherThread) {
   std::thread([&] { Gemm(Transpose::kNo, Transpose::kYes, 1.0f, a, b, 0.0f, elsewhere); }).join();
   EXPECT_EQ(first, again);
   EXPECT_EQ(first, elsewhere);
+}
+
+// Runs each item on a thread of its own, reports `threads` and remembers the most items one call
+// had: a ParallelFor as unlike the calling thread's loop as it gets.
+class ThreadPerItem final : public ParallelFor {
+ public:
+  explicit ThreadPerItem(int threads) : threads_(threads) {}
+  void Run(int64_t count, void (*body)(void*, int64_t), void* context) const override {
+    most_items = std::max(most_items, count);
+    std::vector<std::thread> threads;
+    for (int64_t i = 0; i < count; ++i) threads.emplace_back(body, context, i);
+    for (std::thread& t : threads) t.join();
+  }
+  int Threads() const override { return threads_; }
+  mutable int64_t most_items = 0;
+
+ private:
+  int threads_;
+};
+
+// GemmAcross and GemmSgdUpdateAcross cut C by rows or by columns (each way is chosen by some of
+// these shapes: the training shapes of a 784-512 layer at batch 128 and odd sizes) and must give
+// Gemm's bits, for 2, 3 and 5 blocks, both precisions, with beta 0 and 0.5 and with the update
+// fused.
+TEST(GemmTest, ProductCutAcrossThreadsGivesTheSameBits) {
+  Philox rng(16);
+  struct Shape {
+    int64_t m, n, k;
+    Transpose ta, tb;
+  };
+  const Transpose no = Transpose::kNo, yes = Transpose::kYes;
+  const Shape shapes[] = {{128, 512, 784, no, no}, {784, 512, 128, yes, no}, {128, 784, 512, no, yes},
+                          {37, 300, 257, yes, yes}, {301, 37, 600, no, no}, {290, 250, 90, no, yes}};
+  for (const Shape& s : shapes) {
+    const Matrix a = s.ta == yes ? RandomMatrix(s.k, s.m, rng) : RandomMatrix(s.m, s.k, rng);
+    const Matrix b = s.tb == yes ? RandomMatrix(s.n, s.k, rng) : RandomMatrix(s.k, s.n, rng);
+    const Matrix c0 = RandomMatrix(s.m, s.n, rng), w0 = RandomMatrix(s.m, s.n, rng),
+                 v0 = RandomMatrix(s.m, s.n, rng);
+    for (ProductPrecision precision : {ProductPrecision::kFp32, ProductPrecision::kBf16}) {
+      const std::string where = std::to_string(s.m) + "x" + std::to_string(s.n) + "x" +
+                                std::to_string(s.k) + " " + ProductPrecisionName(precision);
+      for (float beta : {0.0f, 0.5f}) {
+        Matrix whole = c0;
+        Gemm(s.ta, s.tb, 0.75f, a, b, beta, whole, precision);
+        for (int threads : {2, 3, 5}) {
+          const ThreadPerItem parallel(threads);
+          Matrix cut = c0;
+          GemmAcross(&parallel, s.ta, s.tb, 0.75f, a, b, beta, cut, precision);
+          EXPECT_GE(parallel.most_items, 2) << where << ": the product was not cut";
+          EXPECT_EQ(cut, whole) << where << ", beta " << beta << ", " << threads << " blocks";
+        }
+      }
+      const auto update_of = [](Matrix& w, Matrix& v) {
+        return SgdUpdate{w.data(), v.data(), w.cols(), 0.03f, 0.9f, 1e-4f, true};
+      };
+      Matrix w_whole = w0, v_whole = v0, scratch(s.m, s.n);
+      GemmSgdUpdate(s.ta, s.tb, 0.5f, a, b, update_of(w_whole, v_whole), scratch, precision);
+      for (int threads : {2, 3}) {
+        const ThreadPerItem parallel(threads);
+        Matrix w_cut = w0, v_cut = v0;
+        GemmSgdUpdateAcross(&parallel, s.ta, s.tb, 0.5f, a, b, update_of(w_cut, v_cut), scratch,
+                            precision);
+        EXPECT_GE(parallel.most_items, 2) << where << ": the fused product was not cut";
+        EXPECT_EQ(w_cut, w_whole) << where << ", fused, " << threads << " blocks";
+        EXPECT_EQ(v_cut, v_whole) << where << ", fused, " << threads << " blocks";
+      }
+    }
+  }
 }
 
 // The bfloat16 kernel's conversions (vcvtneps2bf16) against PyTorch 1.13's Tensor.to(bfloat16)

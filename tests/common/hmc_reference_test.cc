@@ -33,6 +33,7 @@ class ThreadPerItem : public ParallelFor {
     for (int64_t i = 0; i < count; ++i) threads.emplace_back(body, context, i);
     for (std::thread& t : threads) t.join();
   }
+  int Threads() const override { return 2; }
 };
 
 // Two-class data on two features: y ~ Bernoulli(sigmoid(0.3 + 1.5 x1 - x2)), x ~ N(0, I), 30

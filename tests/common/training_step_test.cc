@@ -5,7 +5,10 @@
 #include <gtest/gtest.h>
 #include <tbb/task_arena.h>
 
+#include <atomic>
 #include <cmath>
+#include <string>
+#include <thread>
 #include <limits>
 #include <utility>
 #include <vector>
@@ -121,6 +124,59 @@ TEST(TrainingStepTest, FusedUpdateGivesTheSameBitsAsTheSeparateOne) {
       EXPECT_EQ(Train(1, nullptr, 5, nullptr, fused, products),
                 Train(1, nullptr, 5, nullptr, separate, products))
           << "nesterov " << nesterov << ", " << ProductPrecisionName(products);
+    }
+  }
+}
+
+// Runs each item on a thread of its own and counts the calls that had more than one item.
+class ThreadPerItem final : public ParallelFor {
+ public:
+  void Run(int64_t count, void (*body)(void*, int64_t), void* context) const override {
+    if (count > 1) ++cut_calls;
+    std::vector<std::thread> threads;
+    for (int64_t i = 0; i < count; ++i) threads.emplace_back(body, context, i);
+    for (std::thread& t : threads) t.join();
+  }
+  int Threads() const override { return 2; }
+  mutable std::atomic<int> cut_calls{0};
+};
+
+// With one part, a step given threads cuts its products and passes into blocks (common/mlp.h);
+// the parameters must come out bit for bit as on one thread: on the fused path (batch 32), the
+// separate one (batch 128), with bf16 products and with oneTBB arenas of 2 and 3 threads. The
+// network is large enough that its products are cut.
+TEST(TrainingStepTest, OnePartGivesTheSameBitsOnAnyThreads) {
+  const Mlp net({300, 256, 128, 10}, Activation::kRelu);
+  for (int64_t rows : {int64_t{32}, int64_t{128}}) {
+    Philox rng(rows);
+    Matrix x(rows, 300);
+    std::vector<int32_t> labels(static_cast<size_t>(rows));
+    for (int64_t i = 0; i < rows; ++i) {
+      for (int64_t j = 0; j < x.cols(); ++j) x(i, j) = static_cast<float>(rng.NextNormal());
+      labels[static_cast<size_t>(i)] = static_cast<int32_t>(rng.NextBelow(10));
+    }
+    for (ProductPrecision products : {ProductPrecision::kFp32, ProductPrecision::kBf16}) {
+      const auto train = [&](const ParallelFor* parallel) {
+        std::vector<float> params(net.ParameterCount());
+        net.Initialize(5, params.data());
+        OptimizerConfig optimizer;
+        optimizer.nesterov = true;
+        TrainingStep step(net, Task::kClassification, optimizer, rows, 1, 0.0f, products);
+        for (int s = 0; s < 3; ++s) step.Run(x, labels.data(), nullptr, 0.05f, params.data(), parallel);
+        return params;
+      };
+      const std::string where = std::to_string(rows) + " rows, " + ProductPrecisionName(products);
+      const std::vector<float> serial = train(nullptr);
+      const ThreadPerItem per_item;
+      EXPECT_EQ(train(&per_item), serial) << where << ", a thread per block";
+      EXPECT_GE(per_item.cut_calls.load(), 3 * 2) << where << ": the step was not cut";
+      const TbbParallelFor tbb;
+      for (int threads : {2, 3}) {
+        tbb::task_arena arena(threads);
+        std::vector<float> threaded;
+        arena.execute([&] { threaded = train(&tbb); });
+        EXPECT_EQ(threaded, serial) << where << ", " << threads << " oneTBB threads";
+      }
     }
   }
 }

@@ -95,10 +95,10 @@ class CoordinatorServiceTest : public ::testing::Test {
     return ctx;
   }
 
-  std::string RegisterWorker() {
+  std::string RegisterWorker(const std::string& host = "test-host", int slots = 1) {
     wire::RegisterRequest req;
-    req.set_host("test-host");
-    req.set_slots(1);
+    req.set_host(host);
+    req.set_slots(slots);
     wire::RegisterReply reply;
     EXPECT_TRUE(stub_->Register(Context().get(), req, &reply).ok());
     return reply.worker_id();
@@ -164,6 +164,43 @@ class CoordinatorServiceTest : public ::testing::Test {
   int port_ = 0;
   std::unique_ptr<wire::Coordinator::Stub> stub_;
 };
+
+// A busy worker's heartbeat reply grants its job the slots of the workers on its host that asked
+// for a job lately and found none queued, shared among the host's busy workers; not those of
+// another host, of a worker that has only registered, or of one silent for kIdleFreshSeconds.
+TEST_F(CoordinatorServiceTest, HeartbeatsGrantTheIdleSlotsOfTheSameHost) {
+  const auto beat = [&](const std::string& worker, const wire::LeaseReply& lease) {
+    wire::HeartbeatRequest req;
+    req.set_worker_id(worker);
+    req.set_job_id(lease.job_id());
+    req.set_lease_id(lease.lease_id());
+    wire::HeartbeatReply reply;
+    EXPECT_TRUE(stub_->Heartbeat(Context().get(), req, &reply).ok());
+    EXPECT_TRUE(reply.keep_going());
+    return reply.extra_threads();
+  };
+  const auto ask_in_vain = [&](const std::string& worker) {
+    wire::LeaseRequest req;
+    req.set_worker_id(worker);
+    wire::LeaseReply reply;
+    EXPECT_TRUE(stub_->Lease(Context().get(), req, &reply).ok());
+    EXPECT_EQ(reply.kind(), wire::LeaseReply::WAIT);
+  };
+  const std::string w1 = RegisterWorker(), w2 = RegisterWorker();
+  const wire::LeaseReply job0 = LeaseJob(w1);
+  EXPECT_EQ(beat(w1, job0), 0) << "job 1 is still queued";
+  const wire::LeaseReply job1 = LeaseJob(w2);
+  const std::string elsewhere = RegisterWorker("other-host", 4);
+  ask_in_vain(elsewhere);
+  EXPECT_EQ(beat(w1, job0), 0) << "another host's idle slots";
+  const std::string w3 = RegisterWorker("test-host", 2);
+  EXPECT_EQ(beat(w1, job0), 0) << "a worker that has not asked for a job yet";
+  ask_in_vain(w3);
+  EXPECT_EQ(beat(w1, job0), 1) << "two idle slots for two busy workers";
+  EXPECT_EQ(beat(w2, job1), 1);
+  std::this_thread::sleep_for(std::chrono::duration<double>(CoordinatorService::kIdleFreshSeconds + 0.2));
+  EXPECT_EQ(beat(w1, job0), 0) << "the idle worker has not asked again";
+}
 
 TEST_F(CoordinatorServiceTest, AResultFromAWorkerThatWasNeverLeasedTheJobIsRefused) {
   const std::string honest = RegisterWorker(), hostile = RegisterWorker();
