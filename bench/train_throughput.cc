@@ -36,7 +36,7 @@
 #include "common/member_training.h"
 #include "common/prepared_data.h"
 #include "common/rng.h"
-#include "execution/tbb_parallel_for.h"
+#include "execution/helper_team.h"
 
 namespace chorus {
 namespace {
@@ -109,14 +109,15 @@ MemberSpec BenchSpec(int index, int batch, int timed_epochs, bool conv, ProductP
   return spec;
 }
 
-// Trains `members` members at once on an arena of `threads` (members <= threads); a member may
-// use the threads no member holds. Returns samples per second over the union of their timed
-// windows. Exits with a message if a member fails.
+// Trains `members` members at once, one per thread; with members < threads, the one member
+// (members must then be 1) is granted the other threads, as execution/job_slots.h grants them.
+// Returns samples per second over the union of their timed windows. Exits with a message if a
+// member fails.
 double MeasureSamplesPerSecond(int threads, int members, int batch, int timed_epochs, bool conv,
                                ProductPrecision products, const PreparedData& data) {
   std::vector<Clock::time_point> first(members), last(members);
-  tbb::task_arena arena(threads);
-  const TbbParallelFor parallel;
+  tbb::task_arena arena(members);
+  const TeamParallelFor parallel(threads);  // the helpers of a member that has the spare threads
   arena.execute([&] {
     tbb::parallel_for(0, members, [&](int m) {
       const ProgressFn mark = [&, m](const EpochProgress& p) {

@@ -97,6 +97,7 @@ class SgdRun {
   // The rows of the training split this run trains on, ascending.
   const std::vector<int64_t>& rows() const { return rows_; }
   const Mlp& net() const { return net_; }
+  const ParallelFor* parallel() const { return parallel_; }
   std::vector<float>& params() { return params_; }
   // Continues from `params` (an earlier epoch's), with the momentum zeroed.
   void Restore(const std::vector<float>& params) {
@@ -154,8 +155,8 @@ class SgdRun {
 
 // Mean NLL of the network's outputs on `split` (classification: softmax cross-entropy;
 // regression: Gaussian NLL of the standardised target).
-double SplitNll(const Mlp& net, const float* params, const Split& split) {
-  const Matrix out = PredictOutputs(net, params, split.x);
+double SplitNll(const Mlp& net, const float* params, const Split& split, const ParallelFor* parallel) {
+  const Matrix out = PredictOutputs(net, params, split.x, kPredictionBatchRows, parallel);
   return split.labels.empty() ? GaussianNllValue(out, split.targets.data())
                               : SoftmaxCrossEntropyValue(out, split.labels.data());
 }
@@ -189,18 +190,19 @@ Status CheckModelForData(const ModelConfig& model, int64_t features, const std::
 }
 
 Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef& x,
-                      int64_t batch_rows) {
+                      int64_t batch_rows, const ParallelFor* parallel) {
   Matrix out(x.rows(), net.widths().back());
   Mlp::Workspace ws = net.MakeWorkspace(std::min<int64_t>(batch_rows, std::max<int64_t>(x.rows(), 1)));
-  PredictOutputsInto(net, params, x, batch_rows, ws, out);
+  PredictOutputsInto(net, params, x, batch_rows, ws, out, parallel);
   return out;
 }
 
 void PredictOutputsInto(const Mlp& net, const float* params, const ConstMatrixRef& x,
-                        int64_t batch_rows, Mlp::Workspace& ws, MatrixRef out) {
+                        int64_t batch_rows, Mlp::Workspace& ws, MatrixRef out,
+                        const ParallelFor* parallel) {
   for (int64_t start = 0; start < x.rows(); start += batch_rows) {
     const int64_t rows = std::min(batch_rows, x.rows() - start);
-    out.middleRows(start, rows) = net.Forward(params, x.middleRows(start, rows), ws);
+    out.middleRows(start, rows) = net.Forward(params, x.middleRows(start, rows), ws, parallel);
   }
 }
 
@@ -301,7 +303,7 @@ Status FitLaplace(const MemberSpec& spec, SgdRun& run, const PreparedData& data,
 // Every basin sample's outputs on the job's validation rows and on test: basin.samples samples
 // from seeds BasinSampleSeed, or for cyclical SG-MCMC every collected one (seed = row).
 void PredictSamples(const MemberSpec& spec, const Mlp& net, const Split& validation,
-                    const PreparedData& data, MemberResult& result) {
+                    const PreparedData& data, const ParallelFor* parallel, MemberResult& result) {
   std::vector<float> w(net.ParameterCount());
   const bool collected = spec.basin.method == BasinMethod::kCyclicalSgmcmc;
   const int64_t samples = collected ? result.basin.samples.rows() : spec.basin.samples;
@@ -309,8 +311,9 @@ void PredictSamples(const MemberSpec& spec, const Mlp& net, const Split& validat
     const uint64_t seed = collected ? static_cast<uint64_t>(s) : BasinSampleSeed(spec.seed, static_cast<int>(s));
     DrawBasinSample(result.basin, seed, spec.basin.scale, w.data());
     result.sample_seeds.push_back(seed);
-    result.sample_validation_outputs.push_back(PredictOutputs(net, w.data(), validation.x));
-    result.sample_test_outputs.push_back(PredictOutputs(net, w.data(), data.test.x));
+    result.sample_validation_outputs.push_back(
+        PredictOutputs(net, w.data(), validation.x, kPredictionBatchRows, parallel));
+    result.sample_test_outputs.push_back(PredictOutputs(net, w.data(), data.test.x, kPredictionBatchRows, parallel));
   }
 }
 
@@ -342,7 +345,7 @@ Status TrainEpochs(const MemberSpec& spec, SgdRun& run, const Split& validation,
     if (progress) progress({spec.index, epoch + 1, all_epochs, loss.value()});
     if (cancel != nullptr && cancel->load()) return Status::Cancelled("stopped on request");
     if (!watch) continue;
-    const double nll = SplitNll(run.net(), run.params().data(), validation);
+    const double nll = SplitNll(run.net(), run.params().data(), validation, run.parallel());
     result.validation_nll.push_back(nll);
     if (nll < best) {
       best = nll;
@@ -400,7 +403,9 @@ Status TrainCyclical(const MemberSpec& spec, SgdRun& run, const Split& validatio
     result.epoch_loss.push_back(loss.value());
     if (progress) progress({spec.index, epoch + 1, spec.train.epochs, loss.value()});
     if (cancel != nullptr && cancel->load()) return Status::Cancelled("stopped on request");
-    if (validation.rows() > 0) result.validation_nll.push_back(SplitNll(run.net(), run.params().data(), validation));
+    if (validation.rows() > 0) {
+      result.validation_nll.push_back(SplitNll(run.net(), run.params().data(), validation, run.parallel()));
+    }
   }
   result.best_epoch = spec.train.epochs;
   return Status::Ok();
@@ -465,8 +470,10 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
     CHORUS_RETURN_IF_ERROR(
         TrainEpochs(spec, run, validation, progress, cancel, all_epochs, result).WithContext(where));
   }
-  result.validation_outputs = PredictOutputs(run.net(), run.params().data(), validation.x);
-  result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x);
+  result.validation_outputs =
+      PredictOutputs(run.net(), run.params().data(), validation.x, kPredictionBatchRows, run.parallel());
+  result.test_outputs = PredictOutputs(run.net(), run.params().data(), data.test.x, kPredictionBatchRows,
+                                       run.parallel());
   result.parameters = run.params();
   result.cpu_seconds.training = cpu.Seconds();
   if (cyclical) {
@@ -480,7 +487,7 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   }
   result.cpu_seconds.basin_fit = cpu.Seconds() - result.cpu_seconds.training;
   if (basin) {
-    PredictSamples(spec, run.net(), validation, data, result);
+    PredictSamples(spec, run.net(), validation, data, run.parallel(), result);
     result.cpu_seconds.samples = cpu.Seconds() - result.cpu_seconds.training - result.cpu_seconds.basin_fit;
   }
   if (!AllFinite(result)) return Status::Diverged(where + ": a prediction is not finite");

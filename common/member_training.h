@@ -119,12 +119,15 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
                                    const std::atomic<bool>* cancel = nullptr,
                                    const ParallelFor* parallel = nullptr);
 
-// Network outputs for every row of x, computed in batches of `batch_rows` to bound memory.
+// Network outputs for every row of x, computed in batches of `batch_rows` to bound memory, each
+// batch's products cut across `parallel`'s threads (the same bits on any: common/mlp.h).
+constexpr int64_t kPredictionBatchRows = 1024;
 Matrix PredictOutputs(const Mlp& net, const float* params, const ConstMatrixRef& x,
-                      int64_t batch_rows = 1024);
+                      int64_t batch_rows = kPredictionBatchRows, const ParallelFor* parallel = nullptr);
 // The same into the caller's buffers, allocating nothing: out is x.rows() x outputs, ws holds
 // activations for at least batch_rows rows.
 void PredictOutputsInto(const Mlp& net, const float* params, const ConstMatrixRef& x,
-                        int64_t batch_rows, Mlp::Workspace& ws, MatrixRef out);
+                        int64_t batch_rows, Mlp::Workspace& ws, MatrixRef out,
+                        const ParallelFor* parallel = nullptr);
 
 }  // namespace chorus

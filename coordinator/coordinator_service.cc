@@ -169,7 +169,7 @@ grpc::Status CoordinatorService::Register(grpc::ServerContext* ctx, const wire::
     if (static_cast<int>(workers_.size()) < in_.limits.max_workers) {
       id = NewWorkerId(next_worker_++);
       WorkerView& w = workers_[id] = WorkerView{req->host(), "", 0, 0, 0, 0, Clock::now(),
-                                                std::max(1, req->slots())};
+                                                std::max(1, req->slots()), {}};
       HostWorkers& host = hosts_[w.host];
       host.workers.push_back(&w);
       ++host.idle;

@@ -3,12 +3,12 @@
 // (jobs leased from a coordinator over gRPC, worker/worker_loop.h) and chorus run's in-process
 // route (a stage's jobs in a queue, coordinator/in_process_runner.cc) both run jobs this way and
 // differ only in their JobSource, that is, in transport.
-// Training happens on one oneTBB arena. A job trains on its slot's thread alone, plus the threads
-// it is granted: the slots of this RunJobSlots that have ended (no more jobs for them), shared
-// among the jobs still running, and TakenJob::extra_threads, which the source sets (a coordinator
-// that sees other workers on this machine idle). A granted thread takes blocks of the member's
-// products and passes, or its minibatch parts (common/training_step.h); the job's result does not
-// depend on how many threads it had, nor on when a grant changed.
+// A job trains on its slot's thread, plus the threads it is granted: the slots of this
+// RunJobSlots that have ended (no more jobs for them), shared among the jobs still running, and
+// TakenJob::extra_threads, which the source sets (a coordinator that sees other workers on this
+// machine idle). Granted threads (execution/helper_team.h) take blocks of the member's products
+// and passes, or its minibatch parts (common/training_step.h); the job's result does not depend
+// on how many threads it had, nor on when a grant changed.
 // Thread safety: RunJobSlots calls a source's Take from every slot thread at once, and a taken
 // job's methods from the slot (and training) thread that took it.
 #pragma once
@@ -55,7 +55,7 @@ class JobSource {
 };
 
 // Runs `slots` (>= 1) slot threads until each has ended; returns the first error a slot ended
-// with, else Ok. The arena has max(slots, threads) threads: the most any grant can use.
+// with, else Ok. A job uses at most max(slots, threads) threads, its own included.
 Status RunJobSlots(JobSource& source, int slots, int threads = 0);
 
 }  // namespace chorus
