@@ -129,14 +129,18 @@ class SgdRun {
     return loss_sum / static_cast<double>(steps);
   }
 
+  // The minibatch's rows, in blocks across the job's threads (the blocks the products take).
   void Gather(int64_t start, int64_t rows) {
     const bool classify = data_.task == Task::kClassification;
-    for (int64_t r = 0; r < rows; ++r) {
-      const int64_t src = rows_[order_[start + r]];
-      xb_.row(r) = data_.train.x.row(src);
-      if (classify) labels_[r] = data_.train.labels[src];
-      else targets_[r] = data_.train.targets[src];
-    }
+    const int64_t blocks = std::min<int64_t>(ThreadsOf(parallel_), rows);
+    ParallelForEach(blocks > 1 ? parallel_ : nullptr, blocks, [&](int64_t b) {
+      for (int64_t r = b * rows / blocks; r < (b + 1) * rows / blocks; ++r) {
+        const int64_t src = rows_[order_[start + r]];
+        xb_.row(r) = data_.train.x.row(src);
+        if (classify) labels_[r] = data_.train.labels[src];
+        else targets_[r] = data_.train.targets[src];
+      }
+    });
   }
 
   const MemberSpec& spec_;

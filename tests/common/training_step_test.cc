@@ -143,11 +143,13 @@ class ThreadPerItem final : public ParallelFor {
 
 // With one part, a step given threads cuts its products and passes into blocks (common/mlp.h);
 // the parameters must come out bit for bit as on one thread: on the fused path (batch 32), the
-// separate one (batch 128), with bf16 products and with oneTBB arenas of 2 and 3 threads. The
-// network is large enough that its products are cut.
+// separate one (batch 128), with bf16 products, relu and tanh, and with oneTBB arenas of 2 and 3
+// threads. The network is large enough that its products are cut.
 TEST(TrainingStepTest, OnePartGivesTheSameBitsOnAnyThreads) {
-  const Mlp net({300, 256, 128, 10}, Activation::kRelu);
-  for (int64_t rows : {int64_t{32}, int64_t{128}}) {
+  for (const auto& [rows, activation] : {std::pair{int64_t{32}, Activation::kRelu},
+                                         std::pair{int64_t{128}, Activation::kRelu},
+                                         std::pair{int64_t{128}, Activation::kTanh}}) {
+    const Mlp net({300, 256, 128, 10}, activation);
     Philox rng(rows);
     Matrix x(rows, 300);
     std::vector<int32_t> labels(static_cast<size_t>(rows));
@@ -165,7 +167,8 @@ TEST(TrainingStepTest, OnePartGivesTheSameBitsOnAnyThreads) {
         for (int s = 0; s < 3; ++s) step.Run(x, labels.data(), nullptr, 0.05f, params.data(), parallel);
         return params;
       };
-      const std::string where = std::to_string(rows) + " rows, " + ProductPrecisionName(products);
+      const std::string where = std::to_string(rows) + " rows, " + ProductPrecisionName(products) +
+                                (activation == Activation::kTanh ? ", tanh" : ", relu");
       const std::vector<float> serial = train(nullptr);
       const ThreadPerItem per_item;
       EXPECT_EQ(train(&per_item), serial) << where << ", a thread per block";
