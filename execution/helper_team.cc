@@ -12,6 +12,15 @@ inline void CpuRelax() {
 #endif
 }
 
+// One step of a spin-wait: a pause, and every kPausesPerYield pauses a yield, so that a thread
+// waiting for another that the OS has preempted (more threads than cores, until a grant that no
+// longer holds is withdrawn) gives its core up instead of spinning out its time slice.
+constexpr int kPausesPerYield = 1024;
+inline void SpinStep(int& spins) {
+  CpuRelax();
+  if (++spins % kPausesPerYield == 0) std::this_thread::yield();
+}
+
 }  // namespace
 
 HelperTeam::HelperTeam(int max_helpers) : max_helpers_(std::max(0, max_helpers)) {}
@@ -57,18 +66,18 @@ void HelperTeam::Run(int helpers, int64_t count, void (*body)(void* context, int
     wake_.notify_all();
   }
   for (int64_t i = 0; i < count; i += participants_) body(context, i);
-  while (remaining_.load(std::memory_order_acquire) > 0) CpuRelax();
+  for (int spins = 0; remaining_.load(std::memory_order_acquire) > 0;) SpinStep(spins);
 }
 
 uint64_t HelperTeam::AwaitCall(uint64_t seen) {
   using Clock = std::chrono::steady_clock;
   const Clock::time_point spin_until =
       Clock::now() + std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(kSpinSeconds));
-  for (int spins = 1;; ++spins) {
+  for (int spins = 0;;) {
     const uint64_t generation = generation_.load(std::memory_order_acquire);
     if (generation != seen) return generation;
     if (stop_.load(std::memory_order_relaxed)) return 0;
-    CpuRelax();
+    SpinStep(spins);
     if (spins % 256 == 0 && Clock::now() > spin_until) break;
   }
   // Sleep. Run bumps the generation, then reads sleeping_; this thread counts itself in

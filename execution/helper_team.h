@@ -2,9 +2,10 @@
 // is granted). The calling thread runs items 0, h + 1, 2 (h + 1), ... and helper i the items
 // i + 1, i + 1 + (h + 1), ...: a block of rows goes to the same thread on every call, so it stays
 // in that core's cache from one product to the next. Between calls a helper spins for up to
-// kSpinSeconds, then sleeps until the next call. Measured by chorus-bench-handoff (BENCHMARKS.md):
-// a call after a gap under 1 ms costs about what a call without one does, where oneTBB's workers,
-// asleep after about 200 us, cost 8-40 us more.
+// kSpinSeconds (pausing, and yielding its core every thousand pauses, as the caller does while it
+// waits for the helpers), then sleeps until the next call. Measured by chorus-bench-handoff
+// (BENCHMARKS.md): a call after a gap under 1 ms costs about what a call without one does, where
+// oneTBB's workers, asleep after about 200 us, cost 8-40 us more.
 // Thread safety: Run is called from one thread at a time (the job's); helpers start on the first
 // Run that uses them (their only allocations) and stop in the destructor.
 #pragma once

@@ -146,9 +146,14 @@ class ThreadPerItem final : public ParallelFor {
 // separate one (batch 128), with bf16 products, relu and tanh, and with oneTBB arenas of 2 and 3
 // threads. The network is large enough that its products are cut.
 TEST(TrainingStepTest, OnePartGivesTheSameBitsOnAnyThreads) {
-  for (const auto& [rows, activation] : {std::pair{int64_t{32}, Activation::kRelu},
-                                         std::pair{int64_t{128}, Activation::kRelu},
-                                         std::pair{int64_t{128}, Activation::kTanh}}) {
+  struct Case {
+    int64_t rows;
+    Activation activation;
+  };
+  for (const Case& c : {Case{32, Activation::kRelu}, Case{128, Activation::kRelu},
+                        Case{128, Activation::kTanh}}) {
+    const int64_t rows = c.rows;  // named, not bound: lambdas below capture them
+    const Activation activation = c.activation;
     const Mlp net({300, 256, 128, 10}, activation);
     Philox rng(rows);
     Matrix x(rows, 300);
