@@ -212,7 +212,7 @@ struct SearchConfig {
 
 struct ComputeConfig {
   // --- changes speed only ---
-  int threads = 0;              // members trained at once (oneTBB arena size); 0 = all cores
+  int threads = 0;              // members trained at once (slot threads); 0 = all cores
 };
 
 // Where member jobs run (docs/design.md). With local_workers > 0 chorus run starts that many
