@@ -317,11 +317,7 @@ void GemmWithKernelAcross(const ParallelFor* parallel, const GemmKernel& kernel,
                           Transpose trans_b, float alpha, const ConstMatrixRef& a,
                           const ConstMatrixRef& b, float beta, MatrixRef c, const SgdUpdate* sgd) {
   const int64_t m = c.rows(), n = c.cols(), k = trans_a == Transpose::kYes ? a.rows() : a.cols();
-  const int64_t threads = ThreadsOf(parallel);
-  if (threads <= 1 || m * n * k < kMinSplitMultiplies) {
-    GemmWithKernel(kernel, trans_a, trans_b, alpha, a, b, beta, c, sgd);
-    return;
-  }
+  const int64_t threads = m * n * k < kMinSplitMultiplies ? 1 : ThreadsOf(parallel);
   // Every block packs the whole of the operand that is not cut. Cutting rows repeats op(B)'s
   // packing (none when each block reads a plain op(B) in place: see GemmWithKernel), cutting
   // columns repeats op(A)'s.
@@ -330,7 +326,7 @@ void GemmWithKernelAcross(const ParallelFor* parallel, const GemmKernel& kernel,
   const bool by_rows = (b_in_place ? 0 : k * n) <= m * k;
   const int64_t unit = by_rows ? kernel.mr : kernel.nr, extent = by_rows ? m : n;
   const int64_t pieces = std::min(threads, (extent + unit - 1) / unit);
-  if (pieces <= 1) {
+  if (pieces <= 1) {  // one thread, a small product, or too few tiles to cut
     GemmWithKernel(kernel, trans_a, trans_b, alpha, a, b, beta, c, sgd);
     return;
   }
