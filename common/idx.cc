@@ -9,6 +9,8 @@
 #include <exception>
 #include <limits>
 
+#include "common/huge_pages.h"
+
 namespace chorus {
 
 uint32_t IdxBigEndian32(const uint8_t* p) {
@@ -196,6 +198,7 @@ StatusOr<std::vector<uint8_t>> ReadMaybeGzip(const std::string& path) {
     bytes.resize(old_size + std::max(got, 0));
     if (got <= 0) break;
     limit = ReadLimit(bytes, path);
+    if (limit != std::numeric_limits<size_t>::max()) ReserveOnHugePages(&bytes, limit);
   }
   const int read_errno = errno;
   int error = Z_OK;
@@ -213,6 +216,7 @@ StatusOr<IdxArray> ParseIdxUnchecked(const std::vector<uint8_t>& bytes, const st
   CHORUS_RETURN_IF_ERROR(CheckLength(h, bytes.size(), path));
   IdxArray array;
   array.dims = h.dims;
+  ReserveOnHugePages(&array.values, static_cast<size_t>(h.elements));
   array.values.resize(static_cast<size_t>(h.elements));
   Decode(h.type, bytes.data() + h.header_bytes, h.elements, array.values.data());
   return array;

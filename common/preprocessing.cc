@@ -13,6 +13,7 @@
 #include "common/feature_encoder.h"
 #include "common/folds.h"
 #include "common/holdout.h"
+#include "common/huge_pages.h"
 #include "common/message_text.h"
 
 namespace chorus {
@@ -76,6 +77,7 @@ template <typename Scalar>
 StatusOr<Matrix> Standardize(const RowSet<Scalar>& set, const FeaturePlan& plan, const Standardizer& s) {
   const int64_t features = plan.Features();
   Matrix x(static_cast<Eigen::Index>(set.rows.size()), features);
+  AdviseHugePages(x.data(), static_cast<size_t>(x.size()) * sizeof(float));
   std::vector<double> row(static_cast<size_t>(features));
   for (size_t i = 0; i < set.rows.size(); ++i) {
     EncodeRawRow(*set.raw, set.rows[i], plan, row.data());

@@ -167,10 +167,15 @@ std::vector<SizeCurvePoint> ClassificationSizeGrid(
     const MemberSamples& test_logits, const std::vector<int32_t>& test_labels, int subsets,
     int ece_bins, uint64_t seed, const ParallelFor* parallel) {
   assert(validation_logits.size() == test_logits.size() && !test_logits.empty());
+  std::vector<const Matrix*> every_component;
+  for (const std::vector<const Matrix*>& member : validation_logits) {
+    every_component.insert(every_component.end(), member.begin(), member.end());
+  }
+  const TemperatureGridTerms grid_terms(every_component, validation_labels, parallel);
   const auto score = [&](const Subset& subset, int samples, SubsetScores* scores) {
     const std::vector<double> weights(subset.size() * samples, 1.0 / (subset.size() * samples));
     const std::vector<const Matrix*> validation_components = Pick(validation_logits, subset, samples);
-    const double t = TuneTemperature(validation_components, weights, validation_labels);
+    const double t = TuneTemperature(validation_components, weights, validation_labels, &grid_terms);
     scores->validation_nll.push_back(
         ScoreClassification(MixtureProbabilities(validation_components, weights, t), validation_labels, ece_bins).nll);
     const ClassificationMetrics metrics = ScoreClassification(

@@ -4,12 +4,14 @@
 #include <cstdio>
 #include <exception>
 
+#include "common/heap_tuning.h"
 #include "coordinator/command.h"
 
 int main(int argc, char** argv) {
   // Past a file size limit (RLIMIT_FSIZE) a write fails with EFBIG instead of killing the process,
   // so the atomic writer removes its temporary file and the error names the file.
   std::signal(SIGXFSZ, SIG_IGN);
+  chorus::KeepFreedHeapMemoryForReuse();
   CLI::App app{
       "chorus: train ensembles of neural networks on CPUs and turn them into one calibrated,\n"
       "uncertainty-aware predictor.\n\nExit codes: 0 success, 1 internal failure, 2 bad input or "

@@ -5,8 +5,11 @@
 #include <google/protobuf/wire_format_lite.h>
 
 #include <climits>
+#include <cstdio>
+#include <cstdlib>
 #include <cstring>
 
+#include "common/huge_pages.h"
 #include "data.pb.h"
 
 namespace chorus {
@@ -18,13 +21,55 @@ using WireType = WireFormatLite::WireType;
 
 constexpr int64_t kMaxCols = int64_t{1} << 24;
 
-void SplitToWire(const Split& s, wire::SplitData* out) {
-  out->set_rows(s.x.rows());
-  out->set_cols(s.x.cols());
-  out->set_features(std::string(reinterpret_cast<const char*>(s.x.data()),
-                                static_cast<size_t>(s.x.size()) * sizeof(float)));
-  out->mutable_labels()->Add(s.labels.begin(), s.labels.end());
-  out->mutable_targets()->Add(s.targets.begin(), s.targets.end());
+// The packed varint bytes of `values`.
+size_t PackedInt32Bytes(const std::vector<int32_t>& values) {
+  size_t n = 0;
+  for (const int32_t v : values) n += WireFormatLite::Int32Size(v);
+  return n;
+}
+
+// One SplitData message's bytes after its tag and length, as protobuf serialises them (proto3:
+// zero and empty fields are left out; labels and targets packed).
+size_t SplitBodyBytes(const Split& s) {
+  using google::protobuf::io::CodedOutputStream;
+  size_t n = 0;
+  if (s.x.rows() != 0) n += 1 + CodedOutputStream::VarintSize64(static_cast<uint64_t>(s.x.rows()));
+  if (s.x.cols() != 0) n += 1 + CodedOutputStream::VarintSize64(static_cast<uint64_t>(s.x.cols()));
+  const size_t feature_bytes = static_cast<size_t>(s.x.size()) * sizeof(float);
+  if (feature_bytes != 0) n += 1 + CodedOutputStream::VarintSize64(feature_bytes) + feature_bytes;
+  if (!s.labels.empty()) {
+    const size_t label_bytes = PackedInt32Bytes(s.labels);
+    n += 1 + CodedOutputStream::VarintSize64(label_bytes) + label_bytes;
+  }
+  if (!s.targets.empty()) {
+    const size_t target_bytes = s.targets.size() * sizeof(float);
+    n += 1 + CodedOutputStream::VarintSize64(target_bytes) + target_bytes;
+  }
+  return n;
+}
+
+// Writes split `s` as field `field` of PreparedDataSet at `to`, straight from its matrix
+// (building a wire::SplitData would copy the features twice more); returns the end.
+uint8_t* WriteSplit(int field, const Split& s, uint8_t* to) {
+  using google::protobuf::io::CodedOutputStream;
+  const auto raw = [&](int number, const void* data, size_t bytes) {
+    to = WireFormatLite::WriteTagToArray(number, WireFormatLite::WIRETYPE_LENGTH_DELIMITED, to);
+    to = CodedOutputStream::WriteVarint64ToArray(bytes, to);
+    std::memcpy(to, data, bytes);
+    to += bytes;
+  };
+  to = WireFormatLite::WriteTagToArray(field, WireFormatLite::WIRETYPE_LENGTH_DELIMITED, to);
+  to = CodedOutputStream::WriteVarint64ToArray(SplitBodyBytes(s), to);
+  if (s.x.rows() != 0) to = WireFormatLite::WriteInt64ToArray(1, s.x.rows(), to);
+  if (s.x.cols() != 0) to = WireFormatLite::WriteInt64ToArray(2, s.x.cols(), to);
+  if (s.x.size() != 0) raw(3, s.x.data(), static_cast<size_t>(s.x.size()) * sizeof(float));
+  if (!s.labels.empty()) {
+    to = WireFormatLite::WriteTagToArray(4, WireFormatLite::WIRETYPE_LENGTH_DELIMITED, to);
+    to = CodedOutputStream::WriteVarint64ToArray(PackedInt32Bytes(s.labels), to);
+    for (const int32_t v : s.labels) to = WireFormatLite::WriteInt32NoTagToArray(v, to);
+  }
+  if (!s.targets.empty()) raw(5, s.targets.data(), s.targets.size() * sizeof(float));
+  return to;
 }
 
 // rows x cols float32 is exactly `bytes` bytes (and the shape is one the decoder accepts).
@@ -135,6 +180,7 @@ class SplitReader {
     pending_ = !ShapeMatches(rows_, cols_, feature_bytes_);
     if (pending_) return in.ReadString(&pending_bytes_, length);
     s->x.resize(rows_, cols_);
+    AdviseHugePages(s->x.data(), feature_bytes_);
     return in.ReadRaw(s->x.data(), length);
   }
 
@@ -194,18 +240,33 @@ Status ReadDataSet(CodedInputStream& in, const std::string& source, PreparedData
 }  // namespace
 
 std::string EncodePreparedData(const PreparedData& data) {
-  wire::PreparedDataSet msg;
-  msg.set_format_version(kDataFormatVersion);
-  msg.set_task(TaskName(data.task));
-  msg.set_hash(data.hash);
-  msg.mutable_class_names()->Add(data.class_names.begin(), data.class_names.end());
-  msg.mutable_feature_names()->Add(data.feature_names.begin(), data.feature_names.end());
-  msg.set_target_mean(data.target_mean);
-  msg.set_target_scale(data.target_scale);
-  SplitToWire(data.train, msg.mutable_train());
-  SplitToWire(data.validation, msg.mutable_validation());
-  SplitToWire(data.test, msg.mutable_test());
-  return msg.SerializeAsString();
+  using google::protobuf::io::CodedOutputStream;
+  wire::PreparedDataSet header;  // the fields before the splits
+  header.set_format_version(kDataFormatVersion);
+  header.set_task(TaskName(data.task));
+  header.set_hash(data.hash);
+  header.mutable_class_names()->Add(data.class_names.begin(), data.class_names.end());
+  header.mutable_feature_names()->Add(data.feature_names.begin(), data.feature_names.end());
+  header.set_target_mean(data.target_mean);
+  header.set_target_scale(data.target_scale);
+  const Split* splits[] = {&data.train, &data.validation, &data.test};
+  size_t total = header.ByteSizeLong();
+  for (const Split* s : splits) {
+    const size_t body = SplitBodyBytes(*s);
+    total += 1 + CodedOutputStream::VarintSize64(body) + body;
+  }
+  std::string bytes;
+  bytes.reserve(total);
+  AdviseHugePages(bytes.data(), total);
+  bytes.resize(total);
+  uint8_t* const begin = reinterpret_cast<uint8_t*>(bytes.data());
+  uint8_t* to = header.SerializeWithCachedSizesToArray(begin);
+  for (int i = 0; i < 3; ++i) to = WriteSplit(8 + i, *splits[i], to);
+  if (to != begin + total) {  // SplitBodyBytes and WriteSplit disagree: a bug, not bad input
+    std::fprintf(stderr, "EncodePreparedData: wrote %td of %zu bytes\n", to - begin, total);
+    std::abort();
+  }
+  return bytes;
 }
 
 StatusOr<PreparedData> DecodePreparedData(const std::string& bytes, const std::string& source,

@@ -11,6 +11,7 @@
 #include <string>
 
 #include "common/file_util.h"
+#include "common/heap_tuning.h"
 #include "common/log_format.h"
 #include "worker/worker_loop.h"
 
@@ -51,6 +52,7 @@ void LogExit(int exit_code) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  chorus::KeepFreedHeapMemoryForReuse();
   CLI::App app{"chorus-worker: lease ensemble-member jobs from a chorus coordinator, train them on\n"
                "this server's CPUs and send the results back. Reconnects with backoff while the\n"
                "coordinator is away; on SIGTERM or SIGINT returns its leases and exits.\n\n"

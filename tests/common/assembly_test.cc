@@ -168,6 +168,36 @@ TEST(AssemblyTest, TuneTemperatureRecoversKnownTemperature) {
   }
 }
 
+TEST(AssemblyTest, GridTermsChangeNoBitOfTheTunedTemperature) {
+  // The size grid tunes every subset with terms precomputed for all members; each tuning must
+  // equal the one computed from scratch exactly. Subsets with unequal weights, one zero weight,
+  // and a component the terms do not hold (then the tuning computes everything itself).
+  const Ensemble e = RandomEnsemble(4, 300, 5, 47);
+  const std::vector<const Matrix*> all = e.Validation();
+  const TemperatureGridTerms terms({all[0], all[1], all[2]}, e.validation_labels, nullptr);
+  EXPECT_NE(terms.Find(all[1], TemperatureGridTerms::kGridPoints - 1), nullptr);
+  EXPECT_EQ(terms.Find(all[3], 0), nullptr);
+  const std::vector<std::pair<std::vector<const Matrix*>, std::vector<double>>> cases = {
+      {{all[0]}, {1.0}},
+      {{all[0], all[2]}, {0.5, 0.5}},
+      {{all[2], all[1], all[0]}, {0.2, 0.0, 0.8}},
+      {{all[1], all[3]}, {0.5, 0.5}},
+  };
+  for (const auto& c : cases) {
+    const double plain = TuneTemperature(c.first, c.second, e.validation_labels);
+    EXPECT_EQ(TuneTemperature(c.first, c.second, e.validation_labels, &terms), plain);
+  }
+  // Built through a thread pool: the same terms.
+  tbb::task_arena arena(2);
+  arena.execute([&] {
+    const TbbParallelFor parallel;
+    const TemperatureGridTerms threaded(all, e.validation_labels, &parallel);
+    for (int j : {0, 17, TemperatureGridTerms::kGridPoints - 1}) {
+      EXPECT_EQ(*threaded.Find(all[2], j), *terms.Find(all[2], j));
+    }
+  });
+}
+
 // A validation set the model never gets wrong gives no reason to stop sharpening: the tuned
 // temperature runs to the end of its range, which AtTuningRangeEnd reports; a well-posed case
 // (labels drawn from the model, T0 = 2.5 as above) does not.
