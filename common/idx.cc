@@ -193,12 +193,15 @@ StatusOr<std::vector<uint8_t>> ReadMaybeGzip(const std::string& path) {
   size_t limit = std::numeric_limits<size_t>::max();
   while (bytes.size() < limit) {
     const size_t old_size = bytes.size();
-    bytes.resize(old_size + std::min(kReadChunk, limit - old_size));
+    const size_t size = old_size + std::min(kReadChunk, limit - old_size);
+    // Grows by doubling as bytes arrive (a header's size is not trusted for more), never past
+    // what the header promises, each new buffer on huge pages.
+    if (size > bytes.capacity()) ReserveOnHugePages(&bytes, std::min(limit, std::max(size, 2 * bytes.capacity())));
+    bytes.resize(size);
     const int got = gzread(file, bytes.data() + old_size, bytes.size() - old_size);
     bytes.resize(old_size + std::max(got, 0));
     if (got <= 0) break;
     limit = ReadLimit(bytes, path);
-    if (limit != std::numeric_limits<size_t>::max()) ReserveOnHugePages(&bytes, limit);
   }
   const int read_errno = errno;
   int error = Z_OK;
