@@ -1,5 +1,7 @@
 #include "common/csv_reader.h"
 
+#include <zlib.h>
+
 #include <algorithm>
 #include <cerrno>
 #include <cstring>
@@ -14,7 +16,7 @@ constexpr size_t kBufferBytes = size_t{1} << 16;
 
 StatusOr<std::unique_ptr<CsvReader>> CsvReader::Open(const std::string& path,
                                                      int64_t max_record_bytes) {
-  std::FILE* file = std::fopen(path.c_str(), "rb");
+  gzFile file = gzopen(path.c_str(), "rb");  // a gzip file is inflated, any other read as is
   if (file == nullptr) {
     return Status::InvalidInput(path + ": cannot open file: " + std::strerror(errno));
   }
@@ -45,24 +47,31 @@ StatusOr<std::unique_ptr<CsvReader>> CsvReader::Open(const std::string& path,
   return reader;
 }
 
-CsvReader::CsvReader(std::FILE* file, std::string path, int64_t max_record_bytes)
+CsvReader::CsvReader(gzFile_s* file, std::string path, int64_t max_record_bytes)
     : file_(file),
       path_(std::move(path)),
       max_record_bytes_(max_record_bytes),
       buffer_(kBufferBytes) {}
 
-CsvReader::~CsvReader() { std::fclose(file_); }
+CsvReader::~CsvReader() { gzclose(file_); }
 
 int CsvReader::Peek(size_t ahead) {
   while (end_ - begin_ <= ahead && !eof_) {
     std::memmove(buffer_.data(), buffer_.data() + begin_, end_ - begin_);
     end_ -= begin_;
     begin_ = 0;
-    const size_t got = std::fread(buffer_.data() + end_, 1, buffer_.size() - end_, file_);
-    end_ += got;
-    if (got == 0) {
+    const int got = gzread(file_, buffer_.data() + end_, static_cast<unsigned>(buffer_.size() - end_));
+    if (got > 0) end_ += static_cast<size_t>(got);
+    if (got <= 0) {
       eof_ = true;
-      read_failed_ = std::ferror(file_) != 0;
+      int code = Z_OK;
+      std::string message = gzerror(file_, &code);
+      if (message.rfind(path_ + ": ", 0) == 0) message.erase(0, path_.size() + 2);  // zlib names the file
+      if (code == Z_ERRNO) {
+        read_error_ = Status::Io(path_ + ": read failed: " + std::strerror(errno));
+      } else if (code != Z_OK) {  // a gzip stream cut short or corrupt: bad input
+        read_error_ = Status::InvalidInput(path_ + ": bad gzip data: " + message);
+      }
     }
   }
   return end_ - begin_ > ahead ? static_cast<unsigned char>(buffer_[begin_ + ahead]) : -1;
@@ -162,7 +171,7 @@ Status CsvReader::ReadRecord(CsvRecord* record) {
 StatusOr<bool> CsvReader::Next(CsvRecord* record) {
   SkipBlankLines();
   if (AtEnd()) {
-    if (read_failed_) return Status::Io(path_ + ": read failed");
+    if (!read_error_.ok()) return read_error_;
     return false;
   }
   record->line = line_;
@@ -170,7 +179,7 @@ StatusOr<bool> CsvReader::Next(CsvRecord* record) {
   record->problem = Status::Ok();
   record_bytes_ = 0;
   CHORUS_RETURN_IF_ERROR(ReadRecord(record));
-  if (read_failed_) return Status::Io(path_ + ": read failed");
+  if (!read_error_.ok()) return read_error_;
   const size_t expected = header_.size();
   if (record->problem.ok() && !header_.empty() && record->fields.size() != expected) {
     const size_t column = std::min(record->fields.size(), expected) + 1;

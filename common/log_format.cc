@@ -47,7 +47,13 @@ size_t Utf8Length(std::string_view s, size_t i) {
   return n;
 }
 
-// "2026-12-01T23:17:03.512Z"
+void Write(FILE* out, const std::string& line) {
+  std::fwrite(line.data(), 1, line.size(), out);
+  std::fflush(out);
+}
+
+}  // namespace
+
 std::string Rfc3339(std::chrono::system_clock::time_point time) {
   const auto ms =
       std::chrono::duration_cast<std::chrono::milliseconds>(time.time_since_epoch()).count();
@@ -61,12 +67,6 @@ std::string Rfc3339(std::chrono::system_clock::time_point time) {
   return buf;
 }
 
-void Write(FILE* out, const std::string& line) {
-  std::fwrite(line.data(), 1, line.size(), out);
-  std::fflush(out);
-}
-
-}  // namespace
 
 void SetLogFormat(LogFormat format) { g_format.store(format); }
 

@@ -70,6 +70,9 @@ void LogPrintf(FILE* out, LogLevel level, const char* format, ...)
 std::string JsonLogLine(std::chrono::system_clock::time_point time, LogLevel level,
                         std::string_view text, std::initializer_list<LogField> fields);
 
+// UTC time with milliseconds, RFC 3339: "2026-12-01T23:17:03.512Z" (the lines' "time").
+std::string Rfc3339(std::chrono::system_clock::time_point time);
+
 // `text` as a JSON string literal, quotes included.
 std::string JsonString(std::string_view text);
 

@@ -19,6 +19,7 @@ void RegisterInspectCommand(CLI::App& app, CommandRunner* runner);
 void RegisterReportCommand(CLI::App& app, CommandRunner* runner);
 void RegisterCompareCommand(CLI::App& app, CommandRunner* runner);
 void RegisterPromoteCommand(CLI::App& app, CommandRunner* runner);
+void RegisterRollbackCommand(CLI::App& app, CommandRunner* runner);
 void RegisterReferenceCommand(CLI::App& app, CommandRunner* runner);
 
 }  // namespace chorus

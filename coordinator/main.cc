@@ -25,6 +25,7 @@ int main(int argc, char** argv) {
   chorus::RegisterReportCommand(app, &runner);
   chorus::RegisterCompareCommand(app, &runner);
   chorus::RegisterPromoteCommand(app, &runner);
+  chorus::RegisterRollbackCommand(app, &runner);
   chorus::RegisterReferenceCommand(app, &runner);
   try {
     app.parse(argc, argv);

@@ -194,12 +194,17 @@ Status Registry::RecordRefusal(const std::string& id, const std::string& decisio
   return WriteFileAtomic(dir_ + "/refused/" + id + ".json", decision_json);
 }
 
-StatusOr<std::vector<std::string>> Registry::Prune(int keep) {
-  CHORUS_ASSIGN_OR_RETURN(const std::optional<std::string> current, Current());
+StatusOr<std::vector<std::string>> Registry::Versions() const {
   CHORUS_ASSIGN_OR_RETURN(std::vector<std::string> versions, ListNames(dir_ + "/versions"));
   versions.erase(std::remove_if(versions.begin(), versions.end(),
                                 [](const std::string& id) { return !ValidId(id); }),
                  versions.end());
+  return versions;
+}
+
+StatusOr<std::vector<std::string>> Registry::Prune(int keep) {
+  CHORUS_ASSIGN_OR_RETURN(const std::optional<std::string> current, Current());
+  CHORUS_ASSIGN_OR_RETURN(const std::vector<std::string> versions, Versions());
   std::vector<std::string> removed;
   for (size_t i = 0; i + keep < versions.size(); ++i) {
     if (versions[i] == current) continue;

@@ -6,6 +6,7 @@
 //   DIR/versions/ID/decision.json  the gate's decision that let it in
 //   DIR/versions/ID/report.json    the run's report, when it had one
 //   DIR/refused/ID.json            the decision of a refused candidate (its bundle is not kept)
+//   DIR/rollbacks.jsonl            one line per `chorus rollback`: time, from, to
 //
 // ID is "<UTC time YYYYMMDDTHHMMSS.mmmZ>-<first 12 hex digits of the bundle's payload SHA-256>"
 // ("-2", "-3"... appended if taken), so names sort by time (promotions hold the lock for far
@@ -48,6 +49,9 @@ class Registry {
   // The version `current` points at, or nullopt if there is no `current` yet. Errors
   // (kInvalidInput): `current` is not a symlink to versions/ID, or that version has no bundle.
   StatusOr<std::optional<std::string>> Current() const;
+
+  // The IDs under versions/, oldest first (IDs sort by promotion time). Errors: kIo.
+  StatusOr<std::vector<std::string>> Versions() const;
 
   // A fresh ID for a bundle with this payload SHA-256, promoted at `now`.
   std::string NewId(const std::string& payload_sha256,

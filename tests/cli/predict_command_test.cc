@@ -143,6 +143,11 @@ TEST_F(PredictCommandTest, ReproducesTheReportOnTheRunsOwnTestRows) {
     ASSERT_EQ(r.exit_code, 0) << r.output;
   }
   EXPECT_EQ(ReadTextFile(dir_ + "/p1.csv"), ReadTextFile(dir_ + "/p2.csv")) << "1 vs 2 threads";
+  // The same rows compressed by gzip(1) (Debian's gzip): the same output, byte for byte.
+  ASSERT_EQ(testing::RunShell("gzip -c " + test_csv + " > " + test_csv + ".gz").exit_code, 0);
+  const auto gz = Chorus("predict " + run + "/bundle.chorus " + test_csv + ".gz -o " + dir_ + "/pgz.csv");
+  ASSERT_EQ(gz.exit_code, 0) << gz.output;
+  EXPECT_EQ(ReadTextFile(dir_ + "/pgz.csv"), ReadTextFile(dir_ + "/p1.csv")) << "gzip input";
   const PreparedData data = RunData("cls");
   const Table t = ReadTable(dir_ + "/p1.csv");
   ASSERT_EQ(t.rows.size(), 400u);

@@ -4,6 +4,7 @@
 
 #include <gtest/gtest.h>
 
+#include <cstdlib>
 #include <filesystem>
 #include <fstream>
 
@@ -105,6 +106,39 @@ TEST_F(CsvReaderTest, BadHeadersAndOversizedRecordsAreErrors) {
   const StatusOr<bool> next = reader.value()->Next(&record);
   EXPECT_EQ(next.status().code(), Status::Code::kInvalidInput);
   EXPECT_NE(next.status().message().find("longer than 100 bytes"), std::string::npos);
+}
+
+TEST_F(CsvReaderTest, GzipFilesReadLikeTheirContentAndACutOneIsAnError) {
+  // Compressed by gzip(1) (Debian's gzip package), not by the zlib the reader uses.
+  std::string text = "id,note\n";
+  for (int i = 0; i < 5000; ++i) text += std::to_string(i) + ",\"row " + std::to_string(i) + "\"\n";
+  const std::string plain = Write(text);
+  const std::string gz = dir_ + "/f.csv.gz";
+  ASSERT_EQ(std::system(("gzip -c " + plain + " > " + gz).c_str()), 0);
+  StatusOr<std::unique_ptr<CsvReader>> a = CsvReader::Open(plain), b = CsvReader::Open(gz);
+  ASSERT_TRUE(a.ok() && b.ok());
+  const std::vector<CsvRecord> from_plain = ReadAll(*a.value()), from_gz = ReadAll(*b.value());
+  ASSERT_EQ(from_gz.size(), 5000u);
+  for (size_t i = 0; i < from_gz.size(); ++i) {
+    EXPECT_EQ(from_gz[i].fields, from_plain[i].fields) << i;
+    EXPECT_EQ(from_gz[i].line, from_plain[i].line) << i;
+  }
+  // The compressed file cut in half: the rows before the cut, then an error naming the file.
+  const std::uintmax_t size = std::filesystem::file_size(gz);
+  std::filesystem::resize_file(gz, size / 2);
+  StatusOr<std::unique_ptr<CsvReader>> cut = CsvReader::Open(gz);
+  ASSERT_TRUE(cut.ok()) << cut.status().ToString();
+  CsvRecord record;
+  StatusOr<bool> more = true;
+  int rows = 0;
+  while (more.ok() && more.value()) {
+    more = cut.value()->Next(&record);
+    rows += more.ok() && more.value() ? 1 : 0;
+  }
+  EXPECT_GT(rows, 0);
+  EXPECT_LT(rows, 5000);
+  EXPECT_EQ(more.status().code(), Status::Code::kInvalidInput);
+  EXPECT_EQ(more.status().message(), gz + ": bad gzip data: unexpected end of file");
 }
 
 }  // namespace csv_reader_test

@@ -1,0 +1,122 @@
+#include "coordinator/rollback_command.h"
+
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <filesystem>
+#include <memory>
+#include <optional>
+#include <set>
+#include <sstream>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "common/file_util.h"
+#include "common/log_format.h"
+#include "coordinator/registry.h"
+#include "proto/bundle_codec.h"
+
+namespace chorus {
+namespace {
+
+// The last few IDs of `versions`, for messages: "A, B, C" or "(none)".
+std::string RecentIds(const std::vector<std::string>& versions) {
+  constexpr size_t kShown = 5;
+  std::string text;
+  const size_t first = versions.size() > kShown ? versions.size() - kShown : 0;
+  for (size_t i = first; i < versions.size(); ++i) text += (text.empty() ? "" : ", ") + versions[i];
+  return text.empty() ? "(none)" : text;
+}
+
+// The versions earlier rollbacks moved away from ("from" of each line of DIR/rollbacks.jsonl).
+StatusOr<std::set<std::string>> RolledBackFrom(const std::string& dir) {
+  const std::string path = dir + "/rollbacks.jsonl";
+  std::set<std::string> from;
+  if (!std::filesystem::exists(path)) return from;
+  CHORUS_ASSIGN_OR_RETURN(const std::string text, ReadFileToString(path));
+  std::istringstream lines(text);
+  int number = 0;
+  for (std::string line; std::getline(lines, line);) {
+    ++number;
+    const nlohmann::json j = nlohmann::json::parse(line, nullptr, false);
+    if (j.is_discarded() || !j.is_object() || !j.contains("from") || !j["from"].is_string()) {
+      return Status::InvalidInput(path + ":" + std::to_string(number) +
+                                  ": expected a JSON object with a \"from\" version, as chorus rollback writes");
+    }
+    from.insert(j["from"].get<std::string>());
+  }
+  return from;
+}
+
+// The version to switch to: `to` if it is kept; else the newest version older than `current`
+// that no rollback has moved away from (so a version once rolled back is not returned to by
+// accident when a later promotion is rolled back).
+StatusOr<std::string> Target(const Registry& registry, const std::string& current, const std::string& to) {
+  CHORUS_ASSIGN_OR_RETURN(const std::vector<std::string> versions, registry.Versions());
+  if (!to.empty()) {
+    if (std::find(versions.begin(), versions.end(), to) == versions.end()) {
+      return Status::InvalidInput(registry.dir() + "/versions/" + to + ": no such version; the newest " +
+                                  "kept: " + RecentIds(versions));
+    }
+    return to;
+  }
+  CHORUS_ASSIGN_OR_RETURN(const std::set<std::string> left, RolledBackFrom(registry.dir()));
+  for (auto at = std::lower_bound(versions.begin(), versions.end(), current); at != versions.begin();) {
+    --at;
+    if (left.count(*at) == 0) return *at;
+  }
+  return Status::InvalidInput(registry.dir() + ": no version older than current (versions/" + current +
+                              ") that a rollback has not already left; name one with --to (kept: " +
+                              RecentIds(versions) + ")");
+}
+
+Status Rollback(const RollbackOptions& o, std::string* now_current) {
+  if (!std::filesystem::is_directory(o.registry_dir + "/versions")) {
+    return Status::InvalidInput(o.registry_dir + ": not a registry (no versions/ directory)");
+  }
+  const auto on_wait = [] {
+    LogLine(stderr, LogLevel::kInfo, "waiting for another promote or rollback to release the registry");
+  };
+  CHORUS_ASSIGN_OR_RETURN(std::unique_ptr<Registry> registry, Registry::Open(o.registry_dir, on_wait));
+  CHORUS_ASSIGN_OR_RETURN(const std::optional<std::string> current, registry->Current());
+  if (!current.has_value()) {
+    return Status::InvalidInput(o.registry_dir + ": no current version to roll back from");
+  }
+  CHORUS_ASSIGN_OR_RETURN(const std::string target, Target(*registry, *current, o.to));
+  *now_current = target;
+  if (target == *current) {
+    LogLine(stderr, LogLevel::kInfo, "versions/" + target + " already is current", {{"current", target}});
+    return Status::Ok();
+  }
+  const StatusOr<BundleFile> bundle = ReadBundleFile(registry->BundlePath(target));
+  if (!bundle.ok()) {
+    *now_current = *current;
+    return Status::InvalidInput("not rolling back: " + bundle.status().message() + "; current stays versions/" +
+                                *current);
+  }
+  CHORUS_RETURN_IF_ERROR(registry->SwitchCurrent(target));
+  LogLine(stderr, LogLevel::kInfo, "rolled back: current -> versions/" + target + " (was " + *current + ")",
+          {{"current", target}, {"previous", *current}});
+  const std::string line = "{\"time\": " + JsonString(Rfc3339(std::chrono::system_clock::now())) +
+                           ", \"from\": " + JsonString(*current) + ", \"to\": " + JsonString(target) + "}";
+  const Status recorded = AppendLine(o.registry_dir + "/rollbacks.jsonl", line);
+  if (!recorded.ok()) {
+    return recorded.WithContext("current now is versions/" + target + ", but the rollback was not recorded");
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+int RollbackCommand(const RollbackOptions& options) {
+  std::string now_current;
+  const Status st = Rollback(options, &now_current);
+  if (!now_current.empty() && (st.ok() || st.code() == Status::Code::kIo)) {
+    std::printf("%s\n", now_current.c_str());
+  }
+  if (!st.ok()) LogLine(stderr, LogLevel::kError, "chorus rollback: " + st.ToString());
+  return st.ExitCode();
+}
+
+}  // namespace chorus
