@@ -20,6 +20,7 @@ void RegisterReportCommand(CLI::App& app, CommandRunner* runner);
 void RegisterCompareCommand(CLI::App& app, CommandRunner* runner);
 void RegisterPromoteCommand(CLI::App& app, CommandRunner* runner);
 void RegisterRollbackCommand(CLI::App& app, CommandRunner* runner);
+void RegisterHistoryCommand(CLI::App& app, CommandRunner* runner);
 void RegisterReferenceCommand(CLI::App& app, CommandRunner* runner);
 
 }  // namespace chorus

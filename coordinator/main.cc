@@ -26,6 +26,7 @@ int main(int argc, char** argv) {
   chorus::RegisterCompareCommand(app, &runner);
   chorus::RegisterPromoteCommand(app, &runner);
   chorus::RegisterRollbackCommand(app, &runner);
+  chorus::RegisterHistoryCommand(app, &runner);
   chorus::RegisterReferenceCommand(app, &runner);
   try {
     app.parse(argc, argv);

@@ -12,6 +12,7 @@
 #include "tests/testing/demo_runs.h"
 #include "tests/testing/process.h"
 #include "tests/testing/reference.h"
+#include "tests/testing/registry_history.h"
 
 namespace chorus {
 namespace report_browser_test {
@@ -154,6 +155,20 @@ TEST_F(ReportBrowserTest, RegressionReportLoadsCleanly) {
   // Size curves against members (3), interval coverage, epistemic histogram, selective RMSE.
   ExpectCleanReport(run, 6);
   Screenshot(run + "/report.html", 3900, "report_regression");
+}
+
+TEST_F(ReportBrowserTest, RegistryHistoryLoadsCleanly) {
+  const std::string registry = dir_ + "/registry";
+  ASSERT_EQ(testing::MakeRegistryWithHistory(registry), "");
+  const auto r = testing::RunShell(testing::BinaryPath("chorus") + " history --registry " + registry, 60);
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const LoadedPage page = Load(registry + "/history.html");
+  EXPECT_TRUE(page.console.empty()) << page.console.front();
+  EXPECT_NE(page.dom.find("Rollbacks"), std::string::npos);
+  const std::vector<size_t> marks = DataMarksPerChart(page.dom);
+  ASSERT_EQ(marks.size(), 2u);  // guard NLL and accuracy over the decisions
+  for (size_t i = 0; i < marks.size(); ++i) EXPECT_GE(marks[i], 5u) << "chart " << i;
+  Screenshot(registry + "/history.html", 1400, "history");
 }
 
 }  // namespace report_browser_test
