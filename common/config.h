@@ -228,6 +228,7 @@ struct ClusterConfig {
   std::string tls_client_ca;    // PEM CA that client certificates must chain to (mutual TLS)
   double lease_seconds = 30;    // a lease lasts this long after its last heartbeat, > 0
   int max_attempts = 3;         // leases a job may use before it is recorded as failed, >= 1
+  std::string metrics_listen;   // "HOST:PORT" serving Prometheus text at /metrics; "" = none
 };
 
 struct Config {

@@ -13,6 +13,8 @@
 #include "coordinator/coordinator_service.h"
 #include "coordinator/job_table.h"
 #include "coordinator/local_workers.h"
+#include "coordinator/metrics_server.h"
+#include "coordinator/metrics_text.h"
 #include "coordinator/progress_view.h"
 #include "proto/data_codec.h"
 
@@ -109,6 +111,7 @@ class WorkerPoolRunner final : public JobRunner {
 
   void Close() override {
     if (!server_) return;
+    metrics_.reset();
     service_->Close();
     if (!c_.listen.empty()) TellRemoteWorkersDone(*service_, c_.lease_seconds);
     workers_.WaitForExit(5.0);  // they exit on their own once told the run is done
@@ -142,8 +145,21 @@ class WorkerPoolRunner final : public JobRunner {
       return Status::InvalidInput("cannot listen on " + address);
     }
     const std::string bound = address.substr(0, address.rfind(':') + 1) + std::to_string(port);
+    std::string metrics_address;
+    if (!c_.metrics_listen.empty()) {
+      auto render = [this] {
+        return PrometheusText({table_.Snapshot(), service_->Workers(), service_->RefusedCalls(),
+                               service_->UploadsOpen()});
+      };
+      CHORUS_ASSIGN_OR_RETURN(metrics_, MetricsServer::Start(c_.metrics_listen, render));
+      metrics_address = metrics_->address();
+      dir_.LogEvent("metrics_listening", {{"address", metrics_address}});
+      LogLine(stderr, LogLevel::kInfo, "metrics at http://" + metrics_address + "/metrics",
+              {{"metrics_address", metrics_address}});
+    }
     CHORUS_RETURN_IF_ERROR(WriteFileAtomic(dir_.File("coordinator.json"),
-        "{\"address\": \"" + bound + "\", \"token_file\": \"" + token.second + "\"}\n"));
+        "{\"address\": \"" + bound + "\", \"token_file\": \"" + token.second + "\"" +
+        (metrics_address.empty() ? "" : ", \"metrics_address\": \"" + metrics_address + "\"") + "}\n"));
     dir_.LogEvent("coordinator_listening", {{"address", bound}, {"local_workers", local_}});
     LogLine(stderr, LogLevel::kInfo, "coordinator listening on " + bound + "; " + std::to_string(local_) +
             " local worker(s)", {{"address", bound}, {"local_workers", local_}});
@@ -194,6 +210,7 @@ class WorkerPoolRunner final : public JobRunner {
   JobTable table_;
   std::unique_ptr<CoordinatorService> service_;
   std::unique_ptr<grpc::Server> server_;
+  std::unique_ptr<MetricsServer> metrics_;  // after service_ and table_, which it reads; stopped first
   LocalWorkers workers_;
   std::vector<std::string> worker_args_;
   int local_ = 0;

@@ -455,13 +455,28 @@ Status LoadCompute(const Section& s, ComputeConfig* c) {
 
 Status LoadCluster(const Section& s, const std::string& base, ClusterConfig* c) {
   CHORUS_RETURN_IF_ERROR(s.Check({"local_workers", "listen", "token_file", "tls", "lease_seconds",
-                                  "max_attempts"}));
+                                  "max_attempts", "metrics_listen"}));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("local_workers", &c->local_workers,
                                     "a worker count (-1 = one per core)", -1, 4096));
   CHORUS_RETURN_IF_ERROR(s.GetString("listen", &c->listen));
   CHORUS_RETURN_IF_ERROR(s.GetString("token_file", &c->token_file));
   CHORUS_RETURN_IF_ERROR(s.Get<double>("lease_seconds", &c->lease_seconds, "seconds", 0.1, 86400.0));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("max_attempts", &c->max_attempts, "an attempt count", 1, 1000));
+  CHORUS_RETURN_IF_ERROR(s.GetString("metrics_listen", &c->metrics_listen));
+  if (!c->metrics_listen.empty()) {
+    const size_t colon = c->metrics_listen.rfind(':');
+    const std::string port = colon == std::string::npos ? "" : c->metrics_listen.substr(colon + 1);
+    if (colon == 0 || port.empty() || port.size() > 5 || port.find_first_not_of("0123456789") != std::string::npos ||
+        std::stoi(port) > 65535) {
+      return s.Error(s.Node("metrics_listen"), s.Path("metrics_listen"),
+                     "expected HOST:PORT (PORT 0 picks a free one), for example \"127.0.0.1:9464\"");
+    }
+    if (c->local_workers == 0 && c->listen.empty()) {
+      return s.Error(s.Node("metrics_listen"), s.Path("metrics_listen"),
+                     "the in-process route (local_workers: 0, no listen) has no coordinator to report on; "
+                     "start local workers or listen for remote ones");
+    }
+  }
   if (s.Has("tls")) {
     Section t = s.Child("tls");
     CHORUS_RETURN_IF_ERROR(t.Check({"cert", "key", "client_ca"}));
@@ -619,7 +634,9 @@ void EmitCluster(YAML::Emitter& out, const ClusterConfig& c) {
     out << YAML::EndMap;
   }
   out << YAML::Key << "lease_seconds" << YAML::Value << c.lease_seconds
-      << YAML::Key << "max_attempts" << YAML::Value << c.max_attempts << YAML::EndMap;
+      << YAML::Key << "max_attempts" << YAML::Value << c.max_attempts;
+  if (!c.metrics_listen.empty()) out << YAML::Key << "metrics_listen" << YAML::Value << c.metrics_listen;
+  out << YAML::EndMap;
 }
 
 // model.image and model.conv, only when there are stages (so that the resolved config, and its

@@ -14,7 +14,7 @@
 #include "report/history_html.h"
 
 namespace chorus {
-namespace {
+namespace history_command {
 
 namespace fs = std::filesystem;
 using nlohmann::json;
@@ -104,11 +104,11 @@ Status WriteHistory(const HistoryOptions& o, std::string* written) {
   return Status::Ok();
 }
 
-}  // namespace
+}  // namespace history_command
 
 int HistoryCommand(const HistoryOptions& options) {
   std::string written;
-  const Status st = WriteHistory(options, &written);
+  const Status st = history_command::WriteHistory(options, &written);
   if (!st.ok()) {
     LogLine(stderr, LogLevel::kError, "chorus history: " + st.ToString());
     return st.ExitCode();

@@ -18,7 +18,7 @@
 #include "proto/bundle_codec.h"
 
 namespace chorus {
-namespace {
+namespace rollback_command {
 
 // The last few IDs of `versions`, for messages: "A, B, C" or "(none)".
 std::string RecentIds(const std::vector<std::string>& versions) {
@@ -107,11 +107,11 @@ Status Rollback(const RollbackOptions& o, std::string* now_current) {
   return Status::Ok();
 }
 
-}  // namespace
+}  // namespace rollback_command
 
 int RollbackCommand(const RollbackOptions& options) {
   std::string now_current;
-  const Status st = Rollback(options, &now_current);
+  const Status st = rollback_command::Rollback(options, &now_current);
   if (!now_current.empty() && (st.ok() || st.code() == Status::Code::kIo)) {
     std::printf("%s\n", now_current.c_str());
   }

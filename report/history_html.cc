@@ -9,7 +9,7 @@
 #include "report/svg_chart.h"
 
 namespace chorus {
-namespace {
+namespace history_page {
 
 using nlohmann::json;
 
@@ -147,22 +147,22 @@ std::string RollbacksSection(const json& h) {
   return html + "</tbody></table></section>";
 }
 
-}  // namespace
+}  // namespace history_page
 
-std::string CheckDecision(const json& d) {
+std::string CheckDecision(const nlohmann::json& d) {
   if (!d.is_object()) return "expected a JSON object";
   for (const char* key : {"verdict", "time", "version", "task"}) {
     if (!d.contains(key) || !d[key].is_string()) return std::string("expected a string \"") + key + "\"";
   }
   if (!d.contains("reasons") || !d["reasons"].is_array()) return "expected a \"reasons\" array";
-  for (const json& r : d["reasons"]) {
+  for (const nlohmann::json& r : d["reasons"]) {
     if (!r.is_string()) return "expected \"reasons\" to hold strings";
   }
   if (!d.contains("guard") || !d["guard"].is_object() || !d["guard"].contains("rows") ||
       !d["guard"]["rows"].is_number_integer() || !d["guard"].contains("data_hash") || !d["guard"]["data_hash"].is_string()) {
     return "expected \"guard\" with integer \"rows\" and a string \"data_hash\"";
   }
-  const auto bundle_ok = [](const json& b) {
+  const auto bundle_ok = [](const nlohmann::json& b) {
     return b.is_object() && b.contains("metrics") && b["metrics"].is_object() && b["metrics"].contains("nll") &&
            b["metrics"]["nll"].is_number();
   };
@@ -176,9 +176,11 @@ std::string CheckDecision(const json& d) {
   return "";
 }
 
-std::string HistoryHtml(const json& history) {
-  return PageHead("chorus registry history: " + history["registry"].get<std::string>()) + Header(history) +
-         Caution() + ChartsSection(history) + DecisionsSection(history) + RollbacksSection(history) +
+std::string HistoryHtml(const nlohmann::json& history) {
+  namespace page = history_page;
+  return PageHead("chorus registry history: " + history["registry"].get<std::string>()) +
+         page::Header(history) + page::Caution() + page::ChartsSection(history) +
+         page::DecisionsSection(history) + page::RollbacksSection(history) +
          "<footer>Written by <code>chorus history</code> from the registry's decision files alone: one "
          "self-contained file, no scripts, nothing loaded from the network.</footer></main></body></html>\n";
 }

@@ -3,7 +3,7 @@
 #include "report/html_text.h"
 
 namespace chorus {
-namespace {
+namespace page_style {
 
 constexpr const char* kStyle =
     "body{font:15px/1.5 system-ui,-apple-system,'Segoe UI',Roboto,'DejaVu Sans',Arial,sans-serif;"
@@ -38,14 +38,14 @@ constexpr const char* kStyle =
     "h3{font-size:16px;margin:14px 0 6px}"
     "td.reasons{text-align:left;font-size:13px;color:#4d5358;padding-top:0}";
 
-}  // namespace
+}  // namespace page_style
 
 std::string PageHead(const std::string& title) {
   return "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
          "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; "
          "style-src 'unsafe-inline'\"><meta name=\"viewport\" content=\"width=device-width, "
          "initial-scale=1\"><title>" +
-         EscapeHtml(title) + "</title><style>" + kStyle + "</style></head><body><main>";
+         EscapeHtml(title) + "</title><style>" + page_style::kStyle + "</style></head><body><main>";
 }
 
 }  // namespace chorus

@@ -432,5 +432,38 @@ TEST_F(RunCommandTest, ShiftedTestSetIsScoredByEveryPredictive) {
   }
 }
 
+TEST_F(RunCommandTest, CoordinatorServesPrometheusMetricsWhileItsJobsRun) {
+  // A run on two local workers with cluster.metrics_listen, scraped once while it runs
+  // (tests/reference/scrape_running_coordinator.py, read by prometheus_client's parser).
+  const std::string config = WriteConfig(
+      "metrics", "train: {epochs: 30, batch_size: 32}\nensemble: {members: 3}\n"
+                 "cluster: {local_workers: 2, metrics_listen: \"127.0.0.1:0\"}\n");
+  const auto values = testing::ParseReferenceOutput(testing::RunReferenceScript(
+      "scrape_running_coordinator.py", {testing::BinaryPath("chorus"), config, dir_ + "/runs-metrics"}));
+  ASSERT_EQ(values.count("run_exit"), 1u);
+  EXPECT_EQ(values.at("run_exit")[0], 0.0);
+  double jobs = 0;
+  for (const char* state : {"queued", "leased", "finished", "failed"}) {
+    ASSERT_EQ(values.count(std::string("chorus_jobs_") + state), 1u) << state;
+    jobs += values.at(std::string("chorus_jobs_") + state)[0];
+  }
+  // The jobs of the stages added so far: with 1,200 rows validation folds are automatic, so 15
+  // fold jobs, 15 refits at the chosen epoch, then the 3 members.
+  EXPECT_TRUE(jobs == 15.0 || jobs == 30.0 || jobs == 33.0) << jobs;
+  EXPECT_EQ(values.at("chorus_jobs_failed")[0], 0.0);
+  EXPECT_EQ(values.count("chorus_workers_busy") + values.count("chorus_workers_idle"), 2u);
+  EXPECT_EQ(values.count("chorus_refused_calls_total"), 1u);
+  EXPECT_EQ(values.at("closed_after")[0], 1.0) << "the metrics port closes with the coordinator";
+  // The resolved config in the run directory keeps the key.
+  int runs = 0;
+  for (const auto& run : fs::directory_iterator(dir_ + "/runs-metrics")) {
+    if (!fs::exists(run.path() / "config.yaml")) continue;  // the workers' .cache
+    ++runs;
+    EXPECT_NE(testing::ReadTextFile((run.path() / "config.yaml").string()).find("metrics_listen: 127.0.0.1:0"),
+              std::string::npos);
+  }
+  EXPECT_EQ(runs, 1);
+}
+
 }  // namespace run_command_test
 }  // namespace chorus
