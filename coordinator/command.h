@@ -7,11 +7,18 @@
 #include <CLI/CLI.hpp>
 
 #include <functional>
+#include <string>
 
 namespace chorus {
 
 // Returns the process exit code (0 ok, 1 internal, 2 bad input, 3 refused).
 using CommandRunner = std::function<int()>;
+
+// Adds --log-format (text | json: one object per line with time, level, msg, fields; `more`
+// is appended to that help text) to `cmd`, and makes `run`, called once the format is set, the
+// runner when `cmd` is chosen.
+void SetRunnerWithLogFormat(CLI::App* cmd, CommandRunner* runner, CommandRunner run,
+                            const std::string& more = "");
 
 void RegisterRunCommand(CLI::App& app, CommandRunner* runner);
 void RegisterPredictCommand(CLI::App& app, CommandRunner* runner);

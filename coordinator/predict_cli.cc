@@ -1,7 +1,6 @@
 // `chorus predict`: command-line options for PredictCommand (coordinator/predict_command.h).
 #include <memory>
 
-#include "common/log_format.h"
 #include "coordinator/command.h"
 #include "coordinator/predict_command.h"
 
@@ -30,16 +29,7 @@ void RegisterPredictCommand(CLI::App& app, CommandRunner* runner) {
   cmd->add_option("--threads", options->threads,
                   "threads (default 0 = all cores); the output is the same for any count")
       ->check(CLI::Range(0, 4096));
-  auto log_format = std::make_shared<std::string>("text");
-  cmd->add_option("--log-format", *log_format, "log lines on stderr: text, or json (one object per line)")
-      ->check(CLI::IsMember({"text", "json"}))
-      ->capture_default_str();
-  cmd->callback([runner, options, log_format] {
-    *runner = [options, log_format] {
-      SetLogFormat(*log_format == "json" ? LogFormat::kJson : LogFormat::kText);
-      return PredictCommand(*options);
-    };
-  });
+  SetRunnerWithLogFormat(cmd, runner, [options] { return PredictCommand(*options); });
 }
 
 }  // namespace chorus

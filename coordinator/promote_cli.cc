@@ -3,7 +3,6 @@
 #include <memory>
 #include <string>
 
-#include "common/log_format.h"
 #include "coordinator/command.h"
 #include "coordinator/promote_command.h"
 
@@ -69,18 +68,7 @@ void RegisterPromoteCommand(CLI::App& app, CommandRunner* runner) {
   cmd->add_option("--threads", options->threads,
                   "scoring threads (default 0 = all cores); the result is the same for any count")
       ->check(CLI::Range(0, 4096));
-  auto log_format = std::make_shared<std::string>("text");
-  cmd->add_option("--log-format", *log_format,
-                  "log lines on stderr: text, or json (one object per line: time, level, msg, "
-                  "fields)")
-      ->check(CLI::IsMember({"text", "json"}))
-      ->capture_default_str();
-  cmd->callback([runner, options, log_format] {
-    *runner = [options, log_format] {
-      SetLogFormat(*log_format == "json" ? LogFormat::kJson : LogFormat::kText);
-      return PromoteCommand(*options);
-    };
-  });
+  SetRunnerWithLogFormat(cmd, runner, [options] { return PromoteCommand(*options); });
 }
 
 }  // namespace chorus

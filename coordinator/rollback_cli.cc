@@ -2,7 +2,6 @@
 #include <memory>
 #include <string>
 
-#include "common/log_format.h"
 #include "coordinator/command.h"
 #include "coordinator/rollback_command.h"
 
@@ -21,18 +20,7 @@ void RegisterRollbackCommand(CLI::App& app, CommandRunner* runner) {
   cmd->add_option("--registry", options->registry_dir, "registry directory (as given to chorus promote)")
       ->required();
   cmd->add_option("--to", options->to, "the version ID to make current (a directory name under versions/)");
-  auto log_format = std::make_shared<std::string>("text");
-  cmd->add_option("--log-format", *log_format,
-                  "log lines on stderr: text, or json (one object per line: time, level, msg, "
-                  "fields)")
-      ->check(CLI::IsMember({"text", "json"}))
-      ->capture_default_str();
-  cmd->callback([runner, options, log_format] {
-    *runner = [options, log_format] {
-      SetLogFormat(*log_format == "json" ? LogFormat::kJson : LogFormat::kText);
-      return RollbackCommand(*options);
-    };
-  });
+  SetRunnerWithLogFormat(cmd, runner, [options] { return RollbackCommand(*options); });
 }
 
 }  // namespace chorus

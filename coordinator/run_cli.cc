@@ -29,22 +29,16 @@ void RegisterRunCommand(CLI::App& app, CommandRunner* runner) {
       ->check(CLI::Range(0, 4096));
   cmd->add_flag("--no-memory-check", options->skip_memory_check,
                 "run even when the estimated memory need exceeds this machine's memory");
-  auto log_format = std::make_shared<std::string>("text");
-  cmd->add_option("--log-format", *log_format,
-                  "log lines on stderr: text, or json (one object per line: time, level, msg, "
-                  "fields; the embedded workers' worker.log too)")
-      ->check(CLI::IsMember({"text", "json"}))
-      ->capture_default_str();
-  cmd->callback([runner, options, log_format] {
-    *runner = [options, log_format] {
-      SetLogFormat(*log_format == "json" ? LogFormat::kJson : LogFormat::kText);
-      if (options->config_path.empty() == options->resume_dir.empty()) {
-        LogPrintf(stderr, LogLevel::kError, "chorus run: give either CONFIG or --resume RUN_DIR");
-        return 2;
-      }
-      return RunCommand(*options);
-    };
-  });
+  SetRunnerWithLogFormat(
+      cmd, runner,
+      [options] {
+        if (options->config_path.empty() == options->resume_dir.empty()) {
+          LogPrintf(stderr, LogLevel::kError, "chorus run: give either CONFIG or --resume RUN_DIR");
+          return 2;
+        }
+        return RunCommand(*options);
+      },
+      "; the embedded workers' worker.log too");
 }
 
 }  // namespace chorus
