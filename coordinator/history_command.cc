@@ -3,7 +3,6 @@
 #include <algorithm>
 #include <cstdio>
 #include <filesystem>
-#include <sstream>
 #include <string>
 #include <vector>
 
@@ -11,6 +10,7 @@
 
 #include "common/file_util.h"
 #include "common/log_format.h"
+#include "coordinator/registry.h"
 #include "report/history_html.h"
 
 namespace chorus {
@@ -20,15 +20,14 @@ namespace fs = std::filesystem;
 using nlohmann::json;
 
 // The decision files the registry keeps: versions/ID/decision.json and refused/*.json.
-std::vector<std::string> DecisionFiles(const std::string& dir) {
+StatusOr<std::vector<std::string>> DecisionFiles(const std::string& dir) {
+  CHORUS_ASSIGN_OR_RETURN(const std::vector<std::string> versions, Registry::VersionsIn(dir));
   std::vector<std::string> files;
-  std::error_code ec;
-  for (fs::directory_iterator it(dir + "/versions", ec), end; !ec && it != end; it.increment(ec)) {
-    const std::string name = it->path().filename().string();
-    if (!name.empty() && name[0] != '.' && fs::exists(it->path() / "decision.json")) {
-      files.push_back((it->path() / "decision.json").string());
-    }
+  for (const std::string& id : versions) {
+    const std::string path = dir + "/versions/" + id + "/decision.json";
+    if (fs::exists(path)) files.push_back(path);
   }
+  std::error_code ec;
   for (fs::directory_iterator it(dir + "/refused", ec), end; !ec && it != end; it.increment(ec)) {
     if (it->path().extension() == ".json") files.push_back(it->path().string());
   }
@@ -44,43 +43,16 @@ StatusOr<json> ReadDecision(const std::string& path) {
   return d;
 }
 
-StatusOr<json> ReadRollbacks(const std::string& dir) {
-  const std::string path = dir + "/rollbacks.jsonl";
-  json lines = json::array();
-  if (!fs::exists(path)) return lines;
-  CHORUS_ASSIGN_OR_RETURN(const std::string text, ReadFileToString(path));
-  std::istringstream in(text);
-  int number = 0;
-  for (std::string line; std::getline(in, line);) {
-    ++number;
-    json j = json::parse(line, nullptr, false);
-    const bool ok = !j.is_discarded() && j.is_object();
-    if (!ok || !j.contains("time") || !j["time"].is_string() || !j.contains("from") || !j["from"].is_string() ||
-        !j.contains("to") || !j["to"].is_string()) {
-      return Status::InvalidInput(path + ":" + std::to_string(number) +
-                                  ": expected {\"time\", \"from\", \"to\"} as chorus rollback writes");
-    }
-    lines.push_back(std::move(j));
-  }
-  return lines;
-}
-
-// The current version's ID from DIR/current, or null.
-json CurrentId(const std::string& dir) {
-  std::error_code ec;
-  const std::string target = fs::read_symlink(dir + "/current", ec).string();
-  if (ec || target.rfind("versions/", 0) != 0) return nullptr;
-  return target.substr(9);
-}
-
 Status WriteHistory(const HistoryOptions& o, std::string* written) {
   if (!fs::is_directory(o.registry_dir + "/versions")) {
     return Status::InvalidInput(o.registry_dir + ": not a registry (no versions/ directory)");
   }
-  json history = {{"registry", o.registry_dir}, {"current", CurrentId(o.registry_dir)}, {"task", "classification"},
-                  {"decisions", json::array()}};
+  CHORUS_ASSIGN_OR_RETURN(const std::optional<std::string> current, Registry::CurrentIn(o.registry_dir));
+  json history = {{"registry", o.registry_dir}, {"current", current ? json(*current) : json()},
+                  {"task", "classification"}, {"decisions", json::array()}, {"rollbacks", json::array()}};
   std::string task_from;
-  for (const std::string& path : DecisionFiles(o.registry_dir)) {
+  CHORUS_ASSIGN_OR_RETURN(const std::vector<std::string> files, DecisionFiles(o.registry_dir));
+  for (const std::string& path : files) {
     CHORUS_ASSIGN_OR_RETURN(json d, ReadDecision(path));
     if (!task_from.empty() && d["task"] != history["task"]) {
       return Status::InvalidInput(path + ": a " + d["task"].get<std::string>() + " decision in a registry whose " +
@@ -93,7 +65,10 @@ Status WriteHistory(const HistoryOptions& o, std::string* written) {
     return std::make_pair(a["time"].get<std::string>(), a["version"].get<std::string>()) <
            std::make_pair(b["time"].get<std::string>(), b["version"].get<std::string>());
   });
-  CHORUS_ASSIGN_OR_RETURN(history["rollbacks"], ReadRollbacks(o.registry_dir));
+  CHORUS_ASSIGN_OR_RETURN(const std::vector<Registry::Rollback> rollbacks, Registry::RollbacksIn(o.registry_dir));
+  for (const Registry::Rollback& r : rollbacks) {
+    history["rollbacks"].push_back({{"time", r.time}, {"from", r.from}, {"to", r.to}});
+  }
   *written = o.out.empty() ? o.registry_dir + "/history.html" : o.out;
   CHORUS_RETURN_IF_ERROR(WriteFileAtomic(*written, HistoryHtml(history)));
   LogLine(stderr, LogLevel::kInfo,

@@ -13,8 +13,12 @@
 #include <cstring>
 #include <ctime>
 #include <filesystem>
+#include <sstream>
+
+#include <nlohmann/json.hpp>
 
 #include "common/file_util.h"
+#include "common/log_format.h"
 #include "proto/bundle_codec.h"
 
 namespace chorus {
@@ -108,8 +112,8 @@ StatusOr<std::unique_ptr<Registry>> Registry::Open(const std::string& dir,
 
 Registry::~Registry() { ::close(lock_fd_); }
 
-StatusOr<std::optional<std::string>> Registry::Current() const {
-  const std::string link = dir_ + "/current";
+StatusOr<std::optional<std::string>> Registry::CurrentIn(const std::string& dir) {
+  const std::string link = dir + "/current";
   struct stat st;
   if (::lstat(link.c_str(), &st) != 0) {
     if (errno == ENOENT) return std::optional<std::string>();
@@ -121,7 +125,7 @@ StatusOr<std::optional<std::string>> Registry::Current() const {
   if (ec || !ValidId(id)) {
     return Status::InvalidInput(link + ": not a symlink to versions/ID (found \"" + target + "\")");
   }
-  if (!Exists(BundlePath(id))) {
+  if (!Exists(dir + "/versions/" + id + "/bundle.chorus")) {
     return Status::InvalidInput(link + ": points at " + target + ", which has no bundle.chorus");
   }
   return std::optional<std::string>(id);
@@ -194,12 +198,38 @@ Status Registry::RecordRefusal(const std::string& id, const std::string& decisio
   return WriteFileAtomic(dir_ + "/refused/" + id + ".json", decision_json);
 }
 
-StatusOr<std::vector<std::string>> Registry::Versions() const {
-  CHORUS_ASSIGN_OR_RETURN(std::vector<std::string> versions, ListNames(dir_ + "/versions"));
+StatusOr<std::vector<std::string>> Registry::VersionsIn(const std::string& dir) {
+  CHORUS_ASSIGN_OR_RETURN(std::vector<std::string> versions, ListNames(dir + "/versions"));
   versions.erase(std::remove_if(versions.begin(), versions.end(),
                                 [](const std::string& id) { return !ValidId(id); }),
                  versions.end());
   return versions;
+}
+
+Status Registry::RecordRollback(const std::string& from, const std::string& to,
+                                std::chrono::system_clock::time_point now) {
+  const nlohmann::json line = {{"time", Rfc3339(now)}, {"from", from}, {"to", to}};
+  return AppendLine(dir_ + "/rollbacks.jsonl", line.dump());
+}
+
+StatusOr<std::vector<Registry::Rollback>> Registry::RollbacksIn(const std::string& dir) {
+  const std::string path = dir + "/rollbacks.jsonl";
+  std::vector<Rollback> records;
+  if (!Exists(path)) return records;
+  CHORUS_ASSIGN_OR_RETURN(const std::string text, ReadFileToString(path));
+  std::istringstream lines(text);
+  int number = 0;
+  for (std::string line; std::getline(lines, line);) {
+    ++number;
+    const nlohmann::json j = nlohmann::json::parse(line, nullptr, false);
+    const auto text_field = [&](const char* key) { return j.is_object() && j.contains(key) && j[key].is_string(); };
+    if (!text_field("time") || !text_field("from") || !text_field("to")) {
+      return Status::InvalidInput(path + ":" + std::to_string(number) +
+                                  ": expected {\"time\", \"from\", \"to\"} as chorus rollback writes");
+    }
+    records.push_back({j["time"].get<std::string>(), j["from"].get<std::string>(), j["to"].get<std::string>()});
+  }
+  return records;
 }
 
 StatusOr<std::vector<std::string>> Registry::Prune(int keep) {

@@ -48,10 +48,25 @@ class Registry {
 
   // The version `current` points at, or nullopt if there is no `current` yet. Errors
   // (kInvalidInput): `current` is not a symlink to versions/ID, or that version has no bundle.
-  StatusOr<std::optional<std::string>> Current() const;
+  StatusOr<std::optional<std::string>> Current() const { return CurrentIn(dir_); }
+  // The same for registry directory `dir`, without the lock (for readers).
+  static StatusOr<std::optional<std::string>> CurrentIn(const std::string& dir);
 
   // The IDs under versions/, oldest first (IDs sort by promotion time). Errors: kIo.
-  StatusOr<std::vector<std::string>> Versions() const;
+  StatusOr<std::vector<std::string>> Versions() const { return VersionsIn(dir_); }
+  static StatusOr<std::vector<std::string>> VersionsIn(const std::string& dir);
+
+  // One line of DIR/rollbacks.jsonl.
+  struct Rollback {
+    std::string time;  // UTC, RFC 3339 with milliseconds
+    std::string from, to;
+  };
+  // Appends {"time", "from", "to"} for a switch of `current` made by chorus rollback. Errors: kIo.
+  Status RecordRollback(const std::string& from, const std::string& to,
+                        std::chrono::system_clock::time_point now);
+  // Every recorded rollback of registry directory `dir`, oldest first (none without the file).
+  // Errors: kIo; kInvalidInput naming FILE:LINE for a line chorus rollback did not write.
+  static StatusOr<std::vector<Rollback>> RollbacksIn(const std::string& dir);
 
   // A fresh ID for a bundle with this payload SHA-256, promoted at `now`.
   std::string NewId(const std::string& payload_sha256,

@@ -7,10 +7,7 @@
 #include <memory>
 #include <optional>
 #include <set>
-#include <sstream>
 #include <vector>
-
-#include <nlohmann/json.hpp>
 
 #include "common/file_util.h"
 #include "common/log_format.h"
@@ -29,26 +26,6 @@ std::string RecentIds(const std::vector<std::string>& versions) {
   return text.empty() ? "(none)" : text;
 }
 
-// The versions earlier rollbacks moved away from ("from" of each line of DIR/rollbacks.jsonl).
-StatusOr<std::set<std::string>> RolledBackFrom(const std::string& dir) {
-  const std::string path = dir + "/rollbacks.jsonl";
-  std::set<std::string> from;
-  if (!std::filesystem::exists(path)) return from;
-  CHORUS_ASSIGN_OR_RETURN(const std::string text, ReadFileToString(path));
-  std::istringstream lines(text);
-  int number = 0;
-  for (std::string line; std::getline(lines, line);) {
-    ++number;
-    const nlohmann::json j = nlohmann::json::parse(line, nullptr, false);
-    if (j.is_discarded() || !j.is_object() || !j.contains("from") || !j["from"].is_string()) {
-      return Status::InvalidInput(path + ":" + std::to_string(number) +
-                                  ": expected a JSON object with a \"from\" version, as chorus rollback writes");
-    }
-    from.insert(j["from"].get<std::string>());
-  }
-  return from;
-}
-
 // The version to switch to: `to` if it is kept; else the newest version older than `current`
 // that no rollback has moved away from (so a version once rolled back is not returned to by
 // accident when a later promotion is rolled back).
@@ -61,7 +38,9 @@ StatusOr<std::string> Target(const Registry& registry, const std::string& curren
     }
     return to;
   }
-  CHORUS_ASSIGN_OR_RETURN(const std::set<std::string> left, RolledBackFrom(registry.dir()));
+  CHORUS_ASSIGN_OR_RETURN(const std::vector<Registry::Rollback> rollbacks, Registry::RollbacksIn(registry.dir()));
+  std::set<std::string> left;  // versions earlier rollbacks moved away from
+  for (const Registry::Rollback& r : rollbacks) left.insert(r.from);
   for (auto at = std::lower_bound(versions.begin(), versions.end(), current); at != versions.begin();) {
     --at;
     if (left.count(*at) == 0) return *at;
@@ -98,9 +77,7 @@ Status Rollback(const RollbackOptions& o, std::string* now_current) {
   CHORUS_RETURN_IF_ERROR(registry->SwitchCurrent(target));
   LogLine(stderr, LogLevel::kInfo, "rolled back: current -> versions/" + target + " (was " + *current + ")",
           {{"current", target}, {"previous", *current}});
-  const std::string line = "{\"time\": " + JsonString(Rfc3339(std::chrono::system_clock::now())) +
-                           ", \"from\": " + JsonString(*current) + ", \"to\": " + JsonString(target) + "}";
-  const Status recorded = AppendLine(o.registry_dir + "/rollbacks.jsonl", line);
+  const Status recorded = registry->RecordRollback(*current, target, std::chrono::system_clock::now());
   if (!recorded.ok()) {
     return recorded.WithContext("current now is versions/" + target + ", but the rollback was not recorded");
   }

@@ -106,7 +106,7 @@ TEST_F(RollbackTest, AVersionRolledBackFromIsSkippedLater) {
   testing::WriteTextFile(dir_ + "/rollbacks.jsonl", testing::ReadTextFile(dir_ + "/rollbacks.jsonl") + "oops\n");
   const testing::CommandResult bad = Rollback();
   EXPECT_EQ(bad.exit_code, 2) << bad.output;
-  EXPECT_NE(bad.output.find("rollbacks.jsonl:3: expected a JSON object"), std::string::npos) << bad.output;
+  EXPECT_NE(bad.output.find("rollbacks.jsonl:3: expected {\"time\", \"from\", \"to\"}"), std::string::npos) << bad.output;
   EXPECT_EQ(Current(), "versions/" + ids_[1]);
 }
 

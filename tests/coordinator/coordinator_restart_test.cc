@@ -49,6 +49,14 @@ class Coordinator {
   RunDirectory& dir() { return dir_; }
   const JobTable& table() const { return table_; }
 
+  // Whether a registered worker has asked for a job (so it holds the id it was given).
+  bool AWorkerHasAskedForWork() const {
+    for (const auto& [id, w] : service_.Workers()) {
+      if (w.last_refused != Clock::time_point{}) return true;
+    }
+    return false;
+  }
+
   // Events of `kind` so far (0 before the first event).
   int CountEvents(const std::string& kind) const {
     const std::string path = dir_.File("events.jsonl");
@@ -80,8 +88,11 @@ TEST(CoordinatorRestartTest, AWorkerWhoseIdTheNewCoordinatorDoesNotKnowRegisters
       {testing::BinaryPath("chorus-worker"), "--coordinator", "127.0.0.1:" + std::to_string(port),
        "--token-file", root + "/token", "--cache-dir", "", "--exit-when-done", "--max-backoff", "0.2"},
       root + "/worker.log");
-  // Registered, and polling for work (the first coordinator has none yet).
-  ASSERT_TRUE(testing::WaitFor([&] { return first->CountEvents("worker_registered") == 1; }, 30))
+  // Registered, and polling for work (the first coordinator has none yet). The registration
+  // event alone is not enough: the coordinator logs it before its reply reaches the worker, and a
+  // coordinator gone before the reply arrives leaves a worker that never had an id to lose.
+  ASSERT_TRUE(testing::WaitFor(
+      [&] { return first->CountEvents("worker_registered") == 1 && first->AWorkerHasAskedForWork(); }, 30))
       << testing::ReadTextFile(root + "/worker.log");
   first.reset();
   Coordinator second(root, "second", data, {testing::SmallMemberSpec(0, 3, 1, 32)}, port);
