@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # The nightly refresh: train a fresh ensemble with `chorus run`, then hand its bundle to
-# `chorus promote`, which makes it the registry's current bundle only if the gate passes.
+# `chorus promote`, which makes it the registry's current bundle only if the gate passes, and
+# redraw the registry's history page with `chorus history`.
 # deploy/systemd/chorus-nightly.service runs it (installed as /usr/local/bin/chorus-nightly);
 # it works the same from cron or by hand. Environment [default]:
 #   CHORUS_CONFIG      the run's config [/etc/chorus/nightly.yaml]
@@ -53,6 +54,13 @@ case "$rc" in
   3) log warning "the gate refused $run_dir; the current bundle stays" ;;
   *) log error "chorus promote failed with exit status $rc" ;;
 esac
+
+# The registry's history page (DIR/history.html): every kept decision and rollback over time.
+# It does not change the night's exit status.
+if [ "$rc" -eq 0 ] || [ "$rc" -eq 3 ]; then
+  "$bin/chorus" history --registry "$registry" --log-format "$log_format" > /dev/null ||
+    log warning "chorus history failed; the registry is unchanged"
+fi
 
 # Older nights' run directories (names sort by time); the registry keeps its own versions.
 find "$runs" -mindepth 1 -maxdepth 1 -type d -name '[0-9]*Z' | sort | head -n "-$keep" |

@@ -96,6 +96,10 @@ TEST_F(NightlyTest, PromotesKeepsRefusesAndPrunes) {
   // CHORUS_KEEP_RUNS=2: the first night's run directory is gone.
   EXPECT_EQ(Nights().size(), 2u);
   EXPECT_NE(testing::ReadTextFile(dir_ + "/log").find("the gate refused"), std::string::npos);
+  // Each night redrew the registry's history: the promotion and the refusal (the second night's
+  // bundle was already current, so it made no decision).
+  EXPECT_NE(testing::ReadTextFile(dir_ + "/registry/history.html").find("2 decisions (1 promoted, 1 refused)"),
+            std::string::npos);
 }
 
 }  // namespace nightly_test
