@@ -44,9 +44,7 @@ StatusOr<json> ReadDecision(const std::string& path) {
 }
 
 Status WriteHistory(const HistoryOptions& o, std::string* written) {
-  if (!fs::is_directory(o.registry_dir + "/versions")) {
-    return Status::InvalidInput(o.registry_dir + ": not a registry (no versions/ directory)");
-  }
+  CHORUS_RETURN_IF_ERROR(Registry::CheckIsRegistry(o.registry_dir));
   CHORUS_ASSIGN_OR_RETURN(const std::optional<std::string> current, Registry::CurrentIn(o.registry_dir));
   json history = {{"registry", o.registry_dir}, {"current", current ? json(*current) : json()},
                   {"task", "classification"}, {"decisions", json::array()}, {"rollbacks", json::array()}};

@@ -112,6 +112,11 @@ StatusOr<std::unique_ptr<Registry>> Registry::Open(const std::string& dir,
 
 Registry::~Registry() { ::close(lock_fd_); }
 
+Status Registry::CheckIsRegistry(const std::string& dir) {
+  if (fs::is_directory(dir + "/versions")) return Status::Ok();
+  return Status::InvalidInput(dir + ": not a registry (no versions/ directory)");
+}
+
 StatusOr<std::optional<std::string>> Registry::CurrentIn(const std::string& dir) {
   const std::string link = dir + "/current";
   struct stat st;

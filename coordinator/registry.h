@@ -46,6 +46,10 @@ class Registry {
   std::string VersionDir(const std::string& id) const { return dir_ + "/versions/" + id; }
   std::string BundlePath(const std::string& id) const { return VersionDir(id) + "/bundle.chorus"; }
 
+  // For readers and commands that must not create one: kInvalidInput "DIR: not a registry" unless
+  // DIR/versions exists.
+  static Status CheckIsRegistry(const std::string& dir);
+
   // The version `current` points at, or nullopt if there is no `current` yet. Errors
   // (kInvalidInput): `current` is not a symlink to versions/ID, or that version has no bundle.
   StatusOr<std::optional<std::string>> Current() const { return CurrentIn(dir_); }

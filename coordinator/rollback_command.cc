@@ -3,13 +3,11 @@
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
-#include <filesystem>
 #include <memory>
 #include <optional>
 #include <set>
 #include <vector>
 
-#include "common/file_util.h"
 #include "common/log_format.h"
 #include "coordinator/registry.h"
 #include "proto/bundle_codec.h"
@@ -51,9 +49,7 @@ StatusOr<std::string> Target(const Registry& registry, const std::string& curren
 }
 
 Status Rollback(const RollbackOptions& o, std::string* now_current) {
-  if (!std::filesystem::is_directory(o.registry_dir + "/versions")) {
-    return Status::InvalidInput(o.registry_dir + ": not a registry (no versions/ directory)");
-  }
+  CHORUS_RETURN_IF_ERROR(Registry::CheckIsRegistry(o.registry_dir));
   const auto on_wait = [] {
     LogLine(stderr, LogLevel::kInfo, "waiting for another promote or rollback to release the registry");
   };
