@@ -242,7 +242,13 @@ int64_t BundleInputs(const Bundle& b) { return b.conv.empty() ? b.widths[0] : b.
 Status CheckBundle(const Bundle& bundle, const std::string& source) {
   CHORUS_RETURN_IF_ERROR(CheckArchitecture(bundle, source));
   CHORUS_RETURN_IF_ERROR(CheckPreprocessing(bundle, source));
-  return CheckEnsemble(bundle, source);
+  CHORUS_RETURN_IF_ERROR(CheckEnsemble(bundle, source));
+  const TrainingSummary& summary = bundle.training_summary;
+  const bool present = !summary.empty() || !summary.columns.empty() ||
+                       !summary.class_shares.empty() || !summary.target.empty();
+  if (!present) return Status::Ok();
+  return CheckTrainingSummary(summary, bundle.preprocessing.plan, bundle.task,
+                              bundle.class_names.size(), source);
 }
 
 }  // namespace chorus

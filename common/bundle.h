@@ -14,6 +14,7 @@
 #include "common/config.h"
 #include "common/feature_encoder.h"
 #include "common/status.h"
+#include "common/training_summary.h"
 
 namespace chorus {
 
@@ -72,6 +73,9 @@ struct Bundle {
   std::string config_hash;  // SHA-256 hex of the resolved config
   // The run's ensemble test scores: accuracy, nll, brier, ece; or rmse, nll, coverage_90.
   std::vector<std::pair<std::string, double>> test_metrics;
+  // The training data's summary (common/training_summary.h); empty in bundles written before
+  // chorus kept one, which then skip the shift checks.
+  TrainingSummary training_summary;
 };
 
 // Parameters of a network with these widths, or -1 if a width or the total is out of bounds.

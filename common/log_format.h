@@ -14,6 +14,7 @@
 #include <initializer_list>
 #include <string>
 #include <string_view>
+#include <utility>
 #include <type_traits>
 
 namespace chorus {
@@ -35,6 +36,14 @@ class LogField {
       : LogField(key, std::string_view(value)) {}
   template <typename T, typename = std::enable_if_t<std::is_arithmetic_v<T>>>
   LogField(std::string_view key, T value) : key_(key), json_(NumberJson(value)) {}
+
+  // A value the caller has already encoded as JSON (an object or array); it must be valid JSON
+  // on one line.
+  static LogField Encoded(std::string_view key, std::string json_value) {
+    LogField f(key, 0);
+    f.json_ = std::move(json_value);
+    return f;
+  }
 
   const std::string& key() const { return key_; }
   const std::string& json() const { return json_; }  // the value, encoded as JSON

@@ -44,7 +44,7 @@ std::vector<std::pair<std::string, double>> TestMetrics(const EnsembleEvaluation
 
 Bundle MakeRunBundle(const Config& config, const PreparedData& data,
                      const std::vector<MemberResult>& members, const EnsembleEvaluation& ev,
-                     const std::string& config_hash) {
+                     const std::string& config_hash, const TrainingSummary& summary) {
   Bundle b;
   b.task = data.task;
   b.class_names = data.class_names;
@@ -62,13 +62,14 @@ Bundle MakeRunBundle(const Config& config, const PreparedData& data,
   b.data_hash = data.hash;
   b.config_hash = config_hash;
   b.test_metrics = TestMetrics(ev);
+  b.training_summary = summary;
   return b;
 }
 
 Status WriteRunBundle(const std::string& path, const Config& config, const PreparedData& data,
                       const std::vector<MemberResult>& members, const EnsembleEvaluation& ev,
-                      const std::string& config_hash) {
-  return WriteBundleFile(path, MakeRunBundle(config, data, members, ev, config_hash));
+                      const std::string& config_hash, const TrainingSummary& summary) {
+  return WriteBundleFile(path, MakeRunBundle(config, data, members, ev, config_hash, summary));
 }
 
 }  // namespace chorus

@@ -12,6 +12,7 @@
 #include "common/member_training.h"
 #include "common/prepared_data.h"
 #include "common/status.h"
+#include "common/training_summary.h"
 
 namespace chorus {
 
@@ -19,14 +20,15 @@ namespace chorus {
 Preprocessing RunPreprocessing(const DataConfig& config, const PreparedData& data);
 
 // Requires: `members` are the members `ev` was assembled from, in the same order (ev.weights has
-// one entry per member), trained on `data` with `config`.
+// one entry per member), trained on `data` with `config`; `summary` is
+// SummarizeTraining(data, ...) (common/training_summary.h).
 Bundle MakeRunBundle(const Config& config, const PreparedData& data,
                      const std::vector<MemberResult>& members, const EnsembleEvaluation& ev,
-                     const std::string& config_hash);
+                     const std::string& config_hash, const TrainingSummary& summary);
 
 // MakeRunBundle, written atomically to `path` (WriteBundleFile). Errors: kIo naming the path.
 Status WriteRunBundle(const std::string& path, const Config& config, const PreparedData& data,
                       const std::vector<MemberResult>& members, const EnsembleEvaluation& ev,
-                      const std::string& config_hash);
+                      const std::string& config_hash, const TrainingSummary& summary);
 
 }  // namespace chorus

@@ -84,6 +84,8 @@ nlohmann::json GateLimitsJson(Task task, const GateLimits& limits) {
     j["max_rmse_increase"] = limits.max_rmse_increase;
   }
   j["refuse_if_baseline_better"] = limits.refuse_if_baseline_better;
+  j["max_psi"] = limits.max_psi;
+  j["max_ks"] = limits.max_ks;
   return j;
 }
 

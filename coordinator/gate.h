@@ -47,6 +47,12 @@ struct GateLimits {
   // Refuse a candidate whose run found its linear baseline better on validation (report.json
   // baseline.better_on_validation), or whose report has no such verdict.
   bool refuse_if_baseline_better = false;
+  // Training-data shift against the current bundle's (coordinator/shift_gate.h): the most any
+  // input column's, or the labels', population stability index may reach (0.25: "significant
+  // shift" in common practice), and any numeric column's or the regression target's
+  // Kolmogorov-Smirnov statistic (1, the statistic's maximum: no limit).
+  double max_psi = 0.25;
+  double max_ks = 1.0;
 };
 
 // One limit applied: passed when `worsening` <= `allowed` (finite values; see above otherwise).

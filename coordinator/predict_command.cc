@@ -5,15 +5,21 @@
 
 #include <chrono>
 #include <cstdio>
+#include <algorithm>
 #include <memory>
+#include <optional>
+#include <string>
 #include <thread>
 #include <utility>
 #include <vector>
+
+#include <nlohmann/json.hpp>
 
 #include "common/atomic_file.h"
 #include "common/log_format.h"
 #include "common/prediction_input.h"
 #include "common/predictor.h"
+#include "common/training_ranges.h"
 #include "coordinator/prediction_csv.h"
 #include "execution/tbb_parallel_for.h"
 #include "proto/bundle_codec.h"
@@ -22,12 +28,15 @@ namespace chorus {
 namespace {
 
 constexpr int64_t kBadRowsShown = 20;
+constexpr size_t kOutsideRowsShown = 5;     // row ids named per batch
+constexpr size_t kOutsideColumnsShown = 5;  // columns named per batch
 
 // What prediction needs from a bundle; the bundle itself (basin fits) is released after loading.
 struct Model {
   Predictor predictor;
   Preprocessing preprocessing;
   std::vector<std::string> class_names;
+  std::optional<TrainingRanges> ranges;  // none for a bundle without a training summary
 };
 
 StatusOr<Model> LoadModel(const std::string& path, tbb::task_arena& arena) {
@@ -36,7 +45,10 @@ StatusOr<Model> LoadModel(const std::string& path, tbb::task_arena& arena) {
   StatusOr<Predictor> created = Status::Internal("not created");
   arena.execute([&] { created = Predictor::Create(file.bundle, &parallel); });
   CHORUS_ASSIGN_OR_RETURN(Predictor predictor, std::move(created));
-  return Model{std::move(predictor), file.bundle.preprocessing, file.bundle.class_names};
+  std::optional<TrainingRanges> ranges;
+  if (!file.bundle.training_summary.empty()) ranges = TrainingRanges::For(file.bundle);
+  return Model{std::move(predictor), file.bundle.preprocessing, file.bundle.class_names,
+               std::move(ranges)};
 }
 
 StatusOr<InputFormat> ParseFormat(const std::string& name) {
@@ -64,6 +76,63 @@ class BadRows {
 
  private:
   bool skip_;
+  int64_t count_ = 0;
+};
+
+// Compares every batch with the training ranges: a warning per batch with rows outside them
+// (row ids and the columns at fault), or with `refuse`, an error that stops the command.
+class OutsideRows {
+ public:
+  OutsideRows(const TrainingRanges* ranges, std::string input, const char* id_name, bool refuse)
+      : ranges_(ranges), input_(std::move(input)), id_name_(id_name), refuse_(refuse) {}
+
+  Status Check(const InputBatch& batch) {
+    if (ranges_ == nullptr || batch.ids.empty()) return Status::Ok();
+    const RangeFindings f = ranges_->Check(batch.x, kOutsideRowsShown);
+    if (f.rows == 0) return Status::Ok();
+    count_ += f.rows;
+    std::string ids;
+    for (int64_t row : f.first_rows) {
+      ids += (ids.empty() ? "" : ", ") + std::to_string(batch.ids[static_cast<size_t>(row)]);
+    }
+    if (static_cast<size_t>(f.rows) > f.first_rows.size()) ids += ", ...";
+    std::vector<size_t> order(f.column_rows.size());
+    for (size_t k = 0; k < order.size(); ++k) order[k] = k;
+    std::stable_sort(order.begin(), order.end(),
+                     [&](size_t a, size_t b) { return f.column_rows[a] > f.column_rows[b]; });
+    std::string columns;
+    nlohmann::json at_fault = nlohmann::json::object();
+    for (size_t i = 0; i < order.size() && f.column_rows[order[i]] > 0; ++i) {
+      const size_t k = order[i];
+      if (i < kOutsideColumnsShown) {
+        columns += (columns.empty() ? "" : ", ") + ranges_->Describe(k) + ": " +
+                   std::to_string(f.column_rows[k]) + " rows";
+      }
+      at_fault[ranges_->ColumnName(k)] = f.column_rows[k];
+    }
+    const std::string text =
+        input_ + " " + (std::string(id_name_) == "line" ? "lines " : "indices ") +
+        std::to_string(batch.ids.front()) + "-" +
+        std::to_string(batch.ids.back()) + ": " + std::to_string(f.rows) + " of " +
+        std::to_string(batch.ids.size()) + " rows far outside the training data (" + id_name_ +
+        " " + ids + "); columns at fault: " + columns;
+    if (refuse_) {
+      return Status::InvalidInput(text + " (--refuse-out-of-range: nothing written)");
+    }
+    LogLine(stderr, LogLevel::kWarning, text,
+            {{"out_of_range_rows", f.rows}, {"batch_rows", batch.ids.size()},
+             {"first_" + std::string(id_name_), batch.ids.front()},
+             {"last_" + std::string(id_name_), batch.ids.back()},
+             LogField::Encoded("columns", at_fault.dump())});
+    return Status::Ok();
+  }
+  int64_t count() const { return count_; }
+
+ private:
+  const TrainingRanges* ranges_;
+  std::string input_;
+  const char* id_name_;
+  bool refuse_;
   int64_t count_ = 0;
 };
 
@@ -119,6 +188,18 @@ Status Predict(const PredictOptions& o, int threads) {
   const auto loaded = std::chrono::steady_clock::now();
   CHORUS_ASSIGN_OR_RETURN(std::unique_ptr<InputReader> input,
                           InputReader::Open(o.input_path, format, model.preprocessing));
+  if (!model.ranges.has_value()) {
+    if (o.refuse_out_of_range) {
+      return Status::InvalidInput(o.bundle_path +
+                                  ": --refuse-out-of-range: the bundle has no training summary "
+                                  "(written by an older chorus) to check the inputs against");
+    }
+    LogLine(stderr, LogLevel::kWarning,
+            o.bundle_path + ": no training summary (written by an older chorus): inputs are not "
+                            "checked against the training ranges");
+  }
+  OutsideRows outside(model.ranges ? &*model.ranges : nullptr, o.input_path, input->IdName(),
+                      o.refuse_out_of_range);
   CHORUS_ASSIGN_OR_RETURN(std::unique_ptr<AtomicFile> out, AtomicFile::Create(o.output_path));
   const PredictionCsv csv(model.predictor.task(), model.class_names, input->IdName());
   CHORUS_RETURN_IF_ERROR(out->Append(csv.Header()));
@@ -130,6 +211,7 @@ Status Predict(const PredictOptions& o, int threads) {
   while (true) {
     CHORUS_ASSIGN_OR_RETURN(const int64_t filled, ReadBatches(*input, bad, batches));
     if (filled == 0) break;
+    for (int64_t b = 0; b < filled; ++b) CHORUS_RETURN_IF_ERROR(outside.Check(batches[b].input));
     PredictBatches(model.predictor, filled, batches, workspaces, arena);
     for (int64_t b = 0; b < filled; ++b) {
       CHORUS_RETURN_IF_ERROR(out->Append(csv.Rows(batches[b].input.ids, batches[b].prediction)));
@@ -145,11 +227,13 @@ Status Predict(const PredictOptions& o, int threads) {
   char timing[96];
   std::snprintf(timing, sizeof timing, " (%.2f s loading, %.2f s predicting)", load_seconds,
                 predict_seconds);
-  LogLine(stderr, LogLevel::kInfo,
+  LogLine(stderr, outside.count() > 0 ? LogLevel::kWarning : LogLevel::kInfo,
           std::to_string(rows) + " rows predicted, " + std::to_string(bad.count()) +
-              " invalid rows skipped: " + o.output_path + timing,
-          {{"rows", rows}, {"skipped", bad.count()}, {"output", o.output_path},
-           {"load_seconds", load_seconds}, {"predict_seconds", predict_seconds}});
+              " invalid rows skipped, " + std::to_string(outside.count()) +
+              " rows far outside the training data: " + o.output_path + timing,
+          {{"rows", rows}, {"out_of_range_rows", outside.count()}, {"skipped", bad.count()},
+           {"output", o.output_path}, {"load_seconds", load_seconds},
+           {"predict_seconds", predict_seconds}});
   return Status::Ok();
 }
 

@@ -14,12 +14,17 @@ struct PredictOptions {
   std::string output_path;
   std::string format = "auto";  // auto | csv | idx
   bool skip_bad_rows = false;   // report invalid rows and go on, instead of stopping
+  // Rows far outside the training data (common/training_ranges.h) are always counted and
+  // reported; with this, any such row stops the command instead (exit 2, nothing written).
+  bool refuse_out_of_range = false;
   int threads = 0;              // 0 = all cores; speed only, the output is the same
 };
 
 // Returns the exit code: 0 success; 2 bad input (corrupt bundle, unreadable input, a missing
-// column, an invalid row without skip_bad_rows); 1 internal failure. OUTPUT appears only on
-// success (temp file + rename). Invalid rows and a summary go to stderr.
+// column, an invalid row without skip_bad_rows, a row far outside the training data with
+// refuse_out_of_range); 1 internal failure. OUTPUT appears only on success (temp file +
+// rename). Invalid rows, each batch's rows outside the training ranges and a summary go to
+// stderr (common/log_format.h).
 int PredictCommand(const PredictOptions& options);
 
 }  // namespace chorus

@@ -37,6 +37,18 @@ void AddLimitOptions(CLI::App* cmd, GateLimits* limits) {
   cmd->add_flag("--refuse-if-baseline-better", limits->refuse_if_baseline_better,
                 "refuse the candidate when its run's linear baseline had the lower validation NLL "
                 "(report.json baseline.better_on_validation), or when its report has no baseline");
+  cmd->add_option("--max-psi", limits->max_psi,
+                  WithDefault("most any input column's, or the labels', population stability "
+                              "index may reach against the current bundle's training data "
+                              "(0.1 / 0.25: some / significant shift, common practice)",
+                              d.max_psi))
+      ->check(CLI::NonNegativeNumber);
+  cmd->add_option("--max-ks", limits->max_ks,
+                  WithDefault("most any numeric column's, or the regression target's, "
+                              "Kolmogorov-Smirnov statistic may reach against the current "
+                              "bundle's training data; 1 = no limit",
+                              d.max_ks))
+      ->check(CLI::Range(0.0, 1.0));
 }
 
 }  // namespace
@@ -48,7 +60,9 @@ void RegisterPromoteCommand(CLI::App& app, CommandRunner* runner) {
       "Score RUN_DIR's bundle and the registry's current bundle on the same guard data (the\n"
       "run's test split, or --guard), and make the run's bundle current only if it is no\n"
       "worse than the limits allow: classification NLL, accuracy, ECE; regression NLL, RMSE\n"
-      "(coverage_90 is reported). The decision is written as JSON into the registry. The first\n"
+      "(coverage_90 is reported); and only if its training data has not shifted from the\n"
+      "current bundle's past --max-psi / --max-ks (both bundles carry a summary of it).\n"
+      "The decision is written as JSON into the registry. The first\n"
       "bundle into an empty registry passes (\"no current bundle\"). Registry DIR:\n"
       "current -> versions/ID/{bundle.chorus, decision.json, report.json}; refused/ID.json.\n"
       "Exit 0 promoted (or already current), 3 refused (current untouched), 2 bad input.");

@@ -15,6 +15,7 @@
 #include "coordinator/config_loader.h"
 #include "report/html_text.h"
 #include "coordinator/registry.h"
+#include "coordinator/shift_gate.h"
 #include "report/report_model.h"
 #include "proto/bundle_codec.h"
 
@@ -22,6 +23,9 @@ namespace chorus {
 namespace {
 
 using nlohmann::json;
+
+constexpr size_t kShiftedShown = 10;  // most shifted columns in decision.json
+constexpr size_t kShiftedLogged = 3;  // and in the log line
 
 // "2026-12-02T03:15:00Z".
 std::string IsoTime(std::chrono::system_clock::time_point time) {
@@ -94,8 +98,8 @@ json BundleJson(const BundleFile& file, const GateMetrics& metrics) {
 // Everything the decision rested on: DIR/versions/ID/decision.json or DIR/refused/ID.json.
 std::string DecisionJson(const PromoteOptions& o, const Candidate& c, const GateMetrics& scores,
                          const std::optional<Incumbent>& current, const GuardData& guard,
-                         const GateDecision& d, const std::string& id,
-                         std::chrono::system_clock::time_point now) {
+                         const GateDecision& d, const ShiftComparison& shift,
+                         const std::string& id, std::chrono::system_clock::time_point now) {
   const Task task = c.file.bundle.task;
   json j = {{"verdict", d.promote ? "promote" : "refuse"},
             {"reasons", d.reasons},
@@ -109,12 +113,14 @@ std::string DecisionJson(const PromoteOptions& o, const Candidate& c, const Gate
             {"candidate", BundleJson(c.file, scores)},
             {"current", nullptr},
             {"delta", nullptr},
-            {"checks", GateChecksJson(d.checks)}};
+            {"checks", GateChecksJson(d.checks)},
+            {"shift", {{"skipped", shift.skipped}}}};
   j["candidate"]["run_dir"] = o.run_dir;
   if (current.has_value()) {
     j["current"] = BundleJson(current->file, current->metrics);
     j["current"]["version"] = current->id;
     j["delta"] = GateDeltaJson(task, scores, current->metrics);
+    j["shift"] = ShiftComparisonJson(shift, current->file.bundle, c.file.bundle, kShiftedShown);
   }
   return j.dump(2) + "\n";
 }
@@ -137,6 +143,31 @@ Status Install(Registry& registry, const Candidate& c, const std::string& id,
   CHORUS_RETURN_IF_ERROR(registry.SwitchCurrent(id));
   LogLine(stderr, LogLevel::kInfo, "promoted: current -> versions/" + id, {{"current", id}});
   return Prune(registry, keep);
+}
+
+// The comparison of the two bundles' training data: the most shifted columns and the labels.
+void LogShift(const ShiftComparison& s) {
+  if (!s.skipped.empty()) {
+    LogLine(stderr, LogLevel::kInfo, "data shift not checked: " + s.skipped,
+            {{"shift_skipped", s.skipped}});
+    return;
+  }
+  std::string most;
+  for (size_t i = 0; i < s.columns.size() && i < kShiftedLogged; ++i) {
+    char text[160];
+    std::snprintf(text, sizeof text, "%s%s PSI %.3f", i ? ", " : "", s.columns[i].column.c_str(),
+                  s.columns[i].psi);
+    most += text;
+  }
+  char labels[96];
+  std::snprintf(labels, sizeof labels, "%s PSI %.3f", s.labels.column.c_str(), s.labels.psi);
+  LogLine(stderr, LogLevel::kInfo,
+          "data shift against the current bundle's training data: " +
+              (most.empty() ? std::string("no column compared") : "most shifted " + most) + "; " +
+              labels,
+          {{"max_psi", s.columns.empty() ? 0.0 : s.columns.front().psi},
+           {"most_shifted", s.columns.empty() ? std::string() : s.columns.front().column},
+           {"labels_psi", s.labels.psi}, {"unmatched", s.unmatched.size()}});
 }
 
 // One line per check, then the verdict with its reasons.
@@ -181,15 +212,23 @@ Status Conclude(const PromoteOptions& o, Registry& registry, const Candidate& ca
                 const GuardData& guard) {
   GateDecision d = DecideGate(candidate.file.bundle.task, scores,
                               current ? std::optional(current->metrics) : std::nullopt, o.limits);
-  if (const std::string refusal = BaselineRefusal(o); !refusal.empty()) {
+  std::vector<std::string> refusals;
+  if (const std::string refusal = BaselineRefusal(o); !refusal.empty()) refusals.push_back(refusal);
+  const ShiftComparison shift =
+      current ? CompareTrainingData(current->file.bundle, candidate.file.bundle, o.limits)
+              : ShiftComparison{"no current bundle", {}, {}, {}, {}};
+  LogShift(shift);
+  refusals.insert(refusals.end(), shift.refusals.begin(), shift.refusals.end());
+  if (!refusals.empty()) {
     if (d.promote) d.reasons.clear();
     d.promote = false;
-    d.reasons.push_back(refusal);
+    d.reasons.insert(d.reasons.end(), refusals.begin(), refusals.end());
   }
   LogDecision(d);
   const auto now = std::chrono::system_clock::now();
   const std::string id = registry.NewId(candidate.file.payload_sha256, now);
-  const std::string decision = DecisionJson(o, candidate, scores, current, guard, d, id, now);
+  const std::string decision =
+      DecisionJson(o, candidate, scores, current, guard, d, shift, id, now);
   if (d.promote) return Install(registry, candidate, id, decision, o.keep);
   CHORUS_RETURN_IF_ERROR(registry.RecordRefusal(id, decision));
   CHORUS_RETURN_IF_ERROR(Prune(registry, o.keep));

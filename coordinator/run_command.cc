@@ -19,6 +19,7 @@
 #include "common/log_format.h"
 #include "common/memory_estimate.h"
 #include "common/rng.h"
+#include "common/training_summary.h"
 #include "common/true_probabilities.h"
 #include "coordinator/bundle_writer.h"
 #include "common/folds.h"
@@ -200,13 +201,17 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
   AddCosts(dir, members, in.config.report.nll_tolerance, report);
   AddProbitScores(assembled, in.data, members, ev.weights, report);
   phases.End("report facts");
+  TrainingSummary summary;
+  arena.execute([&] { summary = SummarizeTraining(in.data, &parallel); });
+  phases.End("training data summary");
   // The phases up to here; the manifest before the report, which copies it (workers, version)
   // into report.json and the page; the bundle last, so a run that fails leaves none. Writing the
   // report and the bundle (well under a second on Fashion-MNIST) is the time left out.
   report["phases"] = phases.Json();
   Status st = WriteFileAtomic(dir.File("manifest.json"), Manifest(in, "complete", "", phases.Seconds(), workers).dump(2));
   if (st.ok()) st = WriteReportFiles(dir.path(), report);
-  if (st.ok()) st = WriteRunBundle(dir.File("bundle.chorus"), assembled, in.data, members, ev, in.config_hash);
+  if (st.ok()) st = WriteRunBundle(dir.File("bundle.chorus"), assembled, in.data, members, ev, in.config_hash,
+                                   summary);
   if (!st.ok()) return Fail(dir, in, st, phases.Seconds());
   dir.LogEvent("run_finished", {{"members", members.size()}});
   std::printf("%s\nrun directory: %s\n", SummaryTable(ev, &baseline).c_str(), dir.path().c_str());

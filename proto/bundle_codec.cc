@@ -79,6 +79,25 @@ void ToWire(const Preprocessing& p, wire::Preprocessing* out) {
   out->set_target_scale(p.target_scale);
 }
 
+void ToWire(const DistributionSketch& s, wire::DistributionSketch* out) {
+  out->mutable_values()->Add(s.values.begin(), s.values.end());
+  out->mutable_below()->Add(s.below.begin(), s.below.end());
+  out->mutable_upto()->Add(s.upto.begin(), s.upto.end());
+}
+
+void ToWire(const TrainingSummary& s, wire::TrainingSummary* out) {
+  out->set_rows(s.rows);
+  for (const ColumnSummary& c : s.columns) {
+    wire::ColumnSummary* column = out->add_columns();
+    column->set_name(c.name);
+    column->set_categorical(c.categorical);
+    if (!c.categorical) ToWire(c.numeric, column->mutable_numeric());
+    column->mutable_category_shares()->Add(c.category_shares.begin(), c.category_shares.end());
+  }
+  out->mutable_class_shares()->Add(s.class_shares.begin(), s.class_shares.end());
+  if (!s.target.empty()) ToWire(s.target, out->mutable_target());
+}
+
 void ToWire(const Bundle& b, wire::Bundle* out) {
   out->set_task(TaskName(b.task));
   out->mutable_class_names()->Add(b.class_names.begin(), b.class_names.end());
@@ -106,6 +125,7 @@ void ToWire(const Bundle& b, wire::Bundle* out) {
     metric->set_name(name);
     metric->set_value(value);
   }
+  if (!b.training_summary.empty()) ToWire(b.training_summary, out->mutable_training_summary());
 }
 
 // ---- messages to common/ types ----
@@ -206,6 +226,30 @@ Preprocessing FromWire(const wire::Preprocessing& w) {
   return p;
 }
 
+DistributionSketch FromWire(const wire::DistributionSketch& w) {
+  DistributionSketch s;
+  s.values.assign(w.values().begin(), w.values().end());
+  s.below.assign(w.below().begin(), w.below().end());
+  s.upto.assign(w.upto().begin(), w.upto().end());
+  return s;
+}
+
+TrainingSummary FromWire(const wire::TrainingSummary& w) {
+  TrainingSummary s;
+  s.rows = w.rows();
+  for (const wire::ColumnSummary& c : w.columns()) {
+    ColumnSummary column;
+    column.name = c.name();
+    column.categorical = c.categorical();
+    column.numeric = FromWire(c.numeric());
+    column.category_shares.assign(c.category_shares().begin(), c.category_shares().end());
+    s.columns.push_back(std::move(column));
+  }
+  s.class_shares.assign(w.class_shares().begin(), w.class_shares().end());
+  s.target = FromWire(w.target());
+  return s;
+}
+
 // Members are converted one at a time and each message's memory freed after, so the weights are
 // held about once, not twice, while the bundle is built.
 StatusOr<Bundle> FromWire(wire::Bundle& w, const std::string& source) {
@@ -237,6 +281,7 @@ StatusOr<Bundle> FromWire(wire::Bundle& w, const std::string& source) {
   b.data_hash = w.data_hash();
   b.config_hash = w.config_hash();
   for (const wire::Metric& m : w.test_metrics()) b.test_metrics.emplace_back(m.name(), m.value());
+  if (w.has_training_summary()) b.training_summary = FromWire(w.training_summary());
   CHORUS_RETURN_IF_ERROR(CheckBundle(b, source));
   return b;
 }

@@ -93,11 +93,70 @@ std::string MetricChart(const json& h, const Metric& m) {
          "; hover a point for its time.</figcaption></figure>";
 }
 
+// The decision's training-data comparison when one was made (chorus promote's "shift" with
+// "most_shifted"), else null: no current bundle, a bundle without summary, an older chorus.
+const json* ShiftOf(const json& decision) {
+  if (!decision.contains("shift") || !decision["shift"].is_object()) return nullptr;
+  const json& s = decision["shift"];
+  if (!s.contains("most_shifted") || !s["most_shifted"].is_array() || !s.contains("labels")) {
+    return nullptr;
+  }
+  return &s;
+}
+
+// The largest column PSI ("" when no column was compared) and the labels' PSI.
+std::string LargestShift(const json& shift) {
+  const json& most = shift["most_shifted"];
+  if (most.empty() || !most[0]["psi"].is_number()) return "";
+  return most[0]["column"].get<std::string>() + " " + Num(most[0]["psi"], 3);
+}
+
+// The largest column PSI and the labels' PSI at each decision that compared training data, with
+// the common-practice 0.25 line.
+std::string ShiftChart(const json& h) {
+  LineSeries column{"largest input-column PSI", PaletteColour(0), {}, {}, {}, {}, false, {}};
+  LineSeries labels{"labels PSI", PaletteColour(1), {}, {}, {}, {}, false, {}};
+  const json& d = h["decisions"];
+  for (size_t i = 0; i < d.size(); ++i) {
+    const json* shift = ShiftOf(d[i]);
+    if (shift == nullptr) continue;
+    const double x = static_cast<double>(i + 1);
+    const std::string when = d[i]["time"].get<std::string>();
+    const json& most = (*shift)["most_shifted"];
+    if (!most.empty() && most[0]["psi"].is_number()) {
+      column.x.push_back(x);
+      column.y.push_back(most[0]["psi"].get<double>());
+      column.tooltips.push_back(when + ": " + LargestShift(*shift));
+    }
+    if ((*shift)["labels"]["psi"].is_number()) {
+      labels.x.push_back(x);
+      labels.y.push_back((*shift)["labels"]["psi"].get<double>());
+      labels.tooltips.push_back(when + ": labels PSI " + Num((*shift)["labels"]["psi"], 3));
+    }
+  }
+  if (column.x.empty() && labels.x.empty()) return "";
+  const double last = static_cast<double>(d.size()) + 0.5;
+  const std::string band = "0.25: significant shift (common practice)";
+  LineSeries line{band, PaletteColour(2), {0.5, last}, {0.25, 0.25}, {}, {}, true, {band, band}};
+  LineChartSpec spec;
+  spec.title = "Training-data shift against the bundle then current";
+  spec.x_label = "decision (oldest first)";
+  spec.y_label = "population stability index";
+  for (LineSeries* s : {&column, &labels, &line}) {
+    if (!s->x.empty()) spec.series.push_back(*s);
+  }
+  for (size_t i = 0; i < d.size(); ++i) spec.x_ticks.push_back(static_cast<double>(i + 1));
+  spec.x_range = std::make_pair(0.5, last);
+  return "<figure>" + LineChart(spec) + "<figcaption>" + EscapeHtml(spec.title) +
+         "; hover a point for the column.</figcaption></figure>";
+}
+
 std::string ChartsSection(const json& h) {
   if (h["decisions"].empty()) return "";
   std::string charts;
   const std::vector<Metric> metrics = Metrics(h);
   for (size_t i = 0; i < 2; ++i) charts += MetricChart(h, metrics[i]);
+  charts += ShiftChart(h);
   return "<section><h2>Over time</h2><div class=\"charts\">" + charts + "</div></section>";
 }
 
@@ -107,9 +166,9 @@ std::string DecisionsSection(const json& h) {
       "<section><h2>Decisions</h2><table><thead><tr><th>#</th><th>time (UTC)</th><th>verdict</th>"
       "<th>run</th><th>guard rows</th><th>guard data</th>";
   for (const Metric& m : metrics) html += std::string("<th>") + m.label + "</th>";
-  html += "<th>current NLL</th></tr></thead><tbody>";
+  html += "<th>current NLL</th><th>largest PSI</th><th>labels PSI</th></tr></thead><tbody>";
   const json& d = h["decisions"];
-  const int columns = 7 + static_cast<int>(metrics.size());
+  const int columns = 9 + static_cast<int>(metrics.size());
   for (size_t i = 0; i < d.size(); ++i) {
     const json& x = d[i];
     const bool now_current = h["current"].is_string() && x["version"] == h["current"];
@@ -120,8 +179,11 @@ std::string DecisionsSection(const json& h) {
             "</td><td>" + std::to_string(x["guard"]["rows"].get<long long>()) + "</td><td class=\"hash nowrap\">" +
             EscapeHtml(x["guard"]["data_hash"].get<std::string>().substr(0, 8)) + "</td>";
     for (const Metric& m : metrics) html += "<td>" + Num(x["candidate"]["metrics"].value(m.key, json()), m.decimals) + "</td>";
+    const json* shift = ShiftOf(x);
+    const std::string largest = shift ? LargestShift(*shift) : "";
     html += "<td>" + (x["current"].is_object() ? Num(x["current"]["metrics"]["nll"], 4) : std::string("none")) +
-            "</td></tr><tr" + row_class + "><td></td><td colspan=\"" + std::to_string(columns - 1) +
+            "</td><td class=\"nowrap\">" + (largest.empty() ? "&ndash;" : EscapeHtml(largest)) + "</td><td>" +
+            (shift ? Num((*shift)["labels"]["psi"], 3) : "&ndash;") + "</td></tr><tr" + row_class + "><td></td><td colspan=\"" + std::to_string(columns - 1) +
             "\" class=\"reasons\">version <span class=\"hash\">" + EscapeHtml(x["version"].get<std::string>()) +
             "</span>: ";
     for (size_t r = 0; r < x["reasons"].size(); ++r) {
@@ -130,7 +192,10 @@ std::string DecisionsSection(const json& h) {
     html += "</td></tr>";
   }
   return html + "</tbody></table><p class=\"note\">Guard metrics on that night's guard data; NLL in "
-                "nats per input. The highlighted rows are the version current now.</p></section>";
+                "nats per input. PSI: the population stability index of the candidate's training data "
+                "against the bundle then current (below 0.1 little change, above 0.25 a significant "
+                "shift, as common practice reads it); &ndash; where none was compared. The "
+                "highlighted rows are the version current now.</p></section>";
 }
 
 std::string RollbacksSection(const json& h) {

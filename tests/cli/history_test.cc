@@ -79,9 +79,13 @@ TEST_F(HistoryTest, EveryDecisionAndRollbackIsOnThePageWithItsOwnFigures) {
   EXPECT_NE(page.find("promote (current)"), std::string::npos);
   EXPECT_NE(page.find("current <span class=\"hash\">" + current + "</span>"), std::string::npos);
   // Two charts (guard NLL and accuracy), each with a point per candidate and per current bundle
-  // (3 candidates + 2 decisions that had a current bundle).
-  ASSERT_EQ(Count(page, "<svg class=\"chart\""), 2u);
-  EXPECT_EQ(Count(page, "class=\"data point\""), 2u * 5u);
+  // (3 candidates + 2 decisions that had a current bundle); then the shift chart: the largest
+  // column PSI and the labels' PSI of the 2 decisions that had a current bundle, and the two
+  // ends of the 0.25 line.
+  ASSERT_EQ(Count(page, "<svg class=\"chart\""), 3u);
+  EXPECT_EQ(Count(page, "class=\"data point\""), 2u * 5u + 2u * 2u + 2u);
+  // All runs trained on the same rows: no shift, the first column (station) named.
+  EXPECT_EQ(Count(page, "<td class=\"nowrap\">station 0.000</td>"), 2u);
   // No scripts, nothing loaded from anywhere.
   EXPECT_EQ(page.find("<script"), std::string::npos);
   EXPECT_EQ(page.find("src="), std::string::npos);

@@ -345,6 +345,63 @@ TEST_F(PredictCommandTest, InvalidRowsStopWithExitTwoUnlessSkipped) {
   EXPECT_EQ(ids, (std::vector<std::string>{"2", "4", "6", "7"}));
 }
 
+// alarms_shifted.csv (tools/demo_data.cc) names the columns in the training order but holds its
+// values in another: a header/value mismatch that every row shows as values far outside the
+// training ranges. The test split is in range.
+TEST_F(PredictCommandTest, RowsFarOutsideTheTrainingDataAreReportedOrRefused) {
+  const std::string run = Run("ranges", kClassification);
+  const std::string bundle = run + "/bundle.chorus";
+  auto r = Chorus("predict " + bundle + " " + dir_ + "/data/alarms_test.csv -o " + dir_ +
+                  "/test.csv");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  EXPECT_NE(r.output.find("400 rows predicted, 0 invalid rows skipped, 0 rows far outside"),
+            std::string::npos)
+      << r.output;
+
+  const std::string shifted = dir_ + "/data/alarms_shifted.csv";
+  r = Chorus("predict " + bundle + " " + shifted + " -o " + dir_ + "/shifted.csv --log-format json");
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  EXPECT_TRUE(fs::exists(dir_ + "/shifted.csv"));
+  // One warning for the one batch, naming its lines and the columns at fault, then the summary.
+  std::stringstream lines(r.output);
+  json batch, summary;
+  for (std::string l; std::getline(lines, l);) {
+    const json j = json::parse(l, nullptr, false);
+    ASSERT_TRUE(j.is_object()) << l;
+    if (j.contains("batch_rows")) batch = j;
+    if (j.contains("rows")) summary = j;
+  }
+  ASSERT_TRUE(batch.is_object()) << r.output;
+  EXPECT_EQ(batch["level"], "warning");
+  EXPECT_EQ(batch["first_line"], 2);
+  EXPECT_EQ(batch["last_line"], 401);
+  const int64_t outside = batch["out_of_range_rows"].get<int64_t>();
+  EXPECT_GT(outside, 300) << r.output;  // most rows: the values sit in the wrong columns
+  ASSERT_TRUE(batch["columns"].is_object());
+  int64_t blamed = 0;
+  for (const auto& [column, rows] : batch["columns"].items()) {
+    EXPECT_NE(column, "station");  // the only column still in its place
+    blamed += rows.get<int64_t>();
+  }
+  EXPECT_GE(blamed, outside);  // every flagged row has a column at fault
+  // days_since_service (about 50-250) lands in discharge_bar (about 2-6 in training).
+  EXPECT_GT(batch["columns"].value("discharge_bar", 0), 300) << batch.dump();
+  EXPECT_NE(batch["msg"].get<std::string>().find("training range ["), std::string::npos);
+  EXPECT_EQ(summary["out_of_range_rows"], outside);
+
+  r = Chorus("predict " + bundle + " " + shifted + " -o " + dir_ + "/refused.csv " +
+             "--refuse-out-of-range");
+  EXPECT_EQ(r.exit_code, 2) << r.output;
+  EXPECT_NE(r.output.find("alarms_shifted.csv lines 2-401: " + std::to_string(outside) +
+                          " of 400 rows far outside the training data"),
+            std::string::npos)
+      << r.output;
+  EXPECT_FALSE(fs::exists(dir_ + "/refused.csv"));
+  for (const auto& e : fs::directory_iterator(dir_)) {
+    EXPECT_EQ(e.path().string().find("refused.csv.tmp"), std::string::npos) << "left " << e.path();
+  }
+}
+
 TEST_F(PredictCommandTest, TargetColumnMayBeAbsentButFeatureColumnsMayNot) {
   const std::string run = Run("cols", kClassification);
   const std::string bundle = run + "/bundle.chorus";

@@ -11,6 +11,7 @@
 #include <filesystem>
 #include <sstream>
 #include <string>
+#include <vector>
 
 #include <nlohmann/json.hpp>
 
@@ -99,6 +100,7 @@ TEST_F(PromoteTest, FirstBundleThenABetterOneArePromoted) {
   ASSERT_EQ(r.exit_code, 0) << r.output;
   const std::string first = CurrentTarget();
   EXPECT_EQ(CurrentDecision()["reasons"], json({"no current bundle"}));
+  EXPECT_EQ(CurrentDecision()["shift"], json({{"skipped", "no current bundle"}}));
   EXPECT_EQ(ReadTextFile(registry_ + "/current/bundle.chorus"),
             ReadTextFile(weaker_ + "/bundle.chorus"));
 
@@ -121,6 +123,77 @@ TEST_F(PromoteTest, FirstBundleThenABetterOneArePromoted) {
   }
   EXPECT_EQ(ReadTextFile(registry_ + "/current/report.json"),
             ReadTextFile(better_ + "/report.json"));
+  // Both runs trained on the same rows: every column compared, none shifted.
+  EXPECT_TRUE(d["shift"]["skipped"].is_null()) << d["shift"].dump();
+  EXPECT_EQ(d["shift"]["columns_compared"], 7);
+  EXPECT_EQ(d["shift"]["most_shifted"][0]["psi"], 0.0);
+  EXPECT_EQ(d["shift"]["labels"]["psi"], 0.0);
+  EXPECT_EQ(d["shift"]["refusals"], json::array());
+}
+
+// A run on the same rows with motor_temp_c raised by 15 degrees: the gate names that column
+// and refuses it above --max-psi (0.25 by default), or above --max-ks when set.
+TEST_F(PromoteTest, ShiftedTrainingDataIsRefusedAndItsColumnNamed) {
+  const std::string dir = fs::path(registry_).parent_path().string();
+  const std::string data = DemoDataOf(weaker_);
+  fs::create_directories(dir + "/data");
+  for (const char* f : {"alarms_test.csv", "alarms_test_probabilities.csv"}) {
+    fs::copy_file(data + "/" + f, dir + "/data/" + f);
+  }
+  std::istringstream train(ReadTextFile(data + "/alarms_train.csv"));
+  std::string shifted, line;
+  std::getline(train, line);
+  shifted = line + "\n";
+  ASSERT_EQ(line.find("station,vibration_mm_s,motor_temp_c,"), 0u) << line;
+  while (std::getline(train, line)) {
+    std::vector<std::string> f;
+    std::istringstream fields(line);
+    for (std::string v; std::getline(fields, v, ',');) f.push_back(v);
+    f[2] = std::to_string(std::stod(f[2]) + 15);
+    for (size_t i = 0; i < f.size(); ++i) shifted += (i ? "," : "") + f[i];
+    shifted += "\n";
+  }
+  testing::WriteTextFile(dir + "/data/alarms_train.csv", shifted);
+  const std::string run =
+      testing::RunDemo(dir, "shifted", testing::DemoClassificationYaml("shifted", 2, kWeaker));
+  ASSERT_FALSE(run.empty());
+
+  ASSERT_EQ(Promote(weaker_).exit_code, 0);
+  const std::string current = CurrentTarget();
+  auto r = Promote(run);
+  EXPECT_EQ(r.exit_code, 3) << r.output;
+  EXPECT_NE(r.output.find("most shifted motor_temp_c PSI"), std::string::npos) << r.output;
+  EXPECT_EQ(CurrentTarget(), current);
+  const std::vector<std::string> refused = Entries("refused");
+  ASSERT_EQ(refused.size(), 1u);
+  json d = json::parse(ReadTextFile(registry_ + "/refused/" + refused[0]));
+  const json& most = d["shift"]["most_shifted"];
+  EXPECT_EQ(most[0]["column"], "motor_temp_c");
+  EXPECT_GT(most[0]["psi"].get<double>(), 0.25);
+  EXPECT_GT(most[0]["ks"].get<double>(), 0.5);
+  EXPECT_EQ(most[1]["psi"], 0.0);  // the other columns hold the same rows
+  EXPECT_EQ(d["shift"]["labels"]["psi"], 0.0);
+  EXPECT_EQ(d["shift"]["rows"]["candidate"], 1200);
+  ASSERT_EQ(d["shift"]["refusals"].size(), 1u);
+  EXPECT_EQ(d["shift"]["refusals"][0].get<std::string>().find(
+                "data shift: PSI above 0.250 (--max-psi) in 1 of 7 columns: motor_temp_c"),
+            0u);
+  EXPECT_EQ(d["reasons"].back(), d["shift"]["refusals"][0]);
+
+  // A KS limit refuses it too; with looser limits the decision is left to the scores.
+  r = Promote(run, "--max-psi 100 --max-ks 0.3");
+  EXPECT_EQ(r.exit_code, 3) << r.output;
+  EXPECT_NE(r.output.find("KS above 0.300 (--max-ks) in 1 of 7 columns: motor_temp_c"),
+            std::string::npos)
+      << r.output;
+  r = Promote(run, "--max-psi 100");
+  d = json::parse(ReadTextFile(registry_ + "/" +
+                               (r.exit_code == 0 ? "current/decision.json"
+                                                 : "refused/" + Entries("refused").back())));
+  EXPECT_EQ(d["shift"]["refusals"], json::array()) << r.output;
+  for (const auto& reason : d["reasons"]) {
+    EXPECT_EQ(reason.get<std::string>().find("data shift"), std::string::npos) << reason;
+  }
 }
 
 // --refuse-if-baseline-better reads the candidate run's own verdict (report.json
@@ -214,7 +287,8 @@ TEST_F(PromoteTest, RegressionGateUsesNllAndRmse) {
   ASSERT_EQ(r.exit_code, 0) << r.output;
   const json d = CurrentDecision();
   EXPECT_EQ(d["limits"], json({{"max_nll_increase", 0.01}, {"max_rmse_increase", 0.02},
-                               {"refuse_if_baseline_better", false}}));
+                               {"refuse_if_baseline_better", false}, {"max_psi", 0.25},
+                               {"max_ks", 1.0}}));
   const json report = json::parse(ReadTextFile(better_regression_ + "/report.json"));
   for (const char* metric : {"rmse", "nll", "coverage_90"}) {
     EXPECT_EQ(d["candidate"]["metrics"][metric], report["ensemble"]["test"][metric]) << metric;

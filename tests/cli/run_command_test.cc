@@ -106,7 +106,8 @@ TEST_F(RunCommandTest, WritesTheRunDirectoryAndTheStableReportCore) {
   }
   EXPECT_EQ(phase_names, (std::vector<std::string>{"config, data and run directory", "training jobs",
                                                    "weights, temperature and test scores", "size grid",
-                                                   "linear baseline", "report facts", "total"}));
+                                                   "linear baseline", "report facts",
+                                                   "training data summary", "total"}));
   const double total = report["phases"].back()["seconds"].get<double>();
   EXPECT_NEAR(phase_sum, total, 0.05 * total);
   EXPECT_LE(total, manifest["wall_seconds"].get<double>() + 1e-9);

@@ -88,10 +88,22 @@ TEST_P(BundleWriterTest, SavedBundleReproducesTheRunsTestOutputsAndScores) {
   }
   const EnsembleEvaluation ev = EvaluateEnsemble(data.value(), members, config.ensemble,
                                                  config.report, config.run.seed, nullptr);
-  const std::string bytes =
-      EncodeBundleFile(MakeRunBundle(config, data.value(), members, ev, std::string(64, 'c')));
+  const TrainingSummary summary = SummarizeTraining(data.value(), nullptr);
+  const std::string bytes = EncodeBundleFile(
+      MakeRunBundle(config, data.value(), members, ev, std::string(64, 'c'), summary));
   StatusOr<BundleFile> loaded = DecodeBundleFile(bytes, "bundle.chorus");
   ASSERT_TRUE(loaded.ok()) << loaded.status().ToString();
+  // The training data's summary comes back as written.
+  const TrainingSummary& read = loaded.value().bundle.training_summary;
+  EXPECT_EQ(read.rows, data.value().train.rows());
+  ASSERT_EQ(read.columns.size(), summary.columns.size());
+  for (size_t k = 0; k < read.columns.size(); ++k) {
+    EXPECT_EQ(read.columns[k].numeric.values, summary.columns[k].numeric.values) << k;
+    EXPECT_EQ(read.columns[k].numeric.upto, summary.columns[k].numeric.upto) << k;
+    EXPECT_EQ(read.columns[k].category_shares, summary.columns[k].category_shares) << k;
+  }
+  EXPECT_EQ(read.class_shares, summary.class_shares);
+  EXPECT_EQ(read.target.values, summary.target.values);
   const Predictor predictor = Predictor::Create(loaded.value().bundle).value();
 
   int64_t c = 0;

@@ -148,8 +148,9 @@ TEST(GateTest, JsonHoldsTheTaskMetricsAndLimits) {
   EXPECT_EQ(GateLimitsJson(Task::kRegression, limits),
             nlohmann::json({{"max_nll_increase", limits.max_nll_increase},
                             {"max_rmse_increase", limits.max_rmse_increase},
-                            {"refuse_if_baseline_better", false}}));
-  EXPECT_EQ(GateLimitsJson(Task::kClassification, limits).size(), 4u);
+                            {"refuse_if_baseline_better", false},
+                            {"max_psi", 0.25}, {"max_ks", 1.0}}));
+  EXPECT_EQ(GateLimitsJson(Task::kClassification, limits).size(), 6u);
 }
 
 }  // namespace gate_test

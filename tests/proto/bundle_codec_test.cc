@@ -169,6 +169,75 @@ TEST(BundleCodecTest, AbsurdDimensionsAreRefusedBeforeAllocating) {
   }
 }
 
+// A valid training summary for a synthetic classifier: every numeric column {1, 2, 2, 3}, every
+// category and class an equal share.
+TrainingSummary SummaryFor(const Bundle& b) {
+  TrainingSummary s;
+  s.rows = 4;
+  for (const FeaturePlan::Column& c : b.preprocessing.plan.columns) {
+    ColumnSummary column;
+    column.name = c.name;
+    column.categorical = c.categorical;
+    if (c.categorical) {
+      const size_t n = b.preprocessing.plan.categorical[c.index].vocabulary.size();
+      column.category_shares.assign(n, 1.0 / static_cast<double>(n));
+    } else {
+      std::vector<double> values = {1, 2, 2, 3};
+      column.numeric = SketchOf(&values);
+    }
+    s.columns.push_back(column);
+  }
+  s.class_shares.assign(b.class_names.size(), 1.0 / static_cast<double>(b.class_names.size()));
+  return s;
+}
+
+TEST(BundleCodecTest, TrainingSummaryRoundTripsAndMalformedOnesAreRefused) {
+  Bundle original = SyntheticBundle({});
+  original.training_summary = SummaryFor(original);
+  const std::string file = EncodeBundleFile(original);
+  const StatusOr<BundleFile> read = DecodeBundleFile(file, "b");
+  ASSERT_TRUE(read.ok()) << read.status().ToString();
+  const TrainingSummary& got = read.value().bundle.training_summary;
+  ASSERT_EQ(got.columns.size(), original.training_summary.columns.size());
+  for (size_t k = 0; k < got.columns.size(); ++k) {
+    EXPECT_EQ(got.columns[k].name, original.training_summary.columns[k].name);
+    EXPECT_EQ(got.columns[k].numeric.values, original.training_summary.columns[k].numeric.values);
+    EXPECT_EQ(got.columns[k].numeric.below, original.training_summary.columns[k].numeric.below);
+    EXPECT_EQ(got.columns[k].category_shares, original.training_summary.columns[k].category_shares);
+  }
+  EXPECT_EQ(got.class_shares, original.training_summary.class_shares);
+  // A bundle without a summary (as older chorus wrote them) still reads.
+  EXPECT_TRUE(DecodeBundleFile(EncodeBundleFile(SyntheticBundle({})), "b").ok());
+
+  const std::string good = PayloadOf(file);
+  const std::vector<std::pair<const char*, std::function<void(bundle::Bundle&)>>> cases = {
+      {"values out of order",
+       [](bundle::Bundle& b) {
+         b.mutable_training_summary()->mutable_columns(0)->mutable_numeric()->set_values(0, 9);
+       }},
+      {"last upto below 1",
+       [](bundle::Bundle& b) {
+         auto* n = b.mutable_training_summary()->mutable_columns(0)->mutable_numeric();
+         n->set_upto(n->upto_size() - 1, 0.5f);
+       }},
+      {"a column missing",
+       [](bundle::Bundle& b) { b.mutable_training_summary()->mutable_columns()->RemoveLast(); }},
+      {"a column renamed",
+       [](bundle::Bundle& b) { b.mutable_training_summary()->mutable_columns(0)->set_name("zz"); }},
+      {"class shares not summing to 1",
+       [](bundle::Bundle& b) { b.mutable_training_summary()->set_class_shares(0, 0.9); }},
+      {"no rows", [](bundle::Bundle& b) { b.mutable_training_summary()->set_rows(0); }}};
+  for (const auto& [name, mutate] : cases) {
+    SCOPED_TRACE(name);
+    bundle::Bundle message;
+    ASSERT_TRUE(message.ParseFromString(good));
+    mutate(message);
+    const Status st = DecodeStatus(Frame(message.SerializeAsString()));
+    EXPECT_EQ(st.code(), Status::Code::kInvalidInput) << st.ToString();
+    EXPECT_NE(st.message().find("b: training summary"), std::string::npos) << st.ToString();
+  }
+}
+
 TEST(BundleCodecTest, PredictorRefusesSamplesBeyondItsMemoryBound) {
   const Bundle b = SyntheticBundle({});
   const StatusOr<Predictor> p = Predictor::Create(b, nullptr, /*max_sample_bytes=*/100);
