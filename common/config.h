@@ -6,6 +6,7 @@
 
 #include <cstdint>
 #include <optional>
+#include <memory>
 #include <string>
 #include <vector>
 
@@ -144,6 +145,14 @@ struct TrainConfig {
   // NLL is weighted by its predicted variance to the power beta, held constant in the gradient;
   // 0 is the plain NLL, 1 gives the mean the gradient of squared error. In [0, 1].
   double beta_nll = 0.5;
+  // Warm start (coordinator/warm_start.h): a bundle file, or a registry directory whose current
+  // bundle is meant; members start from its members' weights instead of a random initialisation
+  // and train for `epochs` as usual. Empty: a cold start. Absolute once loaded.
+  std::string warm_start;
+  // Filled by the coordinator from warm_start, never read from or written to YAML: one starting
+  // weight vector per member of the warm-start bundle, in this run's standardisation; member i
+  // starts from start_points[i mod size]. Empty: initialise from the member's seed.
+  std::vector<std::shared_ptr<const std::vector<float>>> start_points;
 };
 
 // Basin fits (ensemble.basin): after normal training, SGD continues at the constant rate `lr` for

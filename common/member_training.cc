@@ -48,6 +48,13 @@ JobRows RowsForJob(const MemberSpec& spec, const PreparedData& data) {
   return rows;
 }
 
+// A warm start's starting weights for the job's member (train.start_points), or null.
+const std::vector<float>* StartPoint(const MemberSpec& spec) {
+  const auto& points = spec.train.start_points;
+  if (points.empty()) return nullptr;
+  return points[static_cast<size_t>(spec.index) % points.size()].get();
+}
+
 // State of one member's SGD run over the rows `rows` of the training split; buffers are
 // allocated once.
 class SgdRun {
@@ -62,7 +69,11 @@ class SgdRun {
               static_cast<int>(std::min<int64_t>(spec.train.parts, batch_)),
               static_cast<float>(spec.train.beta_nll), spec.train.products),
         xb_(batch_, data.features()), labels_(batch_), targets_(batch_), order_(rows_.size()) {
-    net_.Initialize(Derive(spec.seed, "init"), params_.data());
+    if (const std::vector<float>* start = StartPoint(spec)) {
+      std::copy(start->begin(), start->end(), params_.begin());
+    } else {
+      net_.Initialize(Derive(spec.seed, "init"), params_.data());
+    }
   }
 
   // One epoch over the shuffled training rows at the learning rate lr_at(step) (step counts from
@@ -453,6 +464,13 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   CHORUS_RETURN_IF_ERROR(CheckModelForData(spec.model, data.features(), where + ": model"));
   JobRows rows = RowsForJob(spec, data);
   if (rows.train.empty()) return Status::InvalidInput(where + ": no training rows outside the fold");
+  if (const std::vector<float>* start = StartPoint(spec);
+      start != nullptr &&
+      static_cast<int64_t>(start->size()) != NetworkFor(spec.model, data).ParameterCount()) {
+    return Status::InvalidInput(where + ": the warm start holds " + std::to_string(start->size()) +
+                                " weights, the network " +
+                                std::to_string(NetworkFor(spec.model, data).ParameterCount()));
+  }
   const Split& validation = rows.validation != nullptr ? *rows.validation : rows.held_out;
   CpuAccount cpu(parallel);
   SgdRun run(spec, data, std::move(rows.train), cpu.parallel());

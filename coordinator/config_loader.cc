@@ -315,9 +315,11 @@ Status LoadEarlyStopping(const Section& t, EarlyStoppingConfig* e) {
   return s.Get<int>("patience", &e->patience, "an epoch count", 1, 1000000);
 }
 
-Status LoadTrain(const Section& s, TrainConfig* t) {
+Status LoadTrain(const Section& s, const std::string& base, TrainConfig* t) {
   CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "parts", "products", "optimizer",
-                                  "schedule", "early_stopping", "beta_nll"}));
+                                  "schedule", "early_stopping", "beta_nll", "warm_start"}));
+  CHORUS_RETURN_IF_ERROR(s.GetString("warm_start", &t->warm_start));
+  t->warm_start = Resolve(base, t->warm_start);
   CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &t->epochs, "an epoch count", 1, 1000000));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("batch_size", &t->batch_size, "a batch size", 1, 1 << 20));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("parts", &t->parts, "a part count (at most batch_size)", 1,
@@ -507,11 +509,19 @@ Status LoadAll(const YAML::Node& root, const std::string& path, Config* c) {
   if (top.Has("run")) CHORUS_RETURN_IF_ERROR(LoadRun(top.Child("run"), &c->run));
   CHORUS_RETURN_IF_ERROR(LoadData(top.Child("data"), base.empty() ? "." : base, &c->data));
   if (top.Has("model")) CHORUS_RETURN_IF_ERROR(LoadModel(top.Child("model"), &c->model));
-  if (top.Has("train")) CHORUS_RETURN_IF_ERROR(LoadTrain(top.Child("train"), &c->train));
+  if (top.Has("train")) {
+    CHORUS_RETURN_IF_ERROR(LoadTrain(top.Child("train"), base.empty() ? "." : base, &c->train));
+  }
   if (top.Has("ensemble")) CHORUS_RETURN_IF_ERROR(LoadEnsemble(top.Child("ensemble"), &c->ensemble));
   else c->ensemble.min_members = c->ensemble.members;
   if (top.Has("report")) CHORUS_RETURN_IF_ERROR(LoadReport(top.Child("report"), &c->report));
   if (top.Has("search")) CHORUS_RETURN_IF_ERROR(LoadSearch(top.Child("search"), &c->search));
+  if (!c->train.warm_start.empty() && !c->search.empty()) {
+    const Section t = top.Child("train");
+    return t.Error(t.Node("warm_start"), t.Path("warm_start"),
+                   "a warm start fine-tunes the warm-start bundle's network, which a search grid "
+                   "would change: remove the search section or the warm start");
+  }
   if (top.Has("compute")) CHORUS_RETURN_IF_ERROR(LoadCompute(top.Child("compute"), &c->compute));
   if (top.Has("cluster")) {
     CHORUS_RETURN_IF_ERROR(LoadCluster(top.Child("cluster"), base.empty() ? "." : base, &c->cluster));
@@ -579,7 +589,9 @@ void EmitTrain(YAML::Emitter& out, const TrainConfig& t) {
   out << YAML::Key << "early_stopping" << YAML::Value << YAML::Flow << YAML::BeginMap << YAML::Key
       << "mode" << YAML::Value << SwitchName(t.early_stopping.mode) << YAML::Key << "patience"
       << YAML::Value << t.early_stopping.patience << YAML::EndMap;
-  out << YAML::Key << "beta_nll" << YAML::Value << t.beta_nll << YAML::EndMap;
+  out << YAML::Key << "beta_nll" << YAML::Value << t.beta_nll;
+  if (!t.warm_start.empty()) out << YAML::Key << "warm_start" << YAML::Value << t.warm_start;
+  out << YAML::EndMap;
 }
 
 void EmitSearch(YAML::Emitter& out, const SearchConfig& g) {

@@ -28,6 +28,8 @@
 #include "coordinator/shift_evaluation.h"
 #include "coordinator/method_facts.h"
 #include "coordinator/training_facts.h"
+#include "coordinator/guard_data.h"
+#include "coordinator/warm_start.h"
 #include "coordinator/config_loader.h"
 #include "coordinator/report_files.h"
 #include "coordinator/run_directory.h"
@@ -46,6 +48,7 @@ struct Inputs {
   PreparedData data;
   std::optional<Matrix> true_probabilities;
   std::optional<Matrix> shifted;  // data.shift_test's rows, standardised
+  std::optional<WarmStart> warm_start;  // train.warm_start's bundle and starting points
   std::string config_hash;
 };
 
@@ -66,6 +69,15 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
     CHORUS_ASSIGN_OR_RETURN(in.shifted, LoadShiftedRows(in.config.data, in.data));
   }
   in.config_hash = ConfigHash(in.config);
+  if (!in.config.train.warm_start.empty()) {
+    CHORUS_ASSIGN_OR_RETURN(in.warm_start, LoadWarmStart(in.config, in.data));
+    in.config.train.start_points = in.warm_start->points;
+    in.config_hash = WarmStartConfigHash(in.config_hash, *in.warm_start);
+    LogLine(stderr, LogLevel::kInfo,
+            "warm start from " + in.warm_start->path + " (run " + in.warm_start->bundle.run_name +
+                ", " + std::to_string(in.warm_start->bundle.members.size()) + " members)",
+            {{"warm_start", in.warm_start->path}, {"warm_start_sha256", in.warm_start->sha256}});
+  }
   return in;
 }
 
@@ -154,6 +166,23 @@ Config TuneScale(const Inputs& in, TrainedRun& trained, RunDirectory& dir) {
   return assembled;
 }
 
+// The warm-start bundle scored on this run's test split (the raw rows, encoded with the bundle's
+// own preprocessing, as chorus promote scores it) beside this run's ensemble.
+StatusOr<json> WarmStartComparison(const Inputs& in, const EnsembleEvaluation& ev) {
+  CHORUS_ASSIGN_OR_RETURN(const GuardData test, LoadGuardData(in.config, GuardSource()));
+  StatusOr<GateMetrics> start = ScoreOnGuard(in.warm_start->bundle, test, in.config.compute.threads);
+  if (!start.ok()) return start.status().WithContext("scoring the warm-start bundle");
+  json j = WarmStartJson(*in.warm_start);
+  j["start_bundle_test"] = GateMetricsJson(in.data.task, start.value());
+  const double nll = in.data.task == Task::kClassification ? ev.test.classification.nll
+                                                           : ev.test.regression.nll;
+  j["nll_change"] = nll - start.value().nll;
+  LogPrintf(stderr, LogLevel::kInfo,
+            "warm start: the starting bundle's test NLL %.4f, this run's ensemble %.4f",
+            start.value().nll, nll);
+  return j;
+}
+
 // Assembles, reports and writes the closing files of a run whose members have trained.
 // Each step's wall time goes into `phases`, which report.json keeps.
 int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const WorkersSeen& workers,
@@ -201,6 +230,12 @@ int Finish(RunDirectory& dir, const Inputs& in, TrainedRun& trained, const Worke
   AddCosts(dir, members, in.config.report.nll_tolerance, report);
   AddProbitScores(assembled, in.data, members, ev.weights, report);
   phases.End("report facts");
+  if (in.warm_start) {
+    StatusOr<json> warm = WarmStartComparison(in, ev);
+    if (!warm.ok()) return Fail(dir, in, warm.status(), phases.Seconds());
+    report["warm_start"] = warm.value();
+    phases.End("warm start comparison");
+  }
   TrainingSummary summary;
   arena.execute([&] { summary = SummarizeTraining(in.data, &parallel); });
   phases.End("training data summary");

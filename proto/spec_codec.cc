@@ -1,5 +1,8 @@
 #include "proto/spec_codec.h"
 
+#include <memory>
+#include <vector>
+
 #include "common/conv_front.h"
 
 namespace chorus {
@@ -57,6 +60,11 @@ void SpecToWire(const MemberSpec& spec, wire::MemberSpec* out) {
   out->set_folds(spec.folds);
   out->set_fold_seed(spec.fold_seed);
   out->set_stop_epoch(spec.stop_epoch);
+  const auto& points = t.start_points;
+  if (!points.empty()) {
+    const std::vector<float>& start = *points[static_cast<size_t>(spec.index) % points.size()];
+    out->mutable_start_parameters()->Add(start.begin(), start.end());
+  }
 }
 
 StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
@@ -121,6 +129,11 @@ StatusOr<MemberSpec> SpecFromWire(const wire::MemberSpec& w) {
   s.folds = w.folds();
   s.fold_seed = w.fold_seed();
   s.stop_epoch = w.stop_epoch();
+  if (w.start_parameters_size() > 0) {
+    // The member's own row only: start_points[index mod 1] is it.
+    s.train.start_points.push_back(std::make_shared<const std::vector<float>>(
+        w.start_parameters().begin(), w.start_parameters().end()));
+  }
   return s;
 }
 

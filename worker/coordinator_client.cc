@@ -9,6 +9,7 @@
 #include "common/file_util.h"
 #include "common/sha256.h"
 #include "proto/result_upload.h"
+#include "proto/spec_codec.h"
 
 namespace chorus {
 namespace {
@@ -152,7 +153,9 @@ Status FromGrpc(const grpc::Status& status, const std::string& call) {
 StatusOr<std::unique_ptr<CoordinatorClient>> CoordinatorClient::Create(const ConnectionOptions& o) {
   CHORUS_ASSIGN_OR_RETURN(auto creds, Credentials(o));
   grpc::ChannelArguments args;
-  args.SetMaxReceiveMessageSize(4 << 20);
+  // A lease reply carries a warm-started member's weights (common/config.h start_points, 4 bytes
+  // each); the coordinator refuses warm starts past kMaxLeaseReplyBytes.
+  args.SetMaxReceiveMessageSize(kMaxLeaseReplyBytes);
   args.SetInt(GRPC_ARG_MAX_RECONNECT_BACKOFF_MS, 2000);
   // A fixed receive window instead of gRPC's bandwidth-delay probe, which grows the window so far
   // that tens of MiB of a FetchData stream sat in buffers ahead of the decoder (and stayed in the
