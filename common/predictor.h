@@ -77,6 +77,14 @@ class Predictor {
   // target, computed in batches of kBatchRows from row 0. Uses only the calling thread.
   Matrix ComponentOutputs(int64_t c, const ConstMatrixRef& x) const;
 
+  // The drawn weights of component c (ParameterCount() floats, common/mlp.h layout), its
+  // mixture weight w_m / S_m, the network and the temperature: what an export that rebuilds the
+  // predictive in another format needs (coordinator/onnx_export.h).
+  const std::vector<float>& ComponentParameters(int64_t c) const { return samples_[static_cast<size_t>(c)]; }
+  double ComponentWeight(int64_t c) const { return component_weights_[static_cast<size_t>(c)]; }
+  const Mlp& network() const { return net_; }
+  double temperature() const { return temperature_; }
+
   // Activations for forward passes of up to kBatchRows rows, for ComponentOutputsInto. Allocated
   // once; one per thread.
   Mlp::Workspace MakeWorkspace() const { return net_.MakeWorkspace(kBatchRows); }

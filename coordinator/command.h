@@ -29,5 +29,6 @@ void RegisterPromoteCommand(CLI::App& app, CommandRunner* runner);
 void RegisterRollbackCommand(CLI::App& app, CommandRunner* runner);
 void RegisterHistoryCommand(CLI::App& app, CommandRunner* runner);
 void RegisterReferenceCommand(CLI::App& app, CommandRunner* runner);
+void RegisterExportCommand(CLI::App& app, CommandRunner* runner);
 
 }  // namespace chorus

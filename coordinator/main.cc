@@ -28,6 +28,7 @@ int main(int argc, char** argv) {
   chorus::RegisterRollbackCommand(app, &runner);
   chorus::RegisterHistoryCommand(app, &runner);
   chorus::RegisterReferenceCommand(app, &runner);
+  chorus::RegisterExportCommand(app, &runner);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {

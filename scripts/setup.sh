@@ -19,10 +19,10 @@ build_packages=(cmake ninja-build g++ pkg-config libtbb-dev libeigen3-dev libpro
 # (libopenblas0-pthread) becomes PyTorch's BLAS in place of the reference BLAS, so that bench/run
 # compares chorus with a peer at full speed. clang-14 with its runtime libraries (libFuzzer,
 # sanitizers) builds the fuzz targets. python3-prometheus-client's parser checks the coordinator's
-# metrics text.
+# metrics text. python3-onnx's checker validates `chorus export --onnx` files.
 test_packages=(python3 python3-numpy python3-scipy python3-sklearn python3-torch dataset-fashion-mnist
   iproute2 openssl chromium slurm-wlm munge systemd python3-yaml libopenblas0-pthread clang-14
-  libclang-rt-14-dev python3-prometheus-client)
+  libclang-rt-14-dev python3-prometheus-client python3-onnx)
 wanted=("${build_packages[@]}")
 [ "$mode" = test ] && wanted+=("${test_packages[@]}")
 

@@ -1,5 +1,6 @@
 #include "tests/testing/synthetic_bundle.h"
 
+#include "common/conv_front.h"
 #include "common/rng.h"
 #include "common/sha256.h"
 
@@ -75,7 +76,11 @@ Bundle SyntheticBundle(const SyntheticBundleSpec& spec) {
   Bundle b;
   b.task = spec.task;
   b.preprocessing = SyntheticPreprocessing(spec, rng);
-  b.widths = {static_cast<int>(b.preprocessing.plan.Features())};
+  b.activation = spec.activation;
+  b.image = spec.image;
+  b.conv = spec.conv;
+  b.widths = {static_cast<int>(spec.conv.empty() ? b.preprocessing.plan.Features()
+                                                 : ConvFront(spec.image, spec.conv, spec.activation).Outputs())};
   b.widths.insert(b.widths.end(), spec.hidden.begin(), spec.hidden.end());
   b.widths.push_back(spec.task == Task::kClassification ? spec.classes : 2);
   for (int k = 0; spec.task == Task::kClassification && k < spec.classes; ++k) {
@@ -83,7 +88,7 @@ Bundle SyntheticBundle(const SyntheticBundleSpec& spec) {
   }
   std::vector<BasinMethod> methods = {BasinMethod::kNone};
   methods.insert(methods.end(), spec.basins.begin(), spec.basins.end());
-  const int64_t parameters = BundleParameterCount(b.widths);
+  const int64_t parameters = BundleParameterCount(b);
   double total = 0;
   for (size_t m = 0; m < methods.size(); ++m) {
     b.members.push_back(SyntheticMember(static_cast<int>(m), methods[m], parameters, spec, rng));

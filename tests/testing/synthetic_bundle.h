@@ -22,6 +22,11 @@ struct SyntheticBundleSpec {
   int samples = 3;  // per member with a basin fit
   int rank = 3;     // deviation rows of low-rank fits
   uint64_t seed = 11;
+  Activation activation = Activation::kRelu;
+  // Convolution stages (common/conv_front.h) on an image of image.size() numeric columns: set
+  // numeric_columns to image.size() and categorical_column to false with them.
+  ImageShape image;
+  std::vector<ConvStage> conv;
 };
 
 // A bundle CheckBundle accepts: weights drawn N(0, 0.3^2) from Philox(seed), variances
