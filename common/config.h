@@ -146,9 +146,12 @@ struct TrainConfig {
   // 0 is the plain NLL, 1 gives the mean the gradient of squared error. In [0, 1].
   double beta_nll = 0.5;
   // Warm start (coordinator/warm_start.h): a bundle file, or a registry directory whose current
-  // bundle is meant; members start from its members' weights instead of a random initialisation
-  // and train for `epochs` as usual. Empty: a cold start. Absolute once loaded.
+  // bundle is meant (none yet: a cold start); members start from its members' weights instead
+  // of a random initialisation. Empty: a cold start. Absolute once loaded.
   std::string warm_start;
+  // Epochs of a warm-started run (0: `epochs`); a run that starts cold (a registry without a
+  // current bundle yet) trains for `epochs`.
+  int warm_epochs = 0;
   // Filled by the coordinator from warm_start, never read from or written to YAML: one starting
   // weight vector per member of the warm-start bundle, in this run's standardisation; member i
   // starts from start_points[i mod size]. Empty: initialise from the member's seed.

@@ -317,8 +317,10 @@ Status LoadEarlyStopping(const Section& t, EarlyStoppingConfig* e) {
 
 Status LoadTrain(const Section& s, const std::string& base, TrainConfig* t) {
   CHORUS_RETURN_IF_ERROR(s.Check({"epochs", "batch_size", "parts", "products", "optimizer",
-                                  "schedule", "early_stopping", "beta_nll", "warm_start"}));
+                                  "schedule", "early_stopping", "beta_nll", "warm_start",
+                                  "warm_epochs"}));
   CHORUS_RETURN_IF_ERROR(s.GetString("warm_start", &t->warm_start));
+  CHORUS_RETURN_IF_ERROR(s.Get<int>("warm_epochs", &t->warm_epochs, "an epoch count (0: epochs)", 0, 1000000));
   t->warm_start = Resolve(base, t->warm_start);
   CHORUS_RETURN_IF_ERROR(s.Get<int>("epochs", &t->epochs, "an epoch count", 1, 1000000));
   CHORUS_RETURN_IF_ERROR(s.Get<int>("batch_size", &t->batch_size, "a batch size", 1, 1 << 20));
@@ -590,7 +592,10 @@ void EmitTrain(YAML::Emitter& out, const TrainConfig& t) {
       << "mode" << YAML::Value << SwitchName(t.early_stopping.mode) << YAML::Key << "patience"
       << YAML::Value << t.early_stopping.patience << YAML::EndMap;
   out << YAML::Key << "beta_nll" << YAML::Value << t.beta_nll;
-  if (!t.warm_start.empty()) out << YAML::Key << "warm_start" << YAML::Value << t.warm_start;
+  if (!t.warm_start.empty()) {
+    out << YAML::Key << "warm_start" << YAML::Value << t.warm_start << YAML::Key << "warm_epochs"
+        << YAML::Value << t.warm_epochs;
+  }
   out << YAML::EndMap;
 }
 

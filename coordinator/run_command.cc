@@ -68,16 +68,27 @@ StatusOr<Inputs> LoadInputs(const RunOptions& options) {
   if (!in.config.data.shift_test.empty()) {
     CHORUS_ASSIGN_OR_RETURN(in.shifted, LoadShiftedRows(in.config.data, in.data));
   }
-  in.config_hash = ConfigHash(in.config);
   if (!in.config.train.warm_start.empty()) {
     CHORUS_ASSIGN_OR_RETURN(in.warm_start, LoadWarmStart(in.config, in.data));
-    in.config.train.start_points = in.warm_start->points;
-    in.config_hash = WarmStartConfigHash(in.config_hash, *in.warm_start);
+  }
+  if (in.warm_start) {
+    TrainConfig& t = in.config.train;
+    if (t.warm_epochs > 0) t.epochs = t.warm_epochs;
+    t.start_points = in.warm_start->points;
     LogLine(stderr, LogLevel::kInfo,
             "warm start from " + in.warm_start->path + " (run " + in.warm_start->bundle.run_name +
-                ", " + std::to_string(in.warm_start->bundle.members.size()) + " members)",
+                ", " + std::to_string(in.warm_start->bundle.members.size()) + " members), " +
+                std::to_string(t.epochs) + " epochs",
             {{"warm_start", in.warm_start->path}, {"warm_start_sha256", in.warm_start->sha256}});
+  } else if (!in.config.train.warm_start.empty()) {
+    LogLine(stderr, LogLevel::kInfo,
+            "warm start: " + in.config.train.warm_start +
+                " has no current bundle yet; training from scratch",
+            {{"warm_start", "none"}});
   }
+  // After the warm epochs are applied, so a resume (which reads them back) hashes the same.
+  in.config_hash = ConfigHash(in.config);
+  if (in.warm_start) in.config_hash = WarmStartConfigHash(in.config_hash, *in.warm_start);
   return in;
 }
 

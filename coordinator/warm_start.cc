@@ -31,15 +31,14 @@ std::string WidthList(const std::vector<int>& widths) {
   return text + "]";
 }
 
-// The bundle file train.warm_start names: the file itself, or a registry's current bundle.
-StatusOr<std::string> BundleFileOf(const std::string& path) {
-  if (!std::filesystem::is_directory(path)) return path;
+// The bundle file train.warm_start names: the file itself, or a registry's current bundle
+// (nullopt when it has none yet).
+StatusOr<std::optional<std::string>> BundleFileOf(const std::string& path) {
+  if (!std::filesystem::is_directory(path)) return std::optional<std::string>(path);
   CHORUS_RETURN_IF_ERROR(Registry::CheckIsRegistry(path));
   CHORUS_ASSIGN_OR_RETURN(const std::optional<std::string> current, Registry::CurrentIn(path));
-  if (!current.has_value()) {
-    return Status::InvalidInput(path + ": the registry has no current bundle to start from");
-  }
-  return path + "/versions/" + *current + "/bundle.chorus";
+  if (!current.has_value()) return std::optional<std::string>();
+  return std::optional<std::string>(path + "/versions/" + *current + "/bundle.chorus");
 }
 
 // Why the bundle does not fit this run's data and network, or "".
@@ -120,10 +119,13 @@ std::vector<float> Restandardized(const Mlp& net, Task task, std::vector<float> 
   return params;
 }
 
-StatusOr<WarmStart> LoadWarmStart(const Config& config, const PreparedData& data) {
+StatusOr<std::optional<WarmStart>> LoadWarmStart(const Config& config, const PreparedData& data) {
   WarmStart w;
   const std::string& configured = config.train.warm_start;
-  CHORUS_ASSIGN_OR_RETURN(w.path, warm_start_detail::BundleFileOf(configured));
+  StatusOr<std::optional<std::string>> path = warm_start_detail::BundleFileOf(configured);
+  if (!path.ok()) return path.status().WithContext("train.warm_start");
+  if (!path.value().has_value()) return std::optional<WarmStart>();
+  w.path = *path.value();
   StatusOr<BundleFile> file = ReadBundleFile(w.path);
   if (!file.ok()) return file.status().WithContext("train.warm_start");
   w.sha256 = file.value().payload_sha256;
@@ -149,7 +151,7 @@ StatusOr<WarmStart> LoadWarmStart(const Config& config, const PreparedData& data
         net, data.task, warm_start_detail::TrainedPoint(m), p.standardizer, p.target_mean,
         p.target_scale, data.standardizer, data.target_mean, data.target_scale)));
   }
-  return w;
+  return std::optional<WarmStart>(std::move(w));
 }
 
 std::string WarmStartConfigHash(const std::string& config_hash, const WarmStart& w) {

@@ -17,6 +17,7 @@
 #pragma once
 
 #include <memory>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -37,12 +38,13 @@ struct WarmStart {
   std::vector<std::shared_ptr<const std::vector<float>>> points;  // one per bundle member
 };
 
-// Reads config.train.warm_start (a bundle file, or a registry directory: DIR/current/
-// bundle.chorus), checks that it fits `config` and `data`, and makes the starting points.
-// Errors (kInvalidInput, naming the file and what differs): unreadable or corrupt bundle, an
-// empty registry, a mismatch as above, convolution stages, or (cluster route) weights too many
-// for a lease reply.
-StatusOr<WarmStart> LoadWarmStart(const Config& config, const PreparedData& data);
+// Reads config.train.warm_start (a bundle file, or a registry directory: its current bundle),
+// checks that it fits `config` and `data`, and makes the starting points; nullopt for a
+// registry without a current bundle yet (the first night of a nightly loop starts cold).
+// Errors (kInvalidInput, naming the file and what differs): unreadable or corrupt bundle, a
+// directory that is not a registry, a mismatch as above, convolution stages, or (cluster route)
+// weights too many for a lease reply.
+StatusOr<std::optional<WarmStart>> LoadWarmStart(const Config& config, const PreparedData& data);
 
 // `params` (a network with `net`'s layout, reading inputs standardised with `from` and, for
 // regression, predicting a target standardised with from_target_mean/scale) rewritten to read

@@ -123,6 +123,32 @@ TEST_F(WarmStartTest, AWorkerReceivesTheStartingWeightsInItsLease) {
   EXPECT_EQ(Report(worker)["ensemble"]["test"], Report(in_process)["ensemble"]["test"]);
 }
 
+// A registry without a current bundle yet (the first night) means a cold start for `epochs`; a
+// warm start trains for `warm_epochs`.
+TEST_F(WarmStartTest, AnEmptyRegistryStartsColdAndWarmEpochsApplyOnlyToWarmStarts) {
+  const std::string registry = dir_ + "/registry";
+  fs::create_directories(registry + "/versions");
+  const std::string yaml =
+      "run: {name: nightly, seed: 3}\n"
+      "data: {train: data/alarms_train.csv, test: data/alarms_test.csv, target: cause,\n"
+      "       categorical: [station]}\n" + std::string(kClassifierModel) +
+      "train: {epochs: 3, warm_start: " + registry + ", warm_epochs: 1}\n"
+      "ensemble: {members: 1}\n" + kInProcess;
+  const std::string cold = testing::RunDemo(dir_, "cold-night", yaml);
+  ASSERT_FALSE(cold.empty());
+  EXPECT_FALSE(Report(cold).contains("warm_start"));
+  EXPECT_EQ(Report(cold)["members"][0]["epochs_trained"], 3);
+  auto r = testing::RunShell(testing::BinaryPath("chorus") + " promote " + cold + " --registry " +
+                                 registry,
+                             120);
+  ASSERT_EQ(r.exit_code, 0) << r.output;
+  const std::string warm = testing::RunDemo(dir_, "warm-night", yaml);
+  ASSERT_FALSE(warm.empty());
+  EXPECT_EQ(Report(warm)["warm_start"]["sha256"],
+            ReadBundleFile(cold + "/bundle.chorus").value().payload_sha256);
+  EXPECT_EQ(Report(warm)["members"][0]["epochs_trained"], 1);
+}
+
 // A registry directory means its current bundle; what does not fit is refused before training.
 TEST_F(WarmStartTest, RegistryCurrentIsUsedAndMismatchesAreRefused) {
   const std::string registry = dir_ + "/registry";
@@ -151,9 +177,9 @@ TEST_F(WarmStartTest, RegistryCurrentIsUsedAndMismatchesAreRefused) {
   EXPECT_NE(refused("task", Yaml(true, registry, kRegressorModel, kInProcess))
                 .find("the bundle is a classification model, this run regression"),
             std::string::npos);
-  fs::create_directories(dir_ + "/empty/versions");
-  EXPECT_NE(refused("empty", Yaml(false, dir_ + "/empty", kClassifierModel, kInProcess))
-                .find("the registry has no current bundle to start from"),
+  fs::create_directories(dir_ + "/not-a-registry");
+  EXPECT_NE(refused("not-registry", Yaml(false, dir_ + "/not-a-registry", kClassifierModel, kInProcess))
+                .find("train.warm_start: " + dir_ + "/not-a-registry: not a registry"),
             std::string::npos);
   EXPECT_NE(refused("search", Yaml(false, registry, kClassifierModel,
                                    kInProcess + std::string("search: {lr: [0.01, 0.1]}\n")))

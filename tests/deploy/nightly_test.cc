@@ -11,6 +11,7 @@
 #include <sstream>
 #include <thread>
 
+#include "proto/bundle_codec.h"
 #include "tests/testing/process.h"
 #include "tests/testing/reference.h"
 
@@ -100,6 +101,60 @@ TEST_F(NightlyTest, PromotesKeepsRefusesAndPrunes) {
   // bundle was already current, so it made no decision).
   EXPECT_NE(testing::ReadTextFile(dir_ + "/registry/history.html").find("2 decisions (1 promoted, 1 refused)"),
             std::string::npos);
+}
+
+// The whole loop in one pass per night, as deploy/systemd/nightly.yaml sets it up: the first
+// night starts cold (the registry is empty), is promoted and exported to ONNX; the second starts
+// from the current bundle through the local workers' lease replies, the gate compares its
+// training data with the current bundle's, and the history page shows both nights.
+TEST_F(NightlyTest, WarmStartShiftCheckExportAndHistoryInOnePass) {
+  const std::string config = dir_ + "/loop.yaml";
+  testing::WriteTextFile(
+      config,
+      "run: {name: loop, seed: 4}\nmodel: {hidden: [32]}\n"
+      "train: {epochs: 6, batch_size: 32, warm_start: " + dir_ + "/registry, warm_epochs: 2}\n"
+      "data: {train: data/alarms_train.csv, test: data/alarms_test.csv, target: cause,\n"
+      "       categorical: [station]}\n"
+      "ensemble: {members: 2}\ncluster: {local_workers: 2}\n");
+  ASSERT_EQ(Night(config), 0) << testing::ReadTextFile(dir_ + "/log");
+  std::string log = testing::ReadTextFile(dir_ + "/log");
+  EXPECT_NE(log.find("has no current bundle yet; training from scratch"), std::string::npos) << log;
+  const std::string onnx = dir_ + "/registry/current.onnx";
+  const auto sha_of_current = [&] {
+    return ReadBundleFile(dir_ + "/registry/current/bundle.chorus").value().payload_sha256;
+  };
+  // The model's metadata names the bundle it was exported from (docs/onnx_export.md).
+  ASSERT_TRUE(fs::exists(onnx));
+  EXPECT_NE(testing::ReadTextFile(onnx).find(sha_of_current()), std::string::npos);
+
+  const int second = Night(config);
+  log = testing::ReadTextFile(dir_ + "/log");
+  ASSERT_TRUE(second == 0 || second == 3) << log;
+  EXPECT_NE(log.find("warm start from " + dir_ + "/registry/versions/"), std::string::npos) << log;
+  // The second night's decision compared the two nights' training data: the same rows.
+  std::vector<fs::path> decisions;
+  for (const auto& v : fs::directory_iterator(dir_ + "/registry/versions")) {
+    decisions.push_back(v.path() / "decision.json");
+  }
+  if (fs::exists(dir_ + "/registry/refused")) {
+    for (const auto& r : fs::directory_iterator(dir_ + "/registry/refused")) decisions.push_back(r.path());
+  }
+  ASSERT_EQ(decisions.size(), 2u);
+  bool compared = false;
+  for (const fs::path& d : decisions) {
+    const nlohmann::json j = nlohmann::json::parse(testing::ReadTextFile(d.string()));
+    if (!j["shift"]["skipped"].is_null()) continue;
+    compared = true;
+    EXPECT_EQ(j["shift"]["columns_compared"], 7);
+    EXPECT_EQ(j["shift"]["most_shifted"][0]["psi"], 0.0);
+    EXPECT_EQ(j["shift"]["refusals"], nlohmann::json::array());
+  }
+  EXPECT_TRUE(compared);
+  // Promoted: the ONNX model follows; refused: it stays the first night's.
+  EXPECT_NE(testing::ReadTextFile(onnx).find(sha_of_current()), std::string::npos);
+  const std::string page = testing::ReadTextFile(dir_ + "/registry/history.html");
+  EXPECT_NE(page.find("2 decisions ("), std::string::npos);
+  EXPECT_NE(page.find("largest PSI"), std::string::npos);
 }
 
 }  // namespace nightly_test
