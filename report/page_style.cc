@@ -14,7 +14,7 @@ constexpr const char* kStyle =
     "background:#e3edf7;color:#0b4a78;vertical-align:middle;margin-left:8px}"
     ".sub,.note,figcaption,footer,.kpi .label,.kpi .detail{color:#4d5358}"
     "section{background:#fff;border:1px solid #d5dae0;border-radius:8px;padding:16px 20px;"
-    "margin:16px 0}"
+    "margin:16px 0;overflow-x:auto}"
     "section.caution{border-left:6px solid #a64d00;background:#fff7ef}"
     ".kpis{display:grid;grid-template-columns:repeat(auto-fit,minmax(170px,1fr));gap:12px;"
     "margin:16px 0}"

@@ -88,7 +88,8 @@ std::string MetricsTable(const json& r,
     html += (i == highlight ? "<tr class=\"highlight\"><td>" : "<tr><td>") +
             EscapeHtml(rows[i].first) + "</td>";
     for (const auto& [key, label] : MetricColumns(r)) {
-      html += "<td>" + Num((*rows[i].second)[key]) + "</td>";
+      const json& metrics = *rows[i].second;
+      html += "<td>" + (metrics.contains(key) ? Num(metrics[key]) : std::string("&ndash;")) + "</td>";
     }
     html += "</tr>";
   }
@@ -111,8 +112,20 @@ std::string TestSection(const json& r) {
     rows.push_back({"linear baseline, " + std::string(IsClassificationReport(r) ? "T = " : "scale ") +
                         FormatFixed(r["baseline"]["temperature"], 3), &r["baseline"]["test"]});
   }
+  if (r.contains("warm_start")) {
+    rows.push_back({"warm-start bundle (run " + r["warm_start"]["run_name"].get<std::string>() + ")",
+                    &r["warm_start"]["start_bundle_test"]});
+  }
   std::string html = "<section><h2>Test set</h2>" + MetricsTable(r, rows, ensemble_row) +
                      BaselineVerdictHtml(r);
+  if (r.contains("warm_start")) {
+    const json& w = r["warm_start"];
+    html += "<p>Warm-started from <span class=\"hash\">" + EscapeHtml(w["path"].get<std::string>()) +
+            "</span> (payload SHA-256 <span class=\"hash\">" +
+            EscapeHtml(w["sha256"].get<std::string>().substr(0, 12)) +
+            "</span>), scored above on this run's test rows with its own preprocessing: the "
+            "ensemble's test NLL changed by " + Num(w["nll_change"], 4) + " nats.</p>";
+  }
   if (r.contains("temperature_warning")) {
     html += "<p class=\"verdict warn\">" + EscapeHtml(r["temperature_warning"].get<std::string>()) + "</p>";
   }

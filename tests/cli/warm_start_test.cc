@@ -161,6 +161,10 @@ TEST_F(WarmStartTest, RegistryCurrentIsUsedAndMismatchesAreRefused) {
   ASSERT_FALSE(run.empty());
   EXPECT_EQ(Report(run)["warm_start"]["sha256"],
             ReadBundleFile(classifier_ + "/bundle.chorus").value().payload_sha256);
+  // report.html shows the starting bundle's scores beside the run's.
+  const std::string page = ReadTextFile(run + "/report.html");
+  EXPECT_NE(page.find("warm-start bundle (run weaker)"), std::string::npos);
+  EXPECT_NE(page.find("Warm-started from"), std::string::npos);
 
   const auto refused = [&](const std::string& name, const std::string& yaml) {
     testing::WriteTextFile(dir_ + "/" + name + ".yaml", yaml);
