@@ -18,6 +18,16 @@ int64_t FeaturePlan::Features() const {
   return n;
 }
 
+std::vector<int64_t> FeaturePlan::FirstFeatures() const {
+  std::vector<int64_t> first;
+  int64_t n = 0;
+  for (const Column& c : columns) {
+    first.push_back(n);
+    n += c.categorical ? static_cast<int64_t>(categorical[c.index].vocabulary.size()) : 1;
+  }
+  return first;
+}
+
 int64_t FeaturePlan::NumericColumns() const {
   return static_cast<int64_t>(columns.size() - categorical.size());
 }

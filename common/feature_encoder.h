@@ -45,6 +45,8 @@ struct FeaturePlan {
   int64_t NumericColumns() const;
   // One name per feature: the column name, or "column=value" for a one-hot feature.
   std::vector<std::string> FeatureNames() const;
+  // Per column, the index of its first feature (a categorical column's features follow it).
+  std::vector<int64_t> FirstFeatures() const;
 };
 
 // Reads a whole field as a finite double within float range (|value| <= 3.4e38), independent of

@@ -507,7 +507,10 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   } else if (basin) {
     CHORUS_RETURN_IF_ERROR(RunBasinPhase(spec, run, progress, cancel, result).WithContext(where));
   }
-  result.cpu_seconds.basin_fit = cpu.Seconds() - result.cpu_seconds.training;
+  // A member without a fit records none (not the noise of two clock reads).
+  if (cyclical || laplace || basin) {
+    result.cpu_seconds.basin_fit = cpu.Seconds() - result.cpu_seconds.training;
+  }
   if (basin) {
     PredictSamples(spec, run.net(), validation, data, run.parallel(), result);
     result.cpu_seconds.samples = cpu.Seconds() - result.cpu_seconds.training - result.cpu_seconds.basin_fit;

@@ -82,7 +82,8 @@ struct MemberResult {
   // CPU-seconds this job spent (common/cpu_account.h: its own thread and its ParallelFor items):
   // training = the SGD epochs, their validation NLL and the trained point's outputs (cyclical
   // SG-MCMC: the whole run, its sampling phases included); basin_fit = the basin phase or the
-  // Laplace curvature and prior tuning; samples = drawing every sample and computing its outputs.
+  // Laplace curvature and prior tuning (0 without a fit); samples = drawing every sample and
+  // computing its outputs.
   struct CpuSeconds {
     double training = 0, basin_fit = 0, samples = 0;
   } cpu_seconds;

@@ -12,13 +12,13 @@ TrainingRanges TrainingRanges::For(const Bundle& bundle) {
   const FeaturePlan& plan = bundle.preprocessing.plan;
   r.mean_ = bundle.preprocessing.standardizer.mean;
   r.scale_ = bundle.preprocessing.standardizer.scale;
-  int64_t feature = 0;
+  const std::vector<int64_t> first = plan.FirstFeatures();
   for (size_t k = 0; k < plan.columns.size(); ++k) {
     const FeaturePlan::Column& c = plan.columns[k];
     Column column;
     column.name = c.name;
     column.categorical = c.categorical;
-    column.first_feature = feature;
+    column.first_feature = first[k];
     if (c.categorical) {
       column.features =
           static_cast<int64_t>(plan.categorical[static_cast<size_t>(c.index)].vocabulary.size());
@@ -32,7 +32,6 @@ TrainingRanges TrainingRanges::For(const Bundle& bundle) {
       column.low = column.min - margin;
       column.high = column.max + margin;
     }
-    feature += column.features;
     r.columns_.push_back(column);
   }
   return r;

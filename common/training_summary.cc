@@ -150,14 +150,7 @@ TrainingSummary SummarizeTraining(const PreparedData& data, const ParallelFor* p
   s.rows = data.train.rows();
   if (s.rows == 0) return s;
   const std::vector<FeaturePlan::Column>& columns = data.plan.columns;
-  std::vector<int64_t> first(columns.size());
-  int64_t feature = 0;
-  for (size_t k = 0; k < columns.size(); ++k) {
-    first[k] = feature;
-    feature += columns[k].categorical
-                   ? static_cast<int64_t>(data.plan.categorical[columns[k].index].vocabulary.size())
-                   : 1;
-  }
+  const std::vector<int64_t> first = data.plan.FirstFeatures();
   s.columns.resize(columns.size());
   ParallelForEach(parallel, static_cast<int64_t>(columns.size()), [&](int64_t k) {
     s.columns[k] = training_summary_detail::SummarizeColumn(data, columns[k], first[k]);

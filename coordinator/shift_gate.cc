@@ -2,22 +2,16 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
 #include <limits>
 #include <map>
 
 #include "common/distribution_shift.h"
+#include "report/html_text.h"
 
 namespace chorus {
 namespace shift_gate_detail {
 
 constexpr size_t kNamedInReason = 5;  // columns named in one refusal reason
-
-std::string Fixed3(double v) {
-  char text[32];
-  std::snprintf(text, sizeof text, "%.3f", v);
-  return text;
-}
 
 const std::vector<std::string>& VocabularyOf(const Bundle& b, const FeaturePlan::Column& c) {
   return b.preprocessing.plan.categorical[static_cast<size_t>(c.index)].vocabulary;
@@ -56,14 +50,15 @@ ColumnShift CompareLabels(const Bundle& current, const Bundle& candidate) {
   return {"(target)", SketchPsi(a.target, b.target), KolmogorovSmirnov(a.target, b.target)};
 }
 
-// "data shift: PSI above 0.25 (--max-psi) in 2 of 7 columns: income 0.412, age 0.301".
+// "data shift: PSI above 0.250 (--max-psi) in 2 of 7 columns: income 0.412, age 0.301".
 std::string Refusal(const std::vector<ColumnShift>& over, size_t compared, const char* statistic,
                     double limit, const char* option, bool psi) {
-  std::string text = std::string("data shift: ") + statistic + " above " + Fixed3(limit) + " (" +
-                     option + ") in " + std::to_string(over.size()) + " of " +
-                     std::to_string(compared) + " columns: ";
+  std::string text = std::string("data shift: ") + statistic + " above " +
+                     FormatFixed(limit, 3) + " (" + option + ") in " +
+                     std::to_string(over.size()) + " of " + std::to_string(compared) +
+                     " columns: ";
   for (size_t i = 0; i < over.size() && i < kNamedInReason; ++i) {
-    text += (i ? ", " : "") + over[i].column + " " + Fixed3(psi ? over[i].psi : over[i].ks);
+    text += (i ? ", " : "") + over[i].column + " " + FormatFixed(psi ? over[i].psi : over[i].ks, 3);
   }
   if (over.size() > kNamedInReason) text += ", ...";
   return text;
@@ -87,12 +82,12 @@ void AddRefusals(const GateLimits& limits, ShiftComparison* s) {
   }
   const ColumnShift& l = s->labels;
   if (l.psi > limits.max_psi) {
-    s->refusals.push_back("data shift: " + l.column + " PSI " + Fixed3(l.psi) + " above " +
-                          Fixed3(limits.max_psi) + " (--max-psi)");
+    s->refusals.push_back("data shift: " + l.column + " PSI " + FormatFixed(l.psi, 3) + " above " +
+                          FormatFixed(limits.max_psi, 3) + " (--max-psi)");
   }
   if (l.ks > limits.max_ks) {
-    s->refusals.push_back("data shift: " + l.column + " KS " + Fixed3(l.ks) + " above " +
-                          Fixed3(limits.max_ks) + " (--max-ks)");
+    s->refusals.push_back("data shift: " + l.column + " KS " + FormatFixed(l.ks, 3) + " above " +
+                          FormatFixed(limits.max_ks, 3) + " (--max-ks)");
   }
 }
 
