@@ -464,12 +464,12 @@ StatusOr<MemberResult> TrainMember(const MemberSpec& spec, const PreparedData& d
   CHORUS_RETURN_IF_ERROR(CheckModelForData(spec.model, data.features(), where + ": model"));
   JobRows rows = RowsForJob(spec, data);
   if (rows.train.empty()) return Status::InvalidInput(where + ": no training rows outside the fold");
-  if (const std::vector<float>* start = StartPoint(spec);
-      start != nullptr &&
-      static_cast<int64_t>(start->size()) != NetworkFor(spec.model, data).ParameterCount()) {
-    return Status::InvalidInput(where + ": the warm start holds " + std::to_string(start->size()) +
-                                " weights, the network " +
-                                std::to_string(NetworkFor(spec.model, data).ParameterCount()));
+  if (const std::vector<float>* start = StartPoint(spec)) {
+    const int64_t weights = NetworkFor(spec.model, data).ParameterCount();
+    if (static_cast<int64_t>(start->size()) != weights) {
+      return Status::InvalidInput(where + ": the warm start holds " + std::to_string(start->size()) +
+                                  " weights, the network " + std::to_string(weights));
+    }
   }
   const Split& validation = rows.validation != nullptr ? *rows.validation : rows.held_out;
   CpuAccount cpu(parallel);

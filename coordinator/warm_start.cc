@@ -42,7 +42,8 @@ StatusOr<std::optional<std::string>> BundleFileOf(const std::string& path) {
 }
 
 // Why the bundle does not fit this run's data and network, or "".
-std::string Mismatch(const Bundle& b, const Config& config, const PreparedData& data) {
+std::string Mismatch(const Bundle& b, const Config& config, const PreparedData& data,
+                     const Mlp& net) {
   if (b.task != data.task) {
     return std::string("the bundle is a ") + TaskName(b.task) + " model, this run " + TaskName(data.task);
   }
@@ -63,7 +64,6 @@ std::string Mismatch(const Bundle& b, const Config& config, const PreparedData& 
     return "convolution stages cannot be warm-started (a kernel is shared by every pixel, so a "
            "change of per-pixel standardisation cannot be folded into it)";
   }
-  const Mlp net = NetworkFor(config.model, data);
   if (b.widths != net.widths() || b.activation != config.model.activation) {
     return "networks differ: the bundle's widths " + WidthList(b.widths) + " (" +
            ActivationName(b.activation) + "), this run's " + WidthList(net.widths()) + " (" +
@@ -130,12 +130,12 @@ StatusOr<std::optional<WarmStart>> LoadWarmStart(const Config& config, const Pre
   if (!file.ok()) return file.status().WithContext("train.warm_start");
   w.sha256 = file.value().payload_sha256;
   w.bundle = std::move(file.value().bundle);
-  const std::string problem = warm_start_detail::Mismatch(w.bundle, config, data);
+  const Mlp net = NetworkFor(config.model, data);
+  const std::string problem = warm_start_detail::Mismatch(w.bundle, config, data, net);
   if (!problem.empty()) {
     return Status::InvalidInput("train.warm_start: " + w.path + " does not fit this run: " +
                                 problem);
   }
-  const Mlp net = NetworkFor(config.model, data);
   const int64_t bytes = net.ParameterCount() * int64_t{4} + warm_start_detail::kLeaseReplySpareBytes;
   if (!TrainsInProcess(config) && bytes > kMaxLeaseReplyBytes) {
     return Status::InvalidInput("train.warm_start: " + w.path + ": " +

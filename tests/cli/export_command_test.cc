@@ -180,16 +180,14 @@ TEST_F(ExportCommandTest, ConvolutionStagesWithGeluMatchPredict) {
 // Trained bundles on the demo data (its test file, its categorical station column): the two
 // runs the promote tests share, and one whose members carry low-rank basin fits (GELU).
 TEST_F(ExportCommandTest, TrainedDemoBundlesMatchPredictOnTheirTestRows) {
-  const char* kExtra = "train: {epochs: 8}\nensemble: {members: 3}\ncluster: {local_workers: 0}\n";
   const char* kBasin =
       "train: {epochs: 3, batch_size: 50}\ncluster: {local_workers: 0}\n"
       "ensemble: {members: 2, basin: {method: gaussian_lowrank, epochs: 1, snapshots: 4, rank: 3, samples: 3}}\n";
   std::string basin_yaml = testing::DemoClassificationYaml("lowrank", 3, kBasin);
   basin_yaml.replace(basin_yaml.find("model: {hidden: [16]}"), 21, "model: {hidden: [16], activation: gelu}");
   const std::string runs[] = {
-      testing::SharedDemoRun("promote-better", testing::DemoClassificationYaml("better", 1, kExtra)),
-      testing::SharedDemoRun("promote-better_regression",
-                             testing::DemoRegressionYaml("better_regression", 1, kExtra)),
+      testing::SharedPromoteRun(testing::PromoteRun::kBetter),
+      testing::SharedPromoteRun(testing::PromoteRun::kBetterRegression),
       testing::SharedDemoRun("export-lowrank", basin_yaml)};
   const std::string tests[] = {"alarms_test.csv", "faults_test.csv", "alarms_test.csv"};
   for (int i = 0; i < 3; ++i) {

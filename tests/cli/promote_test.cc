@@ -27,23 +27,15 @@ namespace fs = std::filesystem;
 using nlohmann::json;
 using testing::ReadTextFile;
 
-constexpr char kBetter[] =
-    "train: {epochs: 8}\nensemble: {members: 3}\ncluster: {local_workers: 0}\n";
-constexpr char kWeaker[] =
-    "train: {epochs: 2}\nensemble: {members: 1}\ncluster: {local_workers: 0}\n";
 
 class PromoteTest : public ::testing::Test {
  protected:
   // Four small runs, shared by every test (promote only reads them) and every test process.
   static void SetUpTestSuite() {
-    better_ = testing::SharedDemoRun("promote-better",
-                                     testing::DemoClassificationYaml("better", 1, kBetter));
-    weaker_ = testing::SharedDemoRun("promote-weaker",
-                                     testing::DemoClassificationYaml("weaker", 2, kWeaker));
-    better_regression_ = testing::SharedDemoRun(
-        "promote-better_regression", testing::DemoRegressionYaml("better_regression", 1, kBetter));
-    weaker_regression_ = testing::SharedDemoRun(
-        "promote-weaker_regression", testing::DemoRegressionYaml("weaker_regression", 2, kWeaker));
+    better_ = testing::SharedPromoteRun(testing::PromoteRun::kBetter);
+    weaker_ = testing::SharedPromoteRun(testing::PromoteRun::kWeaker);
+    better_regression_ = testing::SharedPromoteRun(testing::PromoteRun::kBetterRegression);
+    weaker_regression_ = testing::SharedPromoteRun(testing::PromoteRun::kWeakerRegression);
   }
 
   void SetUp() override {
@@ -155,7 +147,7 @@ TEST_F(PromoteTest, ShiftedTrainingDataIsRefusedAndItsColumnNamed) {
   }
   testing::WriteTextFile(dir + "/data/alarms_train.csv", shifted);
   const std::string run =
-      testing::RunDemo(dir, "shifted", testing::DemoClassificationYaml("shifted", 2, kWeaker));
+      testing::RunDemo(dir, "shifted", testing::DemoClassificationYaml("shifted", 2, testing::kWeakerRunSettings));
   ASSERT_FALSE(run.empty());
 
   ASSERT_EQ(Promote(weaker_).exit_code, 0);

@@ -21,17 +21,12 @@ namespace fs = std::filesystem;
 using nlohmann::json;
 using testing::ReadTextFile;
 
-// The promote tests' weaker runs (tests/cli/promote_test.cc), shared with them.
-constexpr char kWeaker[] =
-    "train: {epochs: 2}\nensemble: {members: 1}\ncluster: {local_workers: 0}\n";
-
 class WarmStartTest : public ::testing::Test {
  protected:
   static void SetUpTestSuite() {
-    classifier_ = testing::SharedDemoRun("promote-weaker",
-                                         testing::DemoClassificationYaml("weaker", 2, kWeaker));
-    regressor_ = testing::SharedDemoRun(
-        "promote-weaker_regression", testing::DemoRegressionYaml("weaker_regression", 2, kWeaker));
+    // The promote tests' weaker runs, shared with them.
+    classifier_ = testing::SharedPromoteRun(testing::PromoteRun::kWeaker);
+    regressor_ = testing::SharedPromoteRun(testing::PromoteRun::kWeakerRegression);
   }
   void SetUp() override {
     ASSERT_FALSE(classifier_.empty() || regressor_.empty());

@@ -6,6 +6,8 @@
 #include <gtest/gtest.h>
 
 #include <cstring>
+#include <functional>
+#include <string>
 
 #include "bundle.pb.h"
 #include "common/predictor.h"
@@ -28,6 +30,14 @@ std::string PayloadOf(const std::string& file) {
 }
 
 Status DecodeStatus(const std::string& bytes) { return DecodeBundleFile(bytes, "b").status(); }
+
+// Decodes the framed `payload` after `mutate` changed its message.
+Status DecodeMutated(const std::string& payload, const std::function<void(bundle::Bundle&)>& mutate) {
+  bundle::Bundle message;
+  if (!message.ParseFromString(payload)) return Status::Internal("the good payload did not parse");
+  mutate(message);
+  return DecodeStatus(Frame(message.SerializeAsString()));
+}
 
 void ExpectSameBundle(const Bundle& a, const Bundle& b) {
   EXPECT_EQ(a.task, b.task);
@@ -161,10 +171,7 @@ TEST(BundleCodecTest, AbsurdDimensionsAreRefusedBeforeAllocating) {
        [](bundle::Bundle& b) { b.mutable_preprocessing()->add_feature_mean(0); }}};
   for (const auto& [name, mutate] : cases) {
     SCOPED_TRACE(name);
-    bundle::Bundle message;
-    ASSERT_TRUE(message.ParseFromString(good));
-    mutate(message);
-    const Status st = DecodeStatus(Frame(message.SerializeAsString()));
+    const Status st = DecodeMutated(good, mutate);
     EXPECT_EQ(st.code(), Status::Code::kInvalidInput) << st.ToString();
   }
 }
@@ -229,10 +236,7 @@ TEST(BundleCodecTest, TrainingSummaryRoundTripsAndMalformedOnesAreRefused) {
       {"no rows", [](bundle::Bundle& b) { b.mutable_training_summary()->set_rows(0); }}};
   for (const auto& [name, mutate] : cases) {
     SCOPED_TRACE(name);
-    bundle::Bundle message;
-    ASSERT_TRUE(message.ParseFromString(good));
-    mutate(message);
-    const Status st = DecodeStatus(Frame(message.SerializeAsString()));
+    const Status st = DecodeMutated(good, mutate);
     EXPECT_EQ(st.code(), Status::Code::kInvalidInput) << st.ToString();
     EXPECT_NE(st.message().find("b: training summary"), std::string::npos) << st.ToString();
   }

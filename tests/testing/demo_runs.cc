@@ -91,4 +91,22 @@ std::string SharedDemoRun(const std::string& name, const std::string& yaml) {
   return fs::exists(marker) ? ReadTextFile(marker) : "";
 }
 
+std::string SharedPromoteRun(PromoteRun which) {
+  const char* better = kBetterRunSettings;
+  const char* weaker = kWeakerRunSettings;
+  switch (which) {
+    case PromoteRun::kBetter:
+      return SharedDemoRun("promote-better", DemoClassificationYaml("better", 1, better));
+    case PromoteRun::kWeaker:
+      return SharedDemoRun("promote-weaker", DemoClassificationYaml("weaker", 2, weaker));
+    case PromoteRun::kBetterRegression:
+      return SharedDemoRun("promote-better_regression",
+                           DemoRegressionYaml("better_regression", 1, better));
+    case PromoteRun::kWeakerRegression:
+      return SharedDemoRun("promote-weaker_regression",
+                           DemoRegressionYaml("weaker_regression", 2, weaker));
+  }
+  return "";
+}
+
 }  // namespace chorus::testing

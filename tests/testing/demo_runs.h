@@ -28,4 +28,15 @@ std::string RunDemo(const std::string& dir, const std::string& name, const std::
 // it at once take turns on a lock file. Returns the run directory, or "" after a test failure.
 std::string SharedDemoRun(const std::string& name, const std::string& yaml);
 
+// The four small shared runs the promote, history, export and warm-start tests read: per task a
+// better run (3 members, 8 epochs, seed 1) and a weaker one (1 member, 2 epochs, seed 2), in
+// process. One definition, so every suite asks SharedDemoRun for the same name and YAML and the
+// members train once per build.
+enum class PromoteRun { kBetter, kWeaker, kBetterRegression, kWeakerRegression };
+constexpr char kBetterRunSettings[] =
+    "train: {epochs: 8}\nensemble: {members: 3}\ncluster: {local_workers: 0}\n";
+constexpr char kWeakerRunSettings[] =
+    "train: {epochs: 2}\nensemble: {members: 1}\ncluster: {local_workers: 0}\n";
+std::string SharedPromoteRun(PromoteRun which);
+
 }  // namespace chorus::testing

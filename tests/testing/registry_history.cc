@@ -6,13 +6,8 @@
 namespace chorus::testing {
 
 std::string MakeRegistryWithHistory(const std::string& dir) {
-  // The promote tests' runs (same names and YAML, so SharedDemoRun trains them once per build).
-  const std::string better = SharedDemoRun(
-      "promote-better", DemoClassificationYaml(
-                            "better", 1, "train: {epochs: 8}\nensemble: {members: 3}\ncluster: {local_workers: 0}\n"));
-  const std::string weaker = SharedDemoRun(
-      "promote-weaker", DemoClassificationYaml(
-                            "weaker", 2, "train: {epochs: 2}\nensemble: {members: 1}\ncluster: {local_workers: 0}\n"));
+  const std::string better = SharedPromoteRun(PromoteRun::kBetter);
+  const std::string weaker = SharedPromoteRun(PromoteRun::kWeaker);
   if (better.empty() || weaker.empty()) return "the demo runs failed";
   const std::string chorus = BinaryPath("chorus");
   const struct {
